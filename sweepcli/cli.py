@@ -1,0 +1,204 @@
+"""Command-line wiring only: parse options, call library functions, format their results.
+
+Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
+line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
+saved; rerun with ``--resume``).
+"""
+
+from __future__ import annotations
+
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import __version__
+from .errors import SweepError
+
+EXIT_ERROR = 2
+EXIT_INTERRUPTED = 3
+
+app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+                  help="Phase-diagram sweeps of static and periodically driven lattice models.")
+
+
+@dataclass
+class State:
+    verbose: bool = False
+    debug: bool = False
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"sweepcli {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main(ctx: typer.Context,
+         verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say more.")] = False,
+         debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks of errors.")] = False,
+         version: Annotated[Optional[bool], typer.Option("--version", callback=_version,
+                                                         is_eager=True, help="Print the version.")] = None,
+         ) -> None:
+    ctx.obj = State(verbose=verbose, debug=debug)
+
+
+def _fail(ctx: typer.Context, exc: SweepError) -> None:
+    if ctx.obj is not None and ctx.obj.debug:
+        raise exc
+    typer.echo(f"error: {exc}", err=True)
+    raise typer.Exit(EXIT_ERROR)
+
+
+def _parse_at(items: list[str]) -> dict[str, float]:
+    out = {}
+    for item in items:
+        name, sep, value = item.partition("=")
+        try:
+            if not sep:
+                raise ValueError
+            out[name.strip()] = float(value)
+        except ValueError:
+            raise SweepError(f"--at must be NAME=VALUE with a number; got {item!r}.") from None
+    return out
+
+
+@app.command()
+def run(ctx: typer.Context,
+        job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+        output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Results file (default: [output] path of the job).")] = None,
+        workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes.")] = 1,
+        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
+        resume: Annotated[bool, typer.Option("--resume", help="Continue an interrupted run in its results file.")] = False,
+        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, help="Grid points per task.")] = None,
+        checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
+        progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
+        ) -> None:
+    """Evaluate every grid point of JOB and write one HDF5 results file."""
+    from .jobfile import load_job
+    from .run.runner import run_sweep
+    from .store import Results
+    from .store.provenance import new_results, now
+
+    try:
+        job = load_job(job_file)
+        out = output or Path(job.output)
+        if force and resume:
+            raise SweepError("--force and --resume exclude each other: --force starts afresh, "
+                             "--resume continues the existing file.")
+        if resume:
+            results = Results.read(out)
+            if results.attrs.get("job_sha256") != job.sha256:
+                raise SweepError(f"{out}: was written by a different job (sha256 "
+                                 f"{results.attrs.get('job_sha256', '?')[:12]}, this job "
+                                 f"{job.sha256[:12]}); refusing to resume. Run without --resume "
+                                 "and with -o NEW_FILE, or --force to start afresh.")
+            results.attrs["command_line"] += " ; " + " ".join(sys.argv)
+        else:
+            if out.exists() and not force:
+                raise SweepError(f"{out}: exists; refusing to overwrite it. Use --force to start "
+                                 "afresh or --resume to continue it.")
+            results = new_results(job)
+        out.parent.mkdir(parents=True, exist_ok=True)
+        results.write(out)
+        summary = run_sweep(job, results, workers=workers, chunk_size=chunk_size,
+                            checkpoint=lambda r: r.write(out), checkpoint_every=checkpoint_every,
+                            progress=progress)
+        if not summary.interrupted:
+            results.attrs["finished"] = now()
+            results.write(out)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    failed = f", {summary.failed} failed (see `sweepcli show {out}`)" if summary.failed else ""
+    if summary.interrupted:
+        typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
+                   f"Resume with: sweepcli run {job_file} -o {out} --resume", err=True)
+        raise typer.Exit(EXIT_INTERRUPTED)
+    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
+
+
+@app.command()
+def check(ctx: typer.Context,
+          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")]) -> None:
+    """Validate JOB and print its grid, measurements and a cost estimate; runs nothing."""
+    from .jobfile import load_job
+    from .run.cost import estimate
+
+    try:
+        job = load_job(job_file)
+        cost = estimate(job)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"{job_file}: ok ({job.title})")
+    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); drive: {job.drive}")
+    typer.echo(f"grid: {' x '.join(str(n) for n in job.shape)} = {job.size} points")
+    for a in job.axes:
+        typer.echo(f"  {a.name}: {len(a.values)} values, {a.values[0]:g} .. {a.values[-1]:g} ({a.spacing})")
+    for name, options in job.measurements:
+        opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
+        typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
+    typer.echo(f"cost estimate: {cost.format()}")
+    typer.echo(f"output: {job.output}")
+
+
+@app.command()
+def show(ctx: typer.Context,
+         results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
+         ) -> None:
+    """Print the provenance and a per-variable summary of RESULTS."""
+    from .report.summary import format_summary, summarise
+    from .store import Results
+
+    try:
+        text = format_summary(summarise(Results.read(results_file)))
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(text)
+
+
+@app.command("map")
+def map_(ctx: typer.Context,
+         results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
+         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the first invariant).")] = None,
+         output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (nearest grid value).")] = None,
+         ) -> None:
+    """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
+    from .report.maps import draw_map
+    from .store import Results
+
+    try:
+        results = Results.read(results_file)
+        out = output or results_file.with_name(results_file.stem + f"-{var or 'map'}.png")
+        written = draw_map(results, out, var=var, at=_parse_at(at or []))
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"map -> {written}")
+
+
+@app.command()
+def models(ctx: typer.Context) -> None:
+    """List the built-in models and the measurements with their parameters."""
+    from .physics.measurements import MEASUREMENTS
+    from .physics.models import MODELS
+
+    typer.echo("models:")
+    for e in MODELS:
+        typer.echo(f"  {e.name}: {e.description} ({e.extra['dim']}D, {e.extra['norb']} orbitals)")
+        for p in e.params:
+            default = "" if p.required else f" = {p.default}"
+            typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")
+        typer.echo(f"      source: {e.source}")
+    typer.echo("measurements:")
+    for e in MEASUREMENTS:
+        typer.echo(f"  {e.name}: {e.description}")
+        for p in e.params:
+            default = "" if p.required else f" = {p.default}"
+            typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")

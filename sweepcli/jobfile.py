@@ -1,0 +1,661 @@
+"""Job files: TOML parsing, validation against the registries, normalisation and hashing.
+
+A job file has the tables ``[job]``, ``[model]``, ``[params]``, ``[sweep]``, ``[drive]``,
+``[measure]`` and ``[output]`` (see README.md). :func:`load_job` checks the whole file once and
+returns a frozen :class:`Job`; every error names the file, the table and key, what was expected
+and what was given. Job files are data: expressions are parsed by :mod:`sweepcli.expressions`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import tomli_w
+
+from .errors import JobError, shown, suggest
+from .expressions import Expression, ExpressionError, parse
+from .physics.lattice import TightBinding, assemble, pauli
+from .physics.measurements import MEASUREMENTS, quantities_of
+from .physics.models import MODELS
+from .physics.point import Point, Quantity
+from .physics.registry import Param
+
+TABLES = ("job", "model", "params", "sweep", "drive", "measure", "output")
+LATTICES = {
+    "chain": np.array([[1.0]]),
+    "square": np.eye(2),
+    "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
+}
+DRIVE_KINDS = ("static",)
+MEASURE_SETTINGS = (
+    Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
+    Param("gap_tol", default=1e-6, low=0, open_low=True, doc="gaps below this count as closed"),
+)
+SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
+
+
+@dataclass(frozen=True)
+class Axis:
+    """One swept parameter: its name, the values in order and how they were declared."""
+
+    name: str
+    values: tuple[float, ...]
+    spacing: str  # "linear", "log" or "list"
+
+
+@dataclass(frozen=True)
+class CustomModel:
+    """A model declared in the job file: matrices with coefficient expressions."""
+
+    lattice: tuple[tuple[float, ...], ...]
+    positions: tuple[tuple[float, ...], ...]
+    onsite: tuple[tuple[np.ndarray, Expression], ...]
+    hoppings: tuple[tuple[tuple[int, ...], np.ndarray, Expression], ...]
+    operators: tuple[tuple[str, np.ndarray], ...]
+
+    @property
+    def names(self) -> frozenset[str]:
+        exprs = [e for _, e in self.onsite] + [e for _, _, e in self.hoppings]
+        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
+
+    def build(self, values: Mapping[str, complex]) -> TightBinding:
+        n = len(self.positions)
+        onsite = np.zeros((n, n), complex)
+        for matrix, coeff in self.onsite:
+            onsite = onsite + coeff(values) * matrix
+        terms = [(d, coeff(values) * matrix) for d, matrix, coeff in self.hoppings]
+        return assemble(np.array(self.lattice), np.array(self.positions), onsite, terms,
+                        dict(self.operators))
+
+
+@dataclass(frozen=True, eq=False)
+class Job:
+    """A validated, normalised job. Derived things (grids, k-meshes) are computed, never stored."""
+
+    path: str
+    text: str
+    name: str
+    title: str
+    model: str
+    custom: CustomModel | None
+    model_params: tuple[str, ...]
+    fixed: tuple[tuple[str, float], ...]
+    derived: tuple[tuple[str, Expression], ...]  # in evaluation order
+    axes: tuple[Axis, ...]
+    drive: str
+    measurements: tuple[tuple[str, tuple[tuple[str, Any], ...]], ...]
+    filling: int | None
+    gap_tol: float
+    output: str
+    normalised: str
+    dim: int
+    norb: int
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return tuple(len(a.values) for a in self.axes)
+
+    @property
+    def size(self) -> int:
+        return int(np.prod(self.shape, dtype=np.int64))
+
+    @property
+    def sha256(self) -> str:
+        return hashlib.sha256(self.normalised.encode()).hexdigest()
+
+    def quantities(self) -> list[tuple[str, tuple[Quantity, ...]]]:
+        """``(measurement, its quantities)`` in job order."""
+        return [(name, quantities_of(name, self.dim)) for name, _ in self.measurements]
+
+    def values_at(self, index: int) -> dict[str, complex]:
+        """All parameter values (fixed, swept, derived) at flat grid index ``index``."""
+        multi = np.unravel_index(index, self.shape) if self.axes else ()
+        values: dict[str, complex] = dict(self.fixed)
+        for axis, i in zip(self.axes, multi):
+            values[axis.name] = axis.values[i]
+        for name, expr in self.derived:
+            values[name] = expr(values)
+        return values
+
+    def build_model(self, values: Mapping[str, complex]) -> TightBinding:
+        if self.custom is not None:
+            return self.custom.build(values)
+        factory = MODELS[self.model].func
+        return factory(**{p: _real(values[p]) for p in self.model_params})
+
+    def point(self, index: int) -> Point:
+        return Point(params=self.values_at(index), build=self.build_model,
+                     filling=self.filling, gap_tol=self.gap_tol)
+
+
+def _real(value: complex) -> float:
+    return float(value.real) if isinstance(value, complex) else float(value)
+
+
+class _Checker:
+    """Collects the helpers that turn a bad value into one clear :class:`JobError`."""
+
+    def __init__(self, path: str) -> None:
+        self.path = path
+
+    def fail(self, table: str, key: str, expected: str, got: object, hint: str = "") -> JobError:
+        where = f"[{table}] {key}" if key else f"[{table}]"
+        return JobError(f"{self.path}: {where} must be {expected}; got {shown(got)}.{hint}")
+
+    def unknown(self, table: str, key: str, allowed: list[str], what: str = "key") -> JobError:
+        listed = ", ".join(allowed) if allowed else "none"
+        return JobError(f"{self.path}: [{table}] has an unknown {what} {key!r} "
+                        f"(allowed: {listed}).{suggest(key, allowed)}")
+
+    def table(self, doc: Mapping, name: str) -> dict:
+        value = doc.get(name, {})
+        if not isinstance(value, dict):
+            raise self.fail(name, "", "a table", value)
+        return value
+
+    def number(self, table: str, key: str, value: object, param: Param) -> float:
+        """Apply the int/float policy: int accepted for reals, float refused for counts."""
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise self.fail(table, key, param.expectation(), value)
+        if param.kind == "int" and not isinstance(value, int):
+            raise self.fail(table, key, param.expectation(), value)
+        if not param.admits(float(value)):
+            raise self.fail(table, key, param.expectation(), value)
+        return value
+
+    def option(self, table: str, key: str, value: object, param: Param) -> Any:
+        if param.kind in ("real", "int"):
+            if value is None and param.default is None:
+                return None
+            return self.number(table, key, value, param)
+        if param.kind == "bool":
+            if not isinstance(value, bool):
+                raise self.fail(table, key, param.expectation(), value)
+            return value
+        if param.kind == "choice":
+            if value not in param.choices:
+                raise self.fail(table, key, param.expectation(), value,
+                                suggest(str(value), [str(c) for c in param.choices]))
+            return value
+        if param.kind == "str":
+            if not isinstance(value, str):
+                raise self.fail(table, key, param.expectation(), value)
+            return value
+        if param.kind == "vector":
+            if not (isinstance(value, list) and value and all(
+                    isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
+                raise self.fail(table, key, param.expectation(), value)
+            return [float(v) for v in value]
+        if param.kind == "matrix":
+            self.matrix(table, key, value)
+            return value
+        raise AssertionError(f"undeclared parameter kind {param.kind!r}")
+
+    def matrix(self, table: str, key: str, value: object, size: int | None = None) -> np.ndarray:
+        """A Pauli word (``"zx"``) or a square list of numbers / constant expressions."""
+        expected = ("a Pauli word such as \"zx\" or a square matrix of numbers"
+                    + (f" of size {size}" if size else ""))
+        if isinstance(value, str):
+            if not value or set(value) - set("0xyz"):
+                raise self.fail(table, key, expected, value)
+            m = pauli(value)
+        elif isinstance(value, list) and value and all(isinstance(r, list) for r in value):
+            try:
+                m = np.array([[_constant(x) for x in row] for row in value], dtype=complex)
+            except (ValueError, ExpressionError):
+                raise self.fail(table, key, expected, value) from None
+            if m.ndim != 2 or m.shape[0] != m.shape[1]:
+                raise self.fail(table, key, expected, value)
+        else:
+            raise self.fail(table, key, expected, value)
+        if size is not None and m.shape[0] != size:
+            raise self.fail(table, key, expected, f"a matrix of size {m.shape[0]}")
+        return m
+
+
+def _constant(x: object) -> complex:
+    if isinstance(x, bool):
+        raise ValueError("boolean")
+    if isinstance(x, (int, float)):
+        return x
+    if isinstance(x, str):
+        expr = parse(x)
+        if expr.names:
+            raise ValueError("names")
+        return expr({})
+    raise ValueError("not a number")
+
+
+def read_toml(path: str | Path) -> tuple[str, dict]:
+    """Read and parse a TOML file; syntax errors become ``FILE:LINE:COL: message``."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise JobError(f"{path}: no such job file.") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise JobError(f"{path}: cannot read the job file ({exc}).") from None
+    try:
+        return text, tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
+        if m:
+            msg = msg[: m.start()].strip()
+            raise JobError(f"{path}:{m.group(1)}:{m.group(2)}: invalid TOML: {msg}.") from None
+        raise JobError(f"{path}: invalid TOML: {msg}.") from None
+
+
+def load_job(path: str | Path) -> Job:
+    """Parse and validate the job file at ``path``.
+
+    Raises
+    ------
+    JobError
+        One message naming the file, the key, what was expected and what was given.
+    """
+    text, doc = read_toml(path)
+    return build_job(doc, text=text, path=str(path))
+
+
+def build_job(doc: dict, *, text: str, path: str) -> Job:
+    ck = _Checker(path)
+    for key in doc:
+        if key not in TABLES:
+            raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
+                           f"{suggest(key, TABLES)}")
+    job_t = ck.table(doc, "job")
+    for key in job_t:
+        if key not in ("name", "title", "description"):
+            raise ck.unknown("job", key, ["name", "title", "description"])
+    name = job_t.get("name", Path(path).stem)
+    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
+    title = job_t.get("title", name)
+    if not isinstance(title, str):
+        raise ck.fail("job", "title", "a string", title)
+    description = job_t.get("description", "")
+    if not isinstance(description, str):
+        raise ck.fail("job", "description", "a string", description)
+
+    model_t = ck.table(doc, "model")
+    if "name" not in model_t:
+        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", None)
+    model = model_t["name"]
+    if model != "custom" and model not in MODELS:
+        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", model,
+                      suggest(str(model), MODELS.names() + ["custom"]))
+    if model == "custom":
+        custom = _custom_model(ck, model_t)
+        model_params: tuple[str, ...] = ()
+        declared: dict[str, Param] = {n: Param(n) for n in sorted(custom.names)}
+        dim, norb = len(custom.lattice), len(custom.positions)
+    else:
+        for key in model_t:
+            if key != "name":
+                raise ck.unknown("model", key, ["name"],
+                                 what="key (model parameters go in [params] or [sweep])")
+        custom = None
+        entry = MODELS[model]
+        model_params = tuple(p.name for p in entry.params)
+        declared = {p.name: p for p in entry.params}
+        dim, norb = entry.extra["dim"], entry.extra["norb"]
+
+    params_t = ck.table(doc, "params")
+    sweep_t = ck.table(doc, "sweep")
+    if not sweep_t:
+        raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
+                      "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
+    axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
+    fixed: dict[str, float] = {}
+    exprs: dict[str, Expression] = {}
+    for key, value in params_t.items():
+        if key in sweep_t:
+            raise JobError(f"{path}: [params] {key} is also swept in [sweep]; give it in one "
+                           "place only.")
+        if isinstance(value, str):
+            try:
+                exprs[key] = parse(value)
+            except ExpressionError as exc:
+                raise ck.fail("params", key, "a number or an arithmetic expression",
+                              value, f" {exc}.") from None
+        else:
+            param = declared.get(key, Param(key))
+            fixed[key] = ck.number("params", key, value, param)
+    for p in declared.values():
+        if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
+            if p.required:
+                what = f" ({p.doc})" if p.doc else ""
+                raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
+                               f"and must be {p.expectation()}; it is neither in [params] nor "
+                               "in [sweep].")
+            fixed[p.name] = p.default
+    known = set(fixed) | set(exprs) | {a.name for a in axes}
+    derived = _order_expressions(ck, exprs, known)
+    used = set(declared).union(*(e.names for e in exprs.values()))
+    for key in list(params_t) + list(sweep_t):
+        if key not in used:
+            table = "params" if key in params_t else "sweep"
+            raise ck.unknown(table, key, sorted(declared), what="parameter")
+
+    drive_t = ck.table(doc, "drive")
+    drive = drive_t.get("kind", "static")
+    for key in drive_t:
+        if key != "kind":
+            raise ck.unknown("drive", key, ["kind"])
+    if drive not in DRIVE_KINDS:
+        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
+                      drive, suggest(str(drive), DRIVE_KINDS))
+
+    measure_t = ck.table(doc, "measure")
+    settings: dict[str, Any] = {}
+    measurements: list[tuple[str, tuple[tuple[str, Any], ...]]] = []
+    setting_names = [p.name for p in MEASURE_SETTINGS]
+    for key, value in measure_t.items():
+        if isinstance(value, dict):
+            measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
+                                                   driven=drive != "static")))
+        elif key in setting_names:
+            param = next(p for p in MEASURE_SETTINGS if p.name == key)
+            settings[key] = ck.option("measure", key, value, param)
+        else:
+            raise ck.unknown("measure", key, setting_names + MEASUREMENTS.names(),
+                             what="setting or measurement")
+    if not measurements:
+        raise ck.fail("measure", "", "a table with at least one measurement such as "
+                      "[measure.gap] (available: " + ", ".join(MEASUREMENTS.names()) + ")",
+                      "no measurement")
+    filling = settings.get("filling")
+    if filling is not None and filling >= norb:
+        raise ck.fail("measure", "filling", f"an integer in [1, {norb - 1}] for a model with "
+                      f"{norb} bands", filling)
+    gap_tol = float(settings.get("gap_tol", 1e-6))
+
+    output_t = ck.table(doc, "output")
+    for key in output_t:
+        if key != "path":
+            raise ck.unknown("output", key, ["path"])
+    output = output_t.get("path", f"results/{name}.h5")
+    if not isinstance(output, str) or not output:
+        raise ck.fail("output", "path", "a file path", output)
+
+    axis_names = {a.name for a in axes}
+    clash = axis_names & {q.name for m, _ in measurements for q in quantities_of(m, dim)}
+    if clash:
+        raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
+                       "measured quantity; rename it.")
+
+    normalised = {
+        "job": {"name": name, "title": title, "description": description},
+        "model": _normalised_model(model, model_t),
+        "params": {k: (v if not isinstance(v, complex) else str(v)) for k, v in sorted(fixed.items())}
+                  | {k: e.text for k, e in sorted(exprs.items())},
+        "sweep": {k: v for k, v in sweep_t.items()},
+        "drive": {"kind": drive},
+        "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
+                   | {m: dict(opts) for m, opts in measurements},
+    }
+    normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
+    job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
+              model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
+              axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
+              gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
+              dim=dim, norb=norb)
+    _check_values(ck, job, declared, exprs)
+    return job
+
+
+def _normalised_model(model: str, model_t: dict) -> dict:
+    if model != "custom":
+        return {"name": model}
+    return {k: v for k, v in model_t.items()}
+
+
+def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
+    param = param or Param(key)
+    if param is not None and not param.sweepable:
+        raise JobError(f"{ck.path}: [sweep] {key} cannot be swept.")
+    spec_help = ("a list of values or a table { start = A, stop = B, num = N } "
+                 "(optionally spacing = \"log\")")
+    if isinstance(value, list):
+        if not value:
+            raise ck.fail("sweep", key, spec_help, value, " The list is empty.")
+        vals = tuple(ck.number("sweep", key, v, param) for v in value)
+        return Axis(key, tuple(float(v) for v in vals), "list")
+    if not isinstance(value, dict):
+        raise ck.fail("sweep", key, spec_help, value)
+    for k in value:
+        if k not in ("start", "stop", "num", "spacing"):
+            raise ck.unknown(f"sweep.{key}", k, ["start", "stop", "num", "spacing"])
+    for k in ("start", "stop", "num"):
+        if k not in value:
+            raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
+    start = ck.number(f"sweep.{key}", "start", value["start"], Param("start"))
+    stop = ck.number(f"sweep.{key}", "stop", value["stop"], Param("stop"))
+    num = ck.number(f"sweep.{key}", "num", value["num"], Param("num", kind="int", low=1))
+    spacing = value.get("spacing", "linear")
+    if spacing not in ("linear", "log"):
+        raise ck.fail(f"sweep.{key}", "spacing", "\"linear\" or \"log\"", spacing)
+    if num > 1 and start == stop:
+        raise ck.fail(f"sweep.{key}", "stop", "different from start when num > 1", stop,
+                      " The range is empty.")
+    if spacing == "log":
+        if start <= 0 or stop <= 0:
+            raise ck.fail(f"sweep.{key}", "start" if start <= 0 else "stop",
+                          "positive for a logarithmic range", start if start <= 0 else stop)
+        vals = np.geomspace(start, stop, num)
+    else:
+        vals = np.linspace(start, stop, num)
+    for v in vals:
+        if param.kind == "int" and v != round(v):
+            raise ck.fail("sweep", key, "a range of integers", value)
+        if not param.admits(float(v)):
+            raise ck.fail(f"sweep.{key}", "start" if v == vals[0] else "stop",
+                          f"such that every value is {param.expectation()}", float(v))
+    return Axis(key, tuple(float(v) for v in vals), spacing)
+
+
+def _order_expressions(ck: _Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:
+    for key, expr in exprs.items():
+        for n in sorted(expr.names):
+            if n not in known:
+                raise ck.fail("params", key, "an expression of defined parameters", expr.text,
+                              f" {n!r} is not defined in [params] or [sweep].{suggest(n, known)}")
+    ordered: list[tuple[str, Expression]] = []
+    done: set[str] = set(known) - set(exprs)
+    pending = dict(exprs)
+    while pending:
+        ready = [k for k, e in pending.items() if e.names <= done]
+        if not ready:
+            cycle = ", ".join(sorted(pending))
+            raise JobError(f"{ck.path}: [params] expressions {cycle} refer to each other in a "
+                           "cycle; break it with a number.")
+        for k in ready:
+            ordered.append((k, pending.pop(k)))
+            done.add(k)
+    return tuple(ordered)
+
+
+def _custom_model(ck: _Checker, t: dict) -> CustomModel:
+    allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators"]
+    for key in t:
+        if key not in allowed:
+            raise ck.unknown("model", key, allowed)
+    lat = t.get("lattice")
+    if isinstance(lat, str):
+        if lat not in LATTICES:
+            raise ck.fail("model", "lattice", "one of " + ", ".join(map(repr, LATTICES)) +
+                          " or a list of lattice vectors", lat, suggest(lat, LATTICES))
+        vectors = LATTICES[lat]
+    elif isinstance(lat, list) and lat and all(isinstance(r, list) for r in lat):
+        try:
+            vectors = np.array(lat, dtype=float)
+        except (TypeError, ValueError):
+            raise ck.fail("model", "lattice", "a list of d lattice vectors of length d", lat) from None
+        if vectors.ndim != 2 or vectors.shape[0] != vectors.shape[1] or vectors.shape[0] not in (1, 2) \
+                or abs(np.linalg.det(vectors)) < 1e-12:
+            raise ck.fail("model", "lattice", "1 or 2 linearly independent vectors of matching "
+                          "length", lat)
+    else:
+        raise ck.fail("model", "lattice", "\"chain\", \"square\", \"honeycomb\" or a list of "
+                      "lattice vectors", lat)
+    dim = vectors.shape[0]
+    if "positions" in t:
+        pos = t["positions"]
+        try:
+            positions = np.array(pos, dtype=float)
+        except (TypeError, ValueError):
+            positions = np.zeros((0,))
+        if positions.ndim != 2 or positions.shape[1] != dim or len(positions) == 0:
+            raise ck.fail("model", "positions", f"a list of orbital positions, each with {dim} "
+                          "reduced coordinates", pos)
+    elif "orbitals" in t:
+        n = ck.number("model", "orbitals", t["orbitals"], Param("orbitals", kind="int", low=1))
+        positions = np.zeros((n, dim))
+    else:
+        raise ck.fail("model", "orbitals", "the number of orbitals per cell (or give positions)",
+                      None)
+    n = len(positions)
+
+    def terms(key: str) -> list[dict]:
+        value = t.get(key, [])
+        if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+            raise ck.fail("model", key, f"an array of tables [[model.{key}]]", value)
+        return value
+
+    onsite = []
+    for i, term in enumerate(terms("onsite")):
+        where = f"model.onsite.{i}"
+        for k in term:
+            if k not in ("matrix", "coeff"):
+                raise ck.unknown(where, k, ["matrix", "coeff"])
+        onsite.append((ck.matrix(where, "matrix", term.get("matrix"), n),
+                       _coeff(ck, where, term.get("coeff", 1))))
+    hoppings = []
+    for i, term in enumerate(terms("hopping")):
+        where = f"model.hopping.{i}"
+        for k in term:
+            if k not in ("d", "matrix", "coeff"):
+                raise ck.unknown(where, k, ["d", "matrix", "coeff"])
+        d = term.get("d")
+        if not (isinstance(d, list) and len(d) == dim and all(
+                isinstance(x, int) and not isinstance(x, bool) for x in d)) or not any(d):
+            raise ck.fail(where, "d", f"a nonzero integer displacement of length {dim}", d)
+        hoppings.append((tuple(d), ck.matrix(where, "matrix", term.get("matrix"), n),
+                         _coeff(ck, where, term.get("coeff", 1))))
+    if not onsite and not hoppings:
+        raise ck.fail("model", "hopping", "at least one [[model.onsite]] or [[model.hopping]] term",
+                      None)
+    ops_t = t.get("operators", {})
+    if not isinstance(ops_t, dict):
+        raise ck.fail("model", "operators", "a table of named matrices", ops_t)
+    operators = tuple((k, ck.matrix("model.operators", k, v, n)) for k, v in ops_t.items())
+    return CustomModel(tuple(map(tuple, vectors)), tuple(map(tuple, positions)), tuple(onsite),
+                       tuple(hoppings), operators)
+
+
+def _coeff(ck: _Checker, where: str, value: object) -> Expression:
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise ck.fail(where, "coeff", "a number or an arithmetic expression", value)
+    try:
+        return parse(str(value))
+    except ExpressionError as exc:
+        raise ck.fail(where, "coeff", "a number or an arithmetic expression", value,
+                      f" {exc}.") from None
+
+
+def _measurement(ck: _Checker, name: str, options: dict, dim: int, norb: int,
+                 custom: CustomModel | None, model: str, driven: bool) -> tuple:
+    if name not in MEASUREMENTS:
+        raise ck.unknown("measure", name, MEASUREMENTS.names(), what="measurement")
+    entry = MEASUREMENTS[name]
+    table = f"measure.{name}"
+    dims = entry.extra.get("dims", (1, 2))
+    if dim not in dims:
+        raise JobError(f"{ck.path}: [{table}] applies to {' or '.join(f'{d}D' for d in dims)} "
+                       f"lattices; model {model!r} is {dim}D.")
+    wants_drive = entry.extra.get("driven")
+    if wants_drive is not None and wants_drive != driven:
+        need = "a periodic drive ([drive] kind other than \"static\")" if wants_drive else \
+            "a static job ([drive] kind = \"static\")"
+        raise JobError(f"{ck.path}: [{table}] needs {need}.")
+    have = {k for k, _ in custom.operators} if custom else set(_builtin_operators(model))
+    for op in entry.extra.get("operators", ()):
+        if op not in have:
+            raise JobError(f"{ck.path}: [{table}] needs a model with a {op!r} operator; model "
+                           f"{model!r} has " + (", ".join(sorted(have)) or "none") +
+                           (" (declare it under [model.operators])." if custom else "."))
+    out = []
+    for key, value in options.items():
+        param = entry.param(key)
+        if param is None:
+            raise ck.unknown(table, key, [p.name for p in entry.params], what="option")
+        out.append((key, ck.option(table, key, value, param)))
+    given = {k for k, _ in out}
+    for p in entry.params:
+        if p.name not in given:
+            if p.required:
+                raise ck.fail(table, p.name, p.expectation(), None)
+            out.append((p.name, p.default))
+    return tuple(out)
+
+
+def _builtin_operators(model: str) -> tuple[str, ...]:
+    entry = MODELS[model]
+    if "operators" in entry.extra:
+        return tuple(entry.extra["operators"])
+    sample = {p.name: (p.default if not p.required else _sample_value(p)) for p in entry.params}
+    return tuple(entry.func(**sample).operators)
+
+
+def _sample_value(p: Param) -> float:
+    lo = p.low if p.low is not None else None
+    hi = p.high if p.high is not None else None
+    if lo is not None and hi is not None:
+        return (lo + hi) / 2
+    if lo is not None:
+        return lo + 1
+    if hi is not None:
+        return hi - 1
+    return 0.5
+
+
+def _check_values(ck: _Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:
+    """Check derived values and Hermiticity at a sample of grid points (all when few)."""
+    size = job.size
+    idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
+    for i in idx:
+        try:
+            values = job.values_at(int(i))
+        except (ArithmeticError, ValueError, TypeError) as exc:
+            raise JobError(f"{ck.path}: [params] an expression cannot be evaluated at grid point "
+                           f"{int(i)} ({exc}).") from None
+        for key in exprs:
+            v = values[key]
+            param = declared.get(key)
+            if param is None or job.custom is not None:
+                continue
+            if isinstance(v, complex) and abs(v.imag) > 1e-12 * max(1.0, abs(v)):
+                raise ck.fail("params", key, f"an expression with a real value ({param.expectation()})",
+                              exprs[key].text, f" It evaluates to {v} at grid point {int(i)}.")
+            if not param.admits(_real(v)):
+                raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
+                              exprs[key].text, f" It evaluates to {_real(v):g} at grid point {int(i)}.")
+        if job.custom is not None:
+            tb = job.build_model(values)
+            err = tb.hermiticity_error()
+            if err > 1e-10:
+                raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "
+                               f"matrix; at grid point {int(i)} they deviate by {err:.3g} "
+                               "(use real coefficients for Hermitian matrices, or pair a term "
+                               "with its conjugate).")

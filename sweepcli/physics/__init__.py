@@ -1,0 +1,1 @@
+"""The pure core: arrays in, arrays out. Imports numpy and scipy only."""

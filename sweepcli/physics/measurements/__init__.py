@@ -1,0 +1,32 @@
+"""Registry of measurements: what can be computed at a grid point.
+
+A measurement is registered with
+
+* ``params``: its options, declared with constraints (validated once, at job load);
+* ``quantities``: the stored variables, a tuple of :class:`~sweepcli.physics.point.Quantity` or a
+  callable ``quantities(dim) -> tuple`` when they depend on the lattice dimension;
+* ``dims``: the lattice dimensions it applies to; ``driven``: ``False`` (static jobs only),
+  ``True`` (driven jobs only) or ``None`` (both); ``operators``: names of cell operators the
+  model must provide (``"chiral"``, ``"spin"``);
+
+and its function ``f(point, **options) -> dict`` returns one value per quantity plus
+``"reason"`` (a :class:`~sweepcli.physics.point.Reason`). A missing float is ``nan``, a missing
+integer ``None``; the reason says why. The variable ``<name>_reason`` is added by the store.
+"""
+
+from __future__ import annotations
+
+from ..point import Quantity
+from ..registry import Registry
+
+MEASUREMENTS: Registry = Registry("measurement")
+
+
+def quantities_of(name: str, dim: int) -> tuple[Quantity, ...]:
+    """The variables measurement ``name`` stores for a lattice of dimension ``dim``."""
+    q = MEASUREMENTS[name].extra["quantities"]
+    return tuple(q(dim) if callable(q) else q)
+
+
+# Importing the modules fills the registry.
+from . import static  # noqa: E402,F401

@@ -1,0 +1,1 @@
+"""Reading results files into summaries and pictures; never touches the physics."""

@@ -1,0 +1,186 @@
+"""``sweepcli map``: phase maps drawn with matplotlib from a results file.
+
+Integer invariants get discrete colours with a legend, gaps a continuous scale; the contour where
+the bulk gap falls to a small fraction of its range is drawn over every 2D map so that phase
+changes can be compared with gap closings. A 1D sweep draws a line plot.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import ResultsError, SweepError, suggest
+from ..store import FILL_INT, Results
+
+FORMATS = (".png", ".svg", ".pdf")
+MISSING_COLOUR = "#bbbbbb"
+GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
+
+
+def default_variable(results: Results) -> str:
+    """The first integer invariant, else the first float variable."""
+    plain = [v for v in results.variables.values() if not v.is_reason]
+    for v in plain:
+        if v.dtype == "int32" and not v.name.endswith("_kmesh"):
+            return v.name
+    if not plain:
+        raise ResultsError("the results file holds no variables to draw.")
+    return plain[0].name
+
+
+def check_variable(results: Results, var: str | None) -> str:
+    if var is None:
+        return default_variable(results)
+    if var not in results.variables:
+        names = list(results.variables)
+        raise ResultsError(f"no variable {var!r} in the results file (available: "
+                           f"{', '.join(names)}).{suggest(var, names)}")
+    return var
+
+
+def select(results: Results, at: dict[str, float]) -> tuple[list[int], tuple]:
+    """Indices of the axes to draw (at most two, longer than 1 and not fixed by ``at``) and the
+    index tuple that selects them, other axes fixed at the value nearest to ``at[name]`` (or
+    their first value)."""
+    for name in at:
+        if name not in [a.name for a in results.axes]:
+            names = [a.name for a in results.axes]
+            raise ResultsError(f"--at names {name!r}, which is not a swept parameter (swept: "
+                               f"{', '.join(names)}).{suggest(name, names)}")
+    free = [i for i, a in enumerate(results.axes) if a.name not in at and len(a.values) > 1][:2]
+    if not free:
+        free = [0]
+    index = []
+    for i, a in enumerate(results.axes):
+        if i in free:
+            index.append(slice(None))
+        else:
+            target = at.get(a.name, a.values[0])
+            index.append(int(np.argmin(np.abs(a.values - target))))
+    return free, tuple(index)
+
+
+def _edges(values: np.ndarray, log: bool) -> np.ndarray:
+    v = np.log(values) if log else np.asarray(values, float)
+    if len(v) == 1:
+        e = np.array([v[0] - 0.5, v[0] + 0.5])
+    else:
+        mid = (v[1:] + v[:-1]) / 2
+        e = np.concatenate([[2 * v[0] - mid[0]], mid, [2 * v[-1] - mid[-1]]])
+    return np.exp(e) if log else e
+
+
+def _label(axis) -> str:
+    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
+    name = axis.name if axis.long_name in ("", axis.name) else f"{axis.name} ({axis.long_name})"
+    return name + unit
+
+
+def draw_map(results: Results, out: str | Path, var: str | None = None,
+             at: dict[str, float] | None = None) -> Path:
+    """Draw ``var`` (default: the first integer invariant) to ``out``; format from the suffix."""
+    out = Path(out)
+    if out.suffix.lower() not in FORMATS:
+        raise SweepError(f"{out}: the picture format follows the suffix, which must be one of "
+                         f"{', '.join(FORMATS)}; got {out.suffix or 'none'!r}.")
+    var = check_variable(results, var)
+    free, index = select(results, at or {})
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+    from matplotlib.patches import Patch
+
+    meta = results.variables[var]
+    data = results.data[var][index]
+    done = results.done[index].astype(bool)
+    is_int = meta.dtype in ("int32", "uint8")
+    values = data.astype(float)
+    missing = ~done | ((data == FILL_INT) if meta.dtype == "int32" else ~np.isfinite(values))
+    values[missing] = np.nan
+    title = results.attrs.get("title", "")
+    fixed = [f"{a.name}={a.values[i]:g}" for a, i in zip(results.axes, index) if isinstance(i, int)
+             and len(a.values) > 1]
+    subtitle = meta.long_name + (f" at {', '.join(fixed)}" if fixed else "")
+
+    fig, ax = plt.subplots(figsize=(7, 5.2), constrained_layout=True)
+    if len(free) == 1:
+        axis = results.axes[free[0]]
+        x = axis.values
+        ax.plot(x, values, "o-" if not is_int else "o", ms=3, drawstyle="steps-mid" if is_int else "default",
+                label=var)
+        if missing.any():
+            ax.plot(x[missing], np.zeros(missing.sum()), "x", color="crimson",
+                    label="missing (see *_reason)")
+        if axis.spacing == "log":
+            ax.set_xscale("log")
+        ax.set_xlabel(_label(axis))
+        ax.set_ylabel(f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
+        gap_name = next((g for g in GAP_VARIABLES if g in results.variables and g != var), None)
+        if gap_name is not None:
+            twin = ax.twinx()
+            gap = results.data[gap_name][index].astype(float)
+            twin.plot(x, gap, "-", color="grey", lw=1, alpha=0.7, label=gap_name)
+            twin.set_ylabel(f"{gap_name} [{results.variables[gap_name].units}]", color="grey")
+            twin.set_ylim(bottom=0)
+        if is_int and np.isfinite(values).any():
+            lo, hi = int(np.nanmin(values)), int(np.nanmax(values))
+            ax.set_yticks(range(lo, hi + 1))
+        ax.legend(loc="best", fontsize=8)
+    else:
+        xa, ya = results.axes[free[0]], results.axes[free[1]]
+        grid = values.T  # pcolormesh wants rows along y (the second free axis)
+        xe, ye = _edges(xa.values, xa.spacing == "log"), _edges(ya.values, ya.spacing == "log")
+        handles = []
+        if is_int:
+            levels = sorted(set(int(v) for v in values[np.isfinite(values)]))
+            colours = list(plt.get_cmap("tab10").colors) + list(plt.get_cmap("Set3").colors)
+            if not levels:
+                levels = [0]
+            cmap = ListedColormap([colours[i % len(colours)] for i in range(len(levels))])
+            coded = np.full(grid.shape, np.nan)
+            for i, lv in enumerate(levels):
+                coded[grid == lv] = i
+            cmap.set_bad(MISSING_COLOUR)
+            norm = BoundaryNorm(np.arange(len(levels) + 1) - 0.5, len(levels))
+            ax.pcolormesh(xe, ye, np.ma.masked_invalid(coded), cmap=cmap, norm=norm,
+                          shading="flat")
+            handles = [Patch(color=cmap(i), label=f"{var} = {lv}") for i, lv in enumerate(levels)]
+            if np.isnan(grid).any():
+                handles.append(Patch(color=MISSING_COLOUR, label="missing (see *_reason)"))
+        else:
+            import copy
+
+            cmap = copy.copy(plt.get_cmap("viridis"))
+            cmap.set_bad(MISSING_COLOUR)
+            mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")
+            fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
+        gap_name = next((g for g in GAP_VARIABLES if g in results.variables), None)
+        if gap_name is not None and min(len(xa.values), len(ya.values)) > 1:
+            gap = results.data[gap_name][index].astype(float).T
+            finite = gap[np.isfinite(gap)]
+            if finite.size and finite.max() > 0:
+                level = 0.05 * finite.max()
+                ax.contour(xa.values, ya.values, gap, levels=[level], colors="k",
+                           linewidths=1.0, linestyles="--")
+                from matplotlib.lines import Line2D
+
+                handles.append(Line2D([], [], color="k", ls="--", lw=1,
+                                      label=f"{gap_name} = {level:.2g} (5% of max)"))
+        if xa.spacing == "log":
+            ax.set_xscale("log")
+        if ya.spacing == "log":
+            ax.set_yscale("log")
+        ax.set_xlabel(_label(xa))
+        ax.set_ylabel(_label(ya))
+        if handles:
+            ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1), fontsize=8,
+                      borderaxespad=0)
+    ax.set_title(f"{title}\n{subtitle}" if title else subtitle, fontsize=10)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(out, dpi=120)
+    plt.close(fig)
+    return out

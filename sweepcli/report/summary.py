@@ -1,0 +1,106 @@
+"""``sweepcli show``: provenance and a per-variable summary of a results file."""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..physics.point import Reason
+from ..store import FILL_INT, Results
+
+PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "schema_version",
+                   "sweepcli_version", "numpy_version", "scipy_version", "h5py_version",
+                   "host", "command_line", "started", "finished")
+
+
+@dataclass
+class VariableSummary:
+    name: str
+    dtype: str
+    units: str
+    long_name: str
+    present: int
+    missing: int
+    counts: dict = field(default_factory=dict)  # integer variables: value -> count
+    minimum: float | None = None
+    maximum: float | None = None
+
+
+@dataclass
+class Summary:
+    provenance: dict
+    axes: list[tuple[str, int, float, float, str]]
+    done: int
+    total: int
+    failed: list[tuple[dict, str]]
+    variables: list[VariableSummary]
+
+
+def summarise(results: Results, max_failed: int = 20) -> Summary:
+    """Structured summary; the CLI only formats it."""
+    done = results.done.astype(bool)
+    variables = []
+    for var in results.variables.values():
+        data = results.data[var.name][done]
+        if var.dtype == "int32":
+            ok = data != FILL_INT
+            counts = dict(sorted(Counter(int(v) for v in data[ok]).items()))
+            variables.append(VariableSummary(var.name, var.dtype, var.units, var.long_name,
+                                             int(ok.sum()), int((~ok).sum()), counts))
+        elif var.dtype == "uint8":
+            counts = {Reason(int(v)).name.lower(): int(c)
+                      for v, c in sorted(Counter(data.tolist()).items())}
+            variables.append(VariableSummary(var.name, var.dtype, var.units, var.long_name,
+                                             int(data.size), 0, counts))
+        else:
+            ok = np.isfinite(data)
+            vals = data[ok]
+            variables.append(VariableSummary(
+                var.name, var.dtype, var.units, var.long_name, int(ok.sum()), int((~ok).sum()),
+                minimum=float(vals.min()) if vals.size else None,
+                maximum=float(vals.max()) if vals.size else None))
+    failed = []
+    for flat in np.flatnonzero(results.failure.ravel() != "")[:max_failed]:
+        multi = np.unravel_index(flat, results.shape)
+        params = {a.name: float(a.values[i]) for a, i in zip(results.axes, multi)}
+        failed.append((params, str(results.failure.ravel()[flat])))
+    return Summary(
+        provenance={k: results.attrs.get(k, "") for k in PROVENANCE_KEYS},
+        axes=[(a.name, len(a.values), float(a.values[0]), float(a.values[-1]), a.units)
+              for a in results.axes],
+        done=int(done.sum()), total=results.size, failed=failed, variables=variables)
+
+
+def format_summary(s: Summary) -> str:
+    lines = []
+    for k, v in s.provenance.items():
+        if v:
+            lines.append(f"{k:>17}: {v}")
+    lines.append("")
+    lines.append("grid:")
+    for name, n, lo, hi, units in s.axes:
+        unit = f" [{units}]" if units and units != "1" else ""
+        lines.append(f"  {name}{unit}: {n} values from {lo:g} to {hi:g}")
+    pct = 100.0 * s.done / s.total if s.total else 100.0
+    lines.append(f"completion: {s.done}/{s.total} points ({pct:.1f}%)")
+    if s.failed:
+        lines.append(f"failed points: {len(s.failed)} shown")
+        for params, msg in s.failed:
+            where = ", ".join(f"{k}={v:g}" for k, v in params.items())
+            lines.append(f"  {where}: {msg}")
+    lines.append("")
+    lines.append("variables:")
+    for v in s.variables:
+        if v.dtype == "int32":
+            counts = ", ".join(f"{k}: {c}" for k, c in v.counts.items()) or "none"
+            lines.append(f"  {v.name} ({v.long_name}): values {counts}; missing {v.missing}")
+        elif v.dtype == "uint8":
+            counts = ", ".join(f"{k}: {c}" for k, c in v.counts.items())
+            lines.append(f"  {v.name}: {counts}")
+        else:
+            rng = (f"{v.minimum:.4g} .. {v.maximum:.4g}" if v.minimum is not None else "none")
+            unit = f" {v.units}" if v.units and v.units != "1" else ""
+            lines.append(f"  {v.name} ({v.long_name}): range {rng}{unit}; missing {v.missing}")
+    return "\n".join(lines)

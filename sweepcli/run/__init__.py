@@ -1,0 +1,1 @@
+"""Orchestration: chunks of grid points, executors, progress and checkpoints."""

@@ -1,0 +1,62 @@
+"""Progress of a sweep: a tqdm bar on a terminal, timestamped log lines otherwise.
+
+tqdm writing to a batch log puts every update on one long line, so when stderr is not a
+terminal we print a line with the same figures (done, rate, ETA) every ``interval`` seconds.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from datetime import datetime
+
+
+def _duration(seconds: float) -> str:
+    seconds = int(round(seconds))
+    h, rest = divmod(seconds, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}h{m:02d}m{s:02d}s" if h else (f"{m}m{s:02d}s" if m else f"{s}s")
+
+
+class Progress:
+    """Counts finished points of ``total``; ``already`` were done before this run started."""
+
+    def __init__(self, total: int, already: int = 0, *, stream=None, interval: float = 30.0,
+                 enabled: bool = True) -> None:
+        self.total, self.already = total, already
+        self.count = already
+        self.stream = stream if stream is not None else sys.stderr
+        self.interval = interval
+        self.enabled = enabled
+        self.start = self.last = time.monotonic()
+        self.bar = None
+        if enabled and getattr(self.stream, "isatty", lambda: False)():
+            from tqdm import tqdm
+            self.bar = tqdm(total=total, initial=already, unit="pt", file=self.stream,
+                            dynamic_ncols=True, smoothing=0.1)
+
+    def update(self, n: int) -> None:
+        self.count += n
+        if self.bar is not None:
+            self.bar.update(n)
+            return
+        now = time.monotonic()
+        if self.enabled and (now - self.last >= self.interval or self.count == self.total):
+            self.last = now
+            self.stream.write(self.line() + "\n")
+            self.stream.flush()
+
+    def line(self) -> str:
+        elapsed = time.monotonic() - self.start
+        new = self.count - self.already
+        rate = new / elapsed if elapsed > 0 else 0.0
+        eta = (self.total - self.count) / rate if rate > 0 else float("nan")
+        stamp = datetime.now().strftime("%Y-%m-%d %H:%M:%S")
+        pct = 100.0 * self.count / self.total if self.total else 100.0
+        eta_s = _duration(eta) if eta == eta else "?"
+        return (f"[{stamp}] {self.count}/{self.total} points ({pct:.0f}%), "
+                f"{rate:.3g} points/s, elapsed {_duration(elapsed)}, ETA {eta_s}")
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()

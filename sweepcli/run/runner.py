@@ -1,0 +1,108 @@
+"""The sweep loop: pending points in chunks through an executor, checkpoints to the store.
+
+Only this (parent) process writes the results file. Workers return ``(index, values, failure)``
+records; the parent stores them in memory and writes a complete file at each checkpoint
+(every ``checkpoint_every`` seconds, at the end, and when the run is interrupted).
+"""
+
+from __future__ import annotations
+
+import math
+import signal
+import time
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import SweepError
+from ..jobfile import Job
+from ..store import Results
+from .executors import make_executor
+from .progress import Progress
+from .worker import evaluate_chunk
+
+
+class Interrupted(SweepError):
+    """SIGINT or SIGTERM arrived; finished points were saved."""
+
+
+@dataclass
+class RunSummary:
+    done: int
+    total: int
+    failed: int
+    interrupted: bool
+    seconds: float
+
+
+def pending_indices(results: Results, selection: np.ndarray | None = None) -> np.ndarray:
+    """Flat indices not yet done (optionally within ``selection``), ascending."""
+    todo = np.flatnonzero(results.done.ravel() == 0)
+    if selection is not None:
+        todo = np.intersect1d(todo, selection, assume_unique=True)
+    return todo
+
+
+def chunks(todo: np.ndarray, chunk_size: int) -> Iterator[np.ndarray]:
+    """Strided chunks: chunk j holds todo[j::m], so each mixes points from the whole grid and
+    chunks cost about the same (load balance) whatever region of parameters is expensive."""
+    m = max(1, math.ceil(len(todo) / chunk_size))
+    for j in range(m):
+        yield todo[j::m]
+
+
+def default_chunk_size(n_points: int, workers: int) -> int:
+    # Several chunks per worker for load balance, and not so many that process overhead shows.
+    return max(1, min(64, math.ceil(n_points / (8 * workers))))
+
+
+def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int | None = None,
+              checkpoint: Callable[[Results], None] | None = None, checkpoint_every: float = 60.0,
+              progress: bool = True, selection: np.ndarray | None = None,
+              executor=None) -> RunSummary:
+    """Evaluate every pending point of ``job`` into ``results``.
+
+    ``checkpoint(results)`` is called every ``checkpoint_every`` seconds, at the end and on
+    interruption; SIGTERM is turned into the same clean stop as Ctrl-C.
+    """
+    start = time.monotonic()
+    todo = pending_indices(results, selection)
+    total = len(todo) if selection is None else len(selection)
+    already = total - len(todo)
+    executor = executor or make_executor(workers)
+    size = chunk_size or default_chunk_size(len(todo), executor.workers)
+    bar = Progress(total, already, enabled=progress)
+    interrupted = False
+    last = time.monotonic()
+    previous = signal.getsignal(signal.SIGTERM)
+
+    def on_term(signum, frame):
+        raise KeyboardInterrupt
+
+    try:
+        signal.signal(signal.SIGTERM, on_term)
+    except ValueError:  # not the main thread: leave signals alone
+        previous = None
+    try:
+        tasks = ((job, c) for c in chunks(todo, size))
+        for records in executor.imap(evaluate_chunk, tasks):
+            for index, values, failure in records:
+                results.record(index, values, failure)
+            bar.update(len(records))
+            if checkpoint is not None and time.monotonic() - last >= checkpoint_every:
+                checkpoint(results)
+                last = time.monotonic()
+    except KeyboardInterrupt:
+        interrupted = True
+    finally:
+        bar.close()
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+        if checkpoint is not None:
+            checkpoint(results)
+    sel_done = results.done.ravel() if selection is None else results.done.ravel()[selection]
+    failed = results.failure.ravel() if selection is None else results.failure.ravel()[selection]
+    return RunSummary(done=int(sel_done.sum()), total=total,
+                      failed=int(np.count_nonzero(failed != "")), interrupted=interrupted,
+                      seconds=time.monotonic() - start)

@@ -1,0 +1,35 @@
+"""What runs in a worker process: evaluate the measurements of a chunk of grid points."""
+
+from __future__ import annotations
+
+from ..jobfile import Job
+from ..physics.measurements import MEASUREMENTS, quantities_of
+from ..physics.point import Reason
+
+Record = tuple[int, dict, str]
+
+
+def evaluate_point(job: Job, index: int) -> Record:
+    """All measurements of flat grid point ``index``: ``(index, values, failure message)``.
+
+    A measurement that raises is recorded as missing with ``Reason.FAILED`` and its message, and
+    the other measurements (and the sweep) go on.
+    """
+    point = job.point(index)
+    values: dict = {}
+    failures = []
+    for name, options in job.measurements:
+        try:
+            result = dict(MEASUREMENTS[name].func(point, **dict(options)))
+            reason = result.pop("reason")
+        except Exception as exc:  # noqa: BLE001 - any failure of one point is recorded, not fatal
+            result = {q.name: None for q in quantities_of(name, job.dim)}
+            reason = Reason.FAILED
+            failures.append(f"{name}: {type(exc).__name__}: {exc}")
+        values.update(result)
+        values[f"{name}_reason"] = int(reason)
+    return index, values, "; ".join(failures)
+
+
+def evaluate_chunk(job: Job, indices) -> list[Record]:
+    return [evaluate_point(job, int(i)) for i in indices]

@@ -1,0 +1,207 @@
+"""The results of one sweep, held in memory and written to HDF5 (layout: results-schema.md).
+
+Why in memory: an HDF5 file that is modified in place and then killed is often unreadable
+(measured: ecosystem-notes.md), so the parent process keeps every array in memory and each
+checkpoint writes a complete new file ``OUT.tmp``, flushes and fsyncs it, and renames it over
+``OUT``. A reader can open ``OUT`` at any moment and sees the last checkpoint.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ..errors import ResultsError
+from ..physics.point import Reason
+
+SCHEMA_VERSION = "1"
+MARKER = "sweepcli_schema"
+FILL_INT = np.int32(np.iinfo(np.int32).min)
+REASON_FLAGS = " ".join(r.name.lower() for r in Reason)
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One stored grid-shaped variable."""
+
+    name: str
+    dtype: str  # "float64", "int32" or "uint8" (reason codes)
+    units: str
+    long_name: str
+    measurement: str  # the measurement that produced it
+
+    @property
+    def is_reason(self) -> bool:
+        return self.name.endswith("_reason") and self.dtype == "uint8"
+
+    def missing(self):
+        return {"float64": np.nan, "int32": FILL_INT, "uint8": np.uint8(Reason.NOT_COMPUTED)}[self.dtype]
+
+
+@dataclass(frozen=True)
+class AxisData:
+    name: str
+    values: np.ndarray
+    units: str
+    long_name: str
+    spacing: str
+
+
+class Results:
+    """Grid-shaped results of one sweep plus the provenance attributes.
+
+    ``data[name]`` has the grid shape; ``done`` (uint8) is 1 where a point was evaluated;
+    ``failure`` holds the error message of a point whose evaluation raised ("" otherwise).
+    """
+
+    def __init__(self, axes: list[AxisData], variables: list[Variable],
+                 attrs: Mapping[str, str]) -> None:
+        self.axes = list(axes)
+        self.variables = {v.name: v for v in variables}
+        self.attrs = dict(attrs)
+        shape = self.shape
+        self.data = {v.name: np.full(shape, v.missing(), dtype=v.dtype) for v in variables}
+        self.done = np.zeros(shape, dtype=np.uint8)
+        self.failure = np.full(shape, "", dtype=object)
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return tuple(len(a.values) for a in self.axes)
+
+    @property
+    def size(self) -> int:
+        return int(np.prod(self.shape, dtype=np.int64))
+
+    @property
+    def n_done(self) -> int:
+        return int(self.done.sum())
+
+    def axis(self, name: str) -> AxisData:
+        return next(a for a in self.axes if a.name == name)
+
+    def record(self, index: int, values: Mapping[str, object], failure: str = "") -> None:
+        """Store the values of flat grid point ``index``; its completion bit is set last."""
+        multi = np.unravel_index(index, self.shape)
+        for name, value in values.items():
+            var = self.variables[name]
+            if value is None or (var.dtype == "int32" and isinstance(value, float) and np.isnan(value)):
+                value = var.missing()
+            self.data[name][multi] = value
+        self.failure[multi] = failure
+        self.done[multi] = 1
+
+    # ----------------------------------------------------------------- files
+    def write(self, path: str | Path) -> None:
+        """Write a complete file to ``path.tmp``, fsync it and rename it over ``path``."""
+        path = Path(path)
+        tmp = path.with_name(path.name + ".tmp")
+        try:
+            with h5py.File(tmp, "w") as f:
+                self._fill(f)
+            with open(tmp, "rb") as fh:
+                os.fsync(fh.fileno())
+            os.replace(tmp, path)
+        except OSError as exc:
+            tmp.unlink(missing_ok=True)
+            raise ResultsError(f"{path}: cannot write the results file ({exc.strerror or exc}).") from None
+        try:
+            dir_fd = os.open(path.parent if str(path.parent) else ".", os.O_RDONLY)
+            try:
+                os.fsync(dir_fd)
+            finally:
+                os.close(dir_fd)
+        except OSError:
+            pass  # directory fsync is best effort (not supported on every file system)
+
+    def _fill(self, f: h5py.File) -> None:
+        for key, value in self.attrs.items():
+            f.attrs[key] = value
+        f.attrs[MARKER] = SCHEMA_VERSION
+        f.attrs["axes"] = ",".join(a.name for a in self.axes)
+        f.attrs["variables"] = ",".join(self.variables)
+        scales = []
+        for a in self.axes:
+            ds = f.create_dataset(a.name, data=np.asarray(a.values, dtype=np.float64))
+            ds.make_scale(a.name)
+            ds.attrs["units"] = a.units
+            ds.attrs["long_name"] = a.long_name
+            ds.attrs["spacing"] = a.spacing
+            scales.append(ds)
+        compress = dict(compression="gzip", shuffle=True) if self.size > 1 else {}
+
+        def grid_dataset(name: str, data: np.ndarray, **kw) -> h5py.Dataset:
+            ds = f.create_dataset(name, data=data, **kw)
+            for i, scale in enumerate(scales):
+                ds.dims[i].attach_scale(scale)
+            return ds
+
+        for var in self.variables.values():
+            ds = grid_dataset(var.name, self.data[var.name], **compress)
+            ds.attrs["units"] = var.units
+            ds.attrs["long_name"] = var.long_name
+            ds.attrs["measurement"] = var.measurement
+            if var.dtype == "int32":
+                ds.attrs["_FillValue"] = FILL_INT
+            elif var.dtype == "uint8":
+                ds.attrs["flag_values"] = np.array([int(r) for r in Reason], dtype=np.uint8)
+                ds.attrs["flag_meanings"] = REASON_FLAGS
+        ds = grid_dataset("done", self.done, **compress)
+        ds.attrs["long_name"] = "point evaluated (1) or not yet (0)"
+        ds.attrs["units"] = "1"
+        ds = grid_dataset("failure", self.failure.astype(object),
+                          dtype=h5py.string_dtype("utf-8"), **compress)
+        ds.attrs["long_name"] = "error message of a point whose evaluation failed"
+
+    @classmethod
+    def read(cls, path: str | Path) -> Results:
+        """Read a results file written by :meth:`write`.
+
+        Raises
+        ------
+        ResultsError
+            If the file is missing, truncated, corrupt or not a sweepcli results file.
+        """
+        path = Path(path)
+        if not path.exists():
+            raise ResultsError(f"{path}: no such results file.")
+        try:
+            with h5py.File(path, "r") as f:
+                if MARKER not in f.attrs:
+                    raise ResultsError(f"{path}: not a sweepcli results file (no "
+                                       f"{MARKER!r} attribute).")
+                return cls._from_file(f)
+        except ResultsError:
+            raise
+        except (OSError, KeyError, ValueError) as exc:
+            raise ResultsError(f"{path}: cannot be read as a sweepcli results file; it may be "
+                               f"truncated or corrupt ({exc}).") from None
+
+    @classmethod
+    def _from_file(cls, f: h5py.File) -> Results:
+        attrs = {k: _text(v) for k, v in f.attrs.items() if k not in (MARKER, "axes", "variables")}
+        names = [n for n in _text(f.attrs["axes"]).split(",") if n]
+        axes = [AxisData(n, f[n][()], _text(f[n].attrs["units"]), _text(f[n].attrs["long_name"]),
+                         _text(f[n].attrs["spacing"])) for n in names]
+        variables = []
+        for name in (n for n in _text(f.attrs["variables"]).split(",") if n):
+            ds = f[name]
+            variables.append(Variable(name, str(ds.dtype), _text(ds.attrs["units"]),
+                                      _text(ds.attrs["long_name"]), _text(ds.attrs["measurement"])))
+        out = cls(axes, variables, attrs)
+        for v in variables:
+            out.data[v.name] = f[v.name][()]
+        out.done = f["done"][()]
+        out.failure = np.array(f["failure"].asstr()[()], dtype=object).reshape(out.shape)
+        return out
+
+
+
+def _text(value: object) -> str:
+    if isinstance(value, bytes):
+        return value.decode("utf-8")
+    return str(value)
