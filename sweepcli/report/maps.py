@@ -62,6 +62,25 @@ def select(results: Results, at: dict[str, float]) -> tuple[list[int], tuple]:
     return free, tuple(index)
 
 
+def closing_nodes(gap: np.ndarray) -> np.ndarray:
+    """Grid nodes nearest to a gap closing.
+
+    Near a closing the gap is V-shaped, ``|s| * distance``; a node whose gap is at most half
+    the largest change to a neighbour lies within about half a cell of the zero.
+    """
+    gap = np.where(np.isfinite(gap), gap, np.inf)
+    change = np.zeros_like(gap)
+    for axis in range(gap.ndim):
+        d = np.abs(np.diff(gap, axis=axis))
+        d = np.where(np.isfinite(d), d, 0.0)
+        pad = [(0, 0)] * gap.ndim
+        pad[axis] = (1, 0)
+        change = np.maximum(change, np.pad(d, pad))
+        pad[axis] = (0, 1)
+        change = np.maximum(change, np.pad(d, pad))
+    return np.isfinite(gap) & (gap <= 0.5 * change)
+
+
 def _edges(values: np.ndarray, log: bool) -> np.ndarray:
     v = np.log(values) if log else np.asarray(values, float)
     if len(v) == 1:
@@ -159,17 +178,16 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")
             fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
         gap_name = next((g for g in GAP_VARIABLES if g in results.variables), None)
-        if gap_name is not None and min(len(xa.values), len(ya.values)) > 1:
-            gap = results.data[gap_name][index].astype(float).T
-            finite = gap[np.isfinite(gap)]
-            if finite.size and finite.max() > 0:
-                level = 0.05 * finite.max()
-                ax.contour(xa.values, ya.values, gap, levels=[level], colors="k",
-                           linewidths=1.0, linestyles="--")
+        if gap_name is not None:
+            gap = results.data[gap_name][index].astype(float)
+            closing = closing_nodes(gap)
+            if closing.any():
+                gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")
+                ax.plot(gx[closing], gy[closing], "k.", ms=3)
                 from matplotlib.lines import Line2D
 
-                handles.append(Line2D([], [], color="k", ls="--", lw=1,
-                                      label=f"{gap_name} = {level:.2g} (5% of max)"))
+                handles.append(Line2D([], [], color="k", marker=".", ls="", ms=4,
+                                      label=f"{gap_name} closes within half a cell"))
         if xa.spacing == "log":
             ax.set_xscale("log")
         if ya.spacing == "log":

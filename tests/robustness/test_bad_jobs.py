@@ -1,0 +1,177 @@
+"""Bad job files: each exits with code 2 and one message naming the file, key and expectation,
+and leaves no results file behind."""
+
+import re
+
+import pytest
+from typer.testing import CliRunner
+
+from sweepcli.cli import app
+
+GOOD = """
+[job]
+name = "small"
+[model]
+name = "qwz"
+[params]
+t = 1.0
+[sweep]
+m = { start = -1.0, stop = 1.0, num = 3 }
+[measure.gap]
+[output]
+path = "OUT"
+"""
+
+
+def run_bad(tmp_path, text):
+    out = tmp_path / "out.h5"
+    job = tmp_path / "bad.toml"
+    job.write_text(text.replace("OUT", str(out)))
+    result = CliRunner().invoke(app, ["run", str(job)])
+    assert result.exit_code == 2, result.output
+    assert not out.exists() and not (tmp_path / "out.h5.tmp").exists()
+    lines = [ln for ln in result.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.output
+    return lines[0].removeprefix("error: ").replace(str(job), "JOB")
+
+
+def test_good_job_runs(tmp_path):
+    job = tmp_path / "good.toml"
+    job.write_text(GOOD.replace("OUT", str(tmp_path / "out.h5")))
+    result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
+    assert result.exit_code == 0, result.output
+    assert (tmp_path / "out.h5").exists()
+
+
+def test_malformed_toml_names_line_and_column(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "t = = 1.0"))
+    assert re.match(r"JOB:7:5: invalid TOML: Invalid value", msg), msg
+
+
+def test_unknown_table_suggests(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("[sweep]", "[sweeps]"))
+    assert msg == ("JOB: unknown table [sweeps] (allowed: job, model, params, sweep, drive, "
+                   "measure, output). Did you mean 'sweep'?")
+
+
+def test_unknown_parameter_suggests(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "tt = 1.0"))
+    assert msg == "JOB: [params] has an unknown parameter 'tt' (allowed: m, t). Did you mean 't'?"
+
+
+def test_float_for_a_count_is_refused(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("num = 3", "num = 3.0"))
+    assert msg == "JOB: [sweep.m] num must be an integer in [1, inf); got 3.0."
+
+
+def test_boolean_is_never_a_number(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "t = true"))
+    assert msg == "JOB: [params] t must be a real number; got true."
+
+
+def test_integer_accepted_for_a_real(tmp_path):
+    job = tmp_path / "int.toml"
+    job.write_text(GOOD.replace("t = 1.0", "t = 1").replace("OUT", str(tmp_path / "o.h5")))
+    assert CliRunner().invoke(app, ["check", str(job)]).exit_code == 0
+
+
+def test_empty_list_range(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("m = { start = -1.0, stop = 1.0, num = 3 }", "m = []"))
+    assert msg.startswith("JOB: [sweep] m must be a list of values or a table")
+    assert msg.endswith("got []. The list is empty.")
+
+
+def test_empty_linear_range(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("stop = 1.0", "stop = -1.0"))
+    assert msg == ("JOB: [sweep.m] stop must be different from start when num > 1; got -1.0. "
+                   "The range is empty.")
+
+
+def test_unknown_model_suggests(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace('name = "qwz"', 'name = "qzw"'))
+    assert msg.startswith("JOB: [model] name must be a built-in model or \"custom\"")
+    assert msg.endswith("got 'qzw'. Did you mean 'qwz'?")
+
+
+def test_code_in_an_expression_is_refused(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "t = \"__import__('os').system('x')\""))
+    assert msg.startswith("JOB: [params] t must be a number or an arithmetic expression; got")
+    assert "which is not an allowed function" in msg
+
+
+def test_expression_naming_unknown_parameter(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", 't = "2*mm"'))
+    assert msg == ("JOB: [params] t must be an expression of defined parameters; got '2*mm'. "
+                   "'mm' is not defined in [params] or [sweep]. Did you mean 'm'?")
+
+
+def test_expression_cycle(tmp_path):
+    text = GOOD.replace("t = 1.0", 't = "2*u"\nu = "t/2"')
+    msg = run_bad(tmp_path, text)
+    assert "refer to each other in a cycle" in msg
+
+
+def test_required_model_parameter_missing(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("m = { start = -1.0, stop = 1.0, num = 3 }",
+                                         "t = { start = 0.5, stop = 1.0, num = 2 }")
+                  .replace("t = 1.0\n", ""))
+    assert msg.startswith("JOB: [params] m is required by model 'qwz'")
+
+
+def test_unknown_measurement_suggests(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("[measure.gap]", "[measure.chrn]"))
+    assert msg.startswith("JOB: [measure] has an unknown measurement 'chrn'")
+    assert msg.endswith("Did you mean 'chern'?")
+
+
+def test_no_measurement(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("[measure.gap]", ""))
+    assert msg.startswith("JOB: [measure] must be a table with at least one measurement")
+
+
+def test_measurement_needing_an_operator(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("[measure.gap]", "[measure.spin_chern]"))
+    assert msg == "JOB: [measure.spin_chern] needs a model with a 'spin' operator; model 'qwz' has none."
+
+
+def test_measurement_for_the_wrong_dimension(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("[measure.gap]", "[measure.winding]"))
+    assert msg.startswith("JOB: [measure.winding] applies to 1D lattices; model 'qwz' is 2D.")
+
+
+CUSTOM = """
+[model]
+name = "custom"
+lattice = "chain"
+orbitals = 2
+[[model.onsite]]
+matrix = "x"
+coeff = "v"
+[[model.onsite]]
+matrix = "y"
+coeff = "1j*v"
+[[model.hopping]]
+d = [1]
+matrix = [[0, 0], [1, 0]]
+coeff = "w"
+[params]
+w = 1.0
+[sweep]
+v = [0.5, 1.5]
+[measure.gap]
+[output]
+path = "OUT"
+"""
+
+
+def test_non_hermitian_custom_model(tmp_path):
+    msg = run_bad(tmp_path, CUSTOM)
+    assert msg.startswith("JOB: [[model.onsite]] terms must add up to a Hermitian matrix; at grid "
+                          "point 0 they deviate by")
+
+
+def test_custom_model_matrix_of_the_wrong_size(tmp_path):
+    msg = run_bad(tmp_path, CUSTOM.replace('matrix = "y"', 'matrix = "yy"').replace("1j*v", "v"))
+    assert msg == ("JOB: [model.onsite.1] matrix must be a Pauli word such as \"zx\" or a square "
+                   "matrix of numbers of size 2; got 'a matrix of size 4'.")
