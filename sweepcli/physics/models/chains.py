@@ -58,8 +58,11 @@ def kitaev(*, mu: float, t: float = 1.0, delta: float = 1.0) -> TightBinding:
     at ``k = pi`` for ``mu = +2t`` (and along the whole line ``|mu| < 2|t|`` only if
     ``delta = 0``). Phases (Kitaev 2001): topological, one Majorana mode at each end and winding
     number ``|nu| = 1``, for ``|mu| < 2|t|`` and ``delta != 0``; trivial for ``|mu| > 2|t|``.
-    With the winding convention of :func:`sweepcli.physics.invariants.winding_number`,
-    ``nu = sign(t delta)``... see the tests for the sign actually produced.
+    In the eigenbasis ``|+-> = (1, +-1)/sqrt(2)`` of ``tau_x`` the off-diagonal block is
+    ``h(k) = <-|H|+> = -2 t cos k - mu - 2 i delta sin k``, so with the convention of
+    :func:`sweepcli.physics.invariants.winding_number` the winding is
+    ``nu = sign(t delta)`` for ``|mu| < 2|t|`` (``mu = 0``: ``h = -2 t e^{ik}`` for
+    ``delta = t``) and 0 for ``|mu| > 2|t|``.
     """
     tz, ty = pauli("z"), pauli("y")
     terms = [fourier_term((1,), cos=-2.0 * t * tz, sin=2.0 * delta * ty)]
