@@ -69,56 +69,114 @@ def _parse_at(items: list[str]) -> dict[str, float]:
 @app.command()
 def run(ctx: typer.Context,
         job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
-        output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Results file (default: [output] path of the job).")] = None,
+        output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Results file (default: [output] path of the job, with a shard suffix for a shard).")] = None,
         workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes.")] = 1,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
-        resume: Annotated[bool, typer.Option("--resume", help="Continue an interrupted run in its results file.")] = False,
+        resume: Annotated[bool, typer.Option("--resume", help="Continue the results file if it exists (same job only); start it otherwise.")] = False,
+        shard: Annotated[Optional[str], typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
         chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
+        scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
+        dask_cluster: Annotated[Optional[str], typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
         ) -> None:
-    """Evaluate every grid point of JOB and write one HDF5 results file."""
+    """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
     from .jobfile import load_job
     from .run.runner import run_sweep
+    from .run.shards import parse_shard
     from .store import Results
     from .store.provenance import new_results, now
 
+    client = cluster = None
     try:
         job = load_job(job_file)
+        part = parse_shard(shard) if shard is not None else None
         out = output or Path(job.output)
+        if part is not None and output is None:
+            out = out.with_name(out.stem + part.suffix() + out.suffix)
         if force and resume:
             raise SweepError("--force and --resume exclude each other: --force starts afresh, "
                              "--resume continues the existing file.")
-        if resume:
+        if scheduler and dask_cluster:
+            raise SweepError("give --scheduler or --dask-cluster, not both.")
+        if resume and out.exists():
             results = Results.read(out)
             if results.attrs.get("job_sha256") != job.sha256:
                 raise SweepError(f"{out}: was written by a different job (sha256 "
                                  f"{results.attrs.get('job_sha256', '?')[:12]}, this job "
                                  f"{job.sha256[:12]}); refusing to resume. Run without --resume "
                                  "and with -o NEW_FILE, or --force to start afresh.")
+            if results.attrs.get("shard", "") != (part.label() if part else ""):
+                raise SweepError(f"{out}: holds shard {results.attrs.get('shard') or 'none'!r}, "
+                                 f"not {part.label() if part else 'none'!r}; refusing to resume.")
             results.attrs["command_line"] += " ; " + " ".join(sys.argv)
         else:
             if out.exists() and not force:
                 raise SweepError(f"{out}: exists; refusing to overwrite it. Use --force to start "
                                  "afresh or --resume to continue it.")
             results = new_results(job)
+            if part is not None:
+                results.attrs["shard"] = part.label()
+        executor = None
+        if scheduler or dask_cluster:
+            from .run.executors import DaskExecutor, connect_dask
+
+            client, cluster = connect_dask(scheduler, dask_cluster)
+            executor = DaskExecutor(client)
         out.parent.mkdir(parents=True, exist_ok=True)
         results.write(out)
         summary = run_sweep(job, results, workers=workers, chunk_size=chunk_size,
                             checkpoint=lambda r: r.write(out), checkpoint_every=checkpoint_every,
-                            progress=progress)
+                            progress=progress, executor=executor,
+                            selection=part.indices(job.size) if part else None)
         if not summary.interrupted:
             results.attrs["finished"] = now()
             results.write(out)
     except SweepError as exc:
         _fail(ctx, exc)
         return
+    finally:
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
     failed = f", {summary.failed} failed (see `sweepcli show {out}`)" if summary.failed else ""
     if summary.interrupted:
+        again = " ".join(["sweepcli run", str(job_file), "-o", str(out), "--resume"]
+                         + (["--shard", part.label()] if part else []))
         typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
-                   f"Resume with: sweepcli run {job_file} -o {out} --resume", err=True)
+                   f"Resume with: {again}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
     typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
+
+
+@app.command()
+def merge(ctx: typer.Context,
+          output: Annotated[Path, typer.Argument(help="Merged results file.", metavar="OUT")],
+          shards: Annotated[list[Path], typer.Argument(help="Shard results files.", metavar="SHARD...")],
+          partial: Annotated[bool, typer.Option("--partial", help="Write the merged file even if points are missing.")] = False,
+          force: Annotated[bool, typer.Option("--force", help="Overwrite OUT.")] = False,
+          ) -> None:
+    """Merge the shard files of one job into OUT, checking that they belong together."""
+    from .store.merge import merge_results
+
+    try:
+        if output.exists() and not force:
+            raise SweepError(f"{output}: exists; refusing to overwrite it. Use --force.")
+        merged, report = merge_results(shards)
+        if not report.complete:
+            first = "; ".join(", ".join(f"{k}={v:g}" for k, v in p.items()) for p in report.missing)
+            msg = (f"{report.n_missing} of {report.total} points are in none of the {report.files} "
+                   f"shards (first: {first})")
+            if not partial:
+                raise SweepError(msg + "; refusing to merge an incomplete set (use --partial).")
+            typer.echo(f"warning: {msg}.", err=True)
+        output.parent.mkdir(parents=True, exist_ok=True)
+        merged.write(output)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"merged {report.files} shards: {report.done}/{report.total} points -> {output}")
 
 
 @app.command()
@@ -144,6 +202,40 @@ def check(ctx: typer.Context,
         typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
     typer.echo(f"cost estimate: {cost.format()}")
     typer.echo(f"output: {job.output}")
+
+
+@app.command()
+def batch(ctx: typer.Context,
+          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+          tasks: Annotated[int, typer.Option("--tasks", "-n", min=1, help="Array tasks (shards).")] = 10,
+          workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes per task.")] = 1,
+          directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
+          force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
+          ) -> None:
+    """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
+    from .jobfile import load_job
+    from .run.batch import plan, scripts
+
+    try:
+        job = load_job(job_file)
+        if tasks > job.size:
+            raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
+        p = plan(job, tasks, workers)
+        texts = scripts(job, str(job_file), p)
+        directory.mkdir(parents=True, exist_ok=True)
+        for name in texts:
+            if (directory / name).exists() and not force:
+                raise SweepError(f"{directory / name}: exists; refusing to overwrite it. Use --force.")
+        for name, text in texts.items():
+            (directory / name).write_text(text)
+            (directory / name).chmod(0o755)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"{tasks} tasks of about {p.points_per_task} points, {p.workers} workers, "
+               f"wall time {p.walltime_s // 60} min, memory {p.memory_mb} MiB per task")
+    for name in texts:
+        typer.echo(f"  wrote {directory / name}")
 
 
 @app.command()
@@ -202,3 +294,6 @@ def models(ctx: typer.Context) -> None:
         for p in e.params:
             default = "" if p.required else f" = {p.default}"
             typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")
+
+
+# --- report commands (diff, terminal maps, export) below this line ---

@@ -199,6 +199,19 @@ class _Checker:
             return value
         raise AssertionError(f"undeclared parameter kind {param.kind!r}")
 
+    def constant(self, table: str, key: str, value: object) -> object:
+        """A number, or a string holding an expression of constants only (``"-pi"``)."""
+        if not isinstance(value, str):
+            return value
+        try:
+            result = _constant(value)
+        except (ValueError, ExpressionError, ArithmeticError):
+            raise self.fail(table, key, "a number or an expression of constants such as "
+                            "\"pi/2\"", value) from None
+        if isinstance(result, complex):
+            raise self.fail(table, key, "a real number", value)
+        return float(result)
+
     def matrix(self, table: str, key: str, value: object, size: int | None = None) -> np.ndarray:
         """A Pauli word (``"zx"``) or a square list of numbers / constant expressions."""
         expected = ("a Pauli word such as \"zx\" or a square matrix of numbers"
@@ -430,7 +443,7 @@ def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
     if isinstance(value, list):
         if not value:
             raise ck.fail("sweep", key, spec_help, value, " The list is empty.")
-        vals = tuple(ck.number("sweep", key, v, param) for v in value)
+        vals = tuple(ck.number("sweep", key, ck.constant("sweep", key, v), param) for v in value)
         return Axis(key, tuple(float(v) for v in vals), "list")
     if not isinstance(value, dict):
         raise ck.fail("sweep", key, spec_help, value)
@@ -440,8 +453,10 @@ def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
     for k in ("start", "stop", "num"):
         if k not in value:
             raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
-    start = ck.number(f"sweep.{key}", "start", value["start"], Param("start"))
-    stop = ck.number(f"sweep.{key}", "stop", value["stop"], Param("stop"))
+    start = ck.number(f"sweep.{key}", "start", ck.constant(f"sweep.{key}", "start", value["start"]),
+                      Param("start"))
+    stop = ck.number(f"sweep.{key}", "stop", ck.constant(f"sweep.{key}", "stop", value["stop"]),
+                     Param("stop"))
     num = ck.number(f"sweep.{key}", "num", value["num"], Param("num", kind="int", low=1))
     spacing = value.get("spacing", "linear")
     if spacing not in ("linear", "log"):

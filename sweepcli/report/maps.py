@@ -159,11 +159,11 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             colours = list(plt.get_cmap("tab10").colors) + list(plt.get_cmap("Set3").colors)
             if not levels:
                 levels = [0]
-            cmap = ListedColormap([colours[i % len(colours)] for i in range(len(levels))])
+            cmap = ListedColormap([colours[i % len(colours)] for i in range(len(levels))]
+                                  ).with_extremes(bad=MISSING_COLOUR)
             coded = np.full(grid.shape, np.nan)
             for i, lv in enumerate(levels):
                 coded[grid == lv] = i
-            cmap.set_bad(MISSING_COLOUR)
             norm = BoundaryNorm(np.arange(len(levels) + 1) - 0.5, len(levels))
             ax.pcolormesh(xe, ye, np.ma.masked_invalid(coded), cmap=cmap, norm=norm,
                           shading="flat")
@@ -171,10 +171,7 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             if np.isnan(grid).any():
                 handles.append(Patch(color=MISSING_COLOUR, label="missing (see *_reason)"))
         else:
-            import copy
-
-            cmap = copy.copy(plt.get_cmap("viridis"))
-            cmap.set_bad(MISSING_COLOUR)
+            cmap = plt.get_cmap("viridis").with_extremes(bad=MISSING_COLOUR)
             mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")
             fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
         gap_name = next((g for g in GAP_VARIABLES if g in results.variables), None)

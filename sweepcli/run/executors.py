@@ -39,3 +39,88 @@ class JoblibExecutor:
 
 def make_executor(workers: int):
     return SerialExecutor() if workers == 1 else JoblibExecutor(workers)
+
+
+class DaskExecutor:
+    """dask.distributed: tasks submitted to a client, at most ``2 * workers`` in flight."""
+
+    def __init__(self, client) -> None:
+        self.client = client
+        info = client.scheduler_info()
+        self.workers = max(1, sum(w.get("nthreads", 1) for w in info.get("workers", {}).values()))
+
+    def imap(self, func: Callable, tasks: Iterable[tuple]) -> Iterator[Any]:
+        from distributed import as_completed
+
+        tasks = iter(tasks)
+        pending = as_completed()
+        for args in tasks:
+            pending.add(self.client.submit(func, *args, pure=False))
+            if pending.count() >= 2 * self.workers:
+                break
+        for future in pending:
+            result = future.result()
+            future.release()
+            nxt = next(tasks, None)
+            if nxt is not None:
+                pending.add(self.client.submit(func, *nxt, pure=False))
+            yield result
+
+
+def _probe() -> str:
+    import sweepcli
+
+    return sweepcli.__version__
+
+
+def connect_dask(address: str | None = None, cluster: str | None = None, *, wait: float = 600.0):
+    """A dask client: to a running scheduler at ``address``, or to a new cluster
+    ``cluster`` = ``local:N``, ``slurm:N`` or ``pbs:N`` (N worker jobs; dask-jobqueue reads the
+    queue, account, cores and memory from its configuration file).
+
+    Raises a SweepError naming the install extra when dask is missing, and checks that the
+    workers can import sweepcli (a scheduler whose workers cannot hangs without an error).
+    """
+    from ..errors import SweepError
+
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise SweepError("the dask engine needs the 'cluster' extra: "
+                         "pip install 'sweepcli[cluster]'.") from None
+    made = None
+    if cluster is not None:
+        kind, _, count = cluster.partition(":")
+        try:
+            n = int(count)
+        except ValueError:
+            n = 0
+        if kind not in ("local", "slurm", "pbs") or n < 1:
+            raise SweepError(f"--dask-cluster must be local:N, slurm:N or pbs:N; got {cluster!r}.")
+        if kind == "local":
+            made = LocalCluster(n_workers=n, threads_per_worker=1, host="127.0.0.1",
+                                dashboard_address=None)
+        else:
+            try:
+                import dask_jobqueue
+            except ImportError:
+                raise SweepError("--dask-cluster slurm/pbs needs dask-jobqueue: "
+                                 "pip install 'sweepcli[cluster]'.") from None
+            made = (dask_jobqueue.SLURMCluster if kind == "slurm" else dask_jobqueue.PBSCluster)()
+            made.scale(jobs=n)
+        client = Client(made)
+    else:
+        try:
+            client = Client(address, timeout=60)
+        except OSError as exc:
+            raise SweepError(f"--scheduler {address}: cannot connect ({exc}).") from None
+    try:
+        client.wait_for_workers(1, timeout=wait)
+        client.submit(_probe, pure=False).result(timeout=wait)
+    except Exception as exc:  # noqa: BLE001 - any failure here means the engine is unusable
+        client.close()
+        if made is not None:
+            made.close()
+        raise SweepError(f"the dask workers did not start or cannot import sweepcli ({exc}); "
+                         "install sweepcli in the workers' environment.") from None
+    return client, made

@@ -23,8 +23,8 @@ from .progress import Progress
 from .worker import evaluate_chunk
 
 
-class Interrupted(SweepError):
-    """SIGINT or SIGTERM arrived; finished points were saved."""
+class WorkerDied(SweepError):
+    """A worker process died (killed, out of memory); finished points were saved."""
 
 
 @dataclass
@@ -84,6 +84,7 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
         signal.signal(signal.SIGTERM, on_term)
     except ValueError:  # not the main thread: leave signals alone
         previous = None
+    died = None
     try:
         tasks = ((job, c) for c in chunks(todo, size))
         for records in executor.imap(evaluate_chunk, tasks):
@@ -95,12 +96,19 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
                 last = time.monotonic()
     except KeyboardInterrupt:
         interrupted = True
+    except Exception as exc:  # noqa: BLE001 - e.g. a worker process was killed
+        if type(exc).__name__ != "TerminatedWorkerError":
+            raise
+        died = exc
     finally:
         bar.close()
         if previous is not None:
             signal.signal(signal.SIGTERM, previous)
         if checkpoint is not None:
             checkpoint(results)
+    if died is not None:
+        raise WorkerDied(f"a worker process died ({died}); {results.n_done} finished points are "
+                         "saved; rerun with --resume to continue.")
     sel_done = results.done.ravel() if selection is None else results.done.ravel()[selection]
     failed = results.failure.ravel() if selection is None else results.failure.ravel()[selection]
     return RunSummary(done=int(sel_done.sum()), total=total,

@@ -1,0 +1,113 @@
+"""Array-job scripts for Slurm and PBS, sized from the cost estimate. No scheduler is called."""
+
+from __future__ import annotations
+
+import math
+import shlex
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..jobfile import Job
+from .cost import estimate
+from .shards import Shard
+
+SAFETY = 2.0  # wall time = SAFETY x estimate + MARGIN; the estimate is rough
+MARGIN_S = 600
+
+
+@dataclass(frozen=True)
+class BatchPlan:
+    tasks: int
+    workers: int
+    walltime_s: int
+    memory_mb: int
+    points_per_task: int
+
+
+def plan(job: Job, tasks: int, workers: int) -> BatchPlan:
+    cost = estimate(job)
+    per_task = math.ceil(job.size / tasks)
+    seconds = SAFETY * cost.seconds_per_point * per_task / workers + MARGIN_S
+    memory = math.ceil((cost.memory_bytes * workers) / 2**20) + 512
+    return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task)
+
+
+def _hms(seconds: int) -> str:
+    h, rest = divmod(seconds, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h:02d}:{m:02d}:{s:02d}"
+
+
+def shard_outputs(job: Job, tasks: int) -> list[str]:
+    out = Path(job.output)
+    return [str(out.with_name(out.stem + Shard(i, tasks).suffix() + out.suffix))
+            for i in range(1, tasks + 1)]
+
+
+def scripts(job: Job, job_path: str, p: BatchPlan) -> dict[str, str]:
+    """``{file name: script text}``: array job and merge job for Slurm and for PBS."""
+    q = shlex.quote
+    run_args = f"--resume --workers {p.workers} --no-progress"
+    merge_line = (f"sweepcli merge {q(job.output)} " + " ".join(q(s) for s in shard_outputs(job, p.tasks)))
+    name = job.name
+    head = (f"# sweepcli array job for {job_path}: {job.size} grid points in {p.tasks} shards of "
+            f"about {p.points_per_task} points.\n# Wall time and memory come from `sweepcli check`'s "
+            "rough estimate; edit account and partition/queue below.\n")
+    slurm = f"""#!/bin/bash
+{head}# Submit:  jid=$(sbatch --parsable {name}.slurm.sh) && sbatch --dependency=afterok:$jid {name}.merge.slurm.sh
+#SBATCH --job-name={name}
+#SBATCH --array=1-{p.tasks}
+#SBATCH --cpus-per-task={p.workers}
+#SBATCH --mem={p.memory_mb}M
+#SBATCH --time={_hms(p.walltime_s)}
+#SBATCH --signal=B:TERM@120
+#SBATCH --output={name}-%A_%a.log
+##SBATCH --account=EDIT_ME
+##SBATCH --partition=EDIT_ME
+set -euo pipefail
+# sweepcli reads SLURM_ARRAY_TASK_ID, SLURM_ARRAY_TASK_MIN, SLURM_ARRAY_TASK_STEP and
+# SLURM_ARRAY_TASK_COUNT (--shard auto). SIGTERM at the time limit makes it save its finished
+# points; resubmitting the same task continues them (--resume).
+exec sweepcli run {q(job_path)} --shard auto {run_args}
+"""
+    slurm_merge = f"""#!/bin/bash
+{head}# Submit after the array job: sbatch --dependency=afterok:$jid {name}.merge.slurm.sh
+#SBATCH --job-name={name}-merge
+#SBATCH --cpus-per-task=1
+#SBATCH --mem={max(1024, p.memory_mb)}M
+#SBATCH --time=01:00:00
+#SBATCH --output={name}-merge-%j.log
+##SBATCH --account=EDIT_ME
+##SBATCH --partition=EDIT_ME
+set -euo pipefail
+{merge_line}
+"""
+    pbs = f"""#!/bin/bash
+{head}# Submit:  jid=$(qsub {name}.pbs.sh) && qsub -W depend=afterok:$jid {name}.merge.pbs.sh
+#PBS -N {name}
+#PBS -J 1-{p.tasks}
+#PBS -l select=1:ncpus={p.workers}:mem={p.memory_mb}mb
+#PBS -l walltime={_hms(p.walltime_s)}
+#PBS -j oe
+##PBS -A EDIT_ME
+##PBS -q EDIT_ME
+set -euo pipefail
+cd "${{PBS_O_WORKDIR:-.}}"
+# sweepcli reads PBS_ARRAY_INDEX (PBS Pro) or PBS_ARRAYID (Torque, submit with -t 1-{p.tasks}
+# instead of -J); PBS exports no array size, so it is given here (--shard auto/{p.tasks}).
+exec sweepcli run {q(job_path)} --shard auto/{p.tasks} {run_args}
+"""
+    pbs_merge = f"""#!/bin/bash
+{head}# Submit after the array job: qsub -W depend=afterok:$jid {name}.merge.pbs.sh
+#PBS -N {name}-merge
+#PBS -l select=1:ncpus=1:mem={max(1024, p.memory_mb)}mb
+#PBS -l walltime=01:00:00
+#PBS -j oe
+##PBS -A EDIT_ME
+##PBS -q EDIT_ME
+set -euo pipefail
+cd "${{PBS_O_WORKDIR:-.}}"
+{merge_line}
+"""
+    return {f"{name}.slurm.sh": slurm, f"{name}.merge.slurm.sh": slurm_merge,
+            f"{name}.pbs.sh": pbs, f"{name}.merge.pbs.sh": pbs_merge}
