@@ -1,0 +1,142 @@
+"""Shards and merge, batch scripts, and the dask engine on a LocalCluster (loopback)."""
+
+import subprocess
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from sweepcli.cli import app
+from sweepcli.run.shards import Shard, parse_shard
+from sweepcli.errors import SweepError
+
+from .test_end_to_end import assert_same_content
+
+JOB = """
+[job]
+name = "shardy"
+[model]
+name = "qwz"
+[sweep]
+m = { start = -3.0, stop = 3.0, num = 9 }
+t = [0.5, 1.0, 1.5]
+[measure.gap]
+[measure.chern]
+[output]
+path = "OUT"
+"""
+
+
+@pytest.fixture
+def job(tmp_path):
+    path = tmp_path / "job.toml"
+    path.write_text(JOB.replace("OUT", str(tmp_path / "full.h5")))
+    return path
+
+
+def invoke(*args):
+    return CliRunner().invoke(app, [str(a) for a in args])
+
+
+def test_shards_cover_the_grid_once():
+    size = 27
+    parts = [Shard(i, 4).indices(size) for i in range(1, 5)]
+    assert np.array_equal(np.sort(np.concatenate(parts)), np.arange(size))
+    assert max(map(len, parts)) - min(map(len, parts)) <= 1
+
+
+def test_shard_from_the_environment():
+    slurm = {"SLURM_ARRAY_TASK_ID": "7", "SLURM_ARRAY_TASK_MIN": "5", "SLURM_ARRAY_TASK_COUNT": "4"}
+    assert parse_shard("auto", slurm) == Shard(3, 4)
+    stepped = {"SLURM_ARRAY_TASK_ID": "20", "SLURM_ARRAY_TASK_MIN": "0",
+               "SLURM_ARRAY_TASK_STEP": "10", "SLURM_ARRAY_TASK_MAX": "30"}
+    assert parse_shard("auto", stepped) == Shard(3, 4)
+    assert parse_shard("auto/8", {"PBS_ARRAY_INDEX": "2"}) == Shard(2, 8)
+    assert parse_shard("auto/8", {"PBS_ARRAYID": "8"}) == Shard(8, 8)
+    with pytest.raises(SweepError, match="PBS exports no array size"):
+        parse_shard("auto", {"PBS_ARRAY_INDEX": "2"})
+    with pytest.raises(SweepError, match="no array-task index in the environment"):
+        parse_shard("auto", {})
+    with pytest.raises(SweepError, match="--shard must be"):
+        parse_shard("5/4", {})
+
+
+def test_four_shards_merged_equal_a_full_run(job, tmp_path):
+    assert invoke("run", job, "--no-progress").exit_code == 0
+    shards = []
+    for i in range(1, 5):
+        result = invoke("run", job, "--shard", f"{i}/4", "--no-progress")
+        assert result.exit_code == 0, result.output
+        shards.append(tmp_path / f"full.shard-{i}-of-4.h5")
+    merged = tmp_path / "merged.h5"
+    result = invoke("merge", merged, *shards)
+    assert result.exit_code == 0, result.output
+    assert "merged 4 shards: 27/27 points" in result.stdout
+    assert_same_content(merged, tmp_path / "full.h5")
+
+
+def test_incomplete_set_is_refused_and_reported(job, tmp_path):
+    for i in (1, 2):
+        assert invoke("run", job, "--shard", f"{i}/3", "--no-progress").exit_code == 0
+    shards = [tmp_path / f"full.shard-{i}-of-3.h5" for i in (1, 2)]
+    result = invoke("merge", tmp_path / "m.h5", *shards)
+    assert result.exit_code == 2
+    assert "9 of 27 points are in none of the 2 shards (first: m=-3, t=1.5;" in result.stderr
+    assert not (tmp_path / "m.h5").exists()
+    result = invoke("merge", tmp_path / "m.h5", *shards, "--partial")
+    assert result.exit_code == 0 and (tmp_path / "m.h5").exists()
+
+
+def test_shards_of_different_jobs_are_refused(job, tmp_path):
+    other = tmp_path / "other.toml"
+    other.write_text(job.read_text().replace("[measure.chern]", "[measure.chern]\nkmesh = 30"))
+    assert invoke("run", job, "--shard", "1/2", "--no-progress").exit_code == 0
+    assert invoke("run", other, "--shard", "2/2", "--no-progress").exit_code == 0
+    result = invoke("merge", tmp_path / "m.h5", tmp_path / "full.shard-1-of-2.h5",
+                    tmp_path / "full.shard-2-of-2.h5")
+    assert result.exit_code == 2
+    assert "belongs to a different job" in result.stderr
+
+
+def test_overlapping_shards_with_conflicting_values_are_refused(job, tmp_path):
+    import h5py
+
+    assert invoke("run", job, "--shard", "1/2", "--no-progress").exit_code == 0
+    a = tmp_path / "full.shard-1-of-2.h5"
+    b = tmp_path / "copy.h5"
+    b.write_bytes(a.read_bytes())
+    with h5py.File(b, "r+") as f:
+        f["gap"][0, 0] = f["gap"][0, 0] + 1.0
+    result = invoke("merge", tmp_path / "m.h5", a, b, "--partial")
+    assert result.exit_code == 2
+    assert "point m=-3, t=0.5 was also computed in another shard with a different gap" in result.stderr
+
+
+def test_batch_scripts_are_valid_shell_naming_the_shard_variables(job, tmp_path):
+    result = invoke("batch", job, "--tasks", "4", "--workers", "2", "--dir", tmp_path / "b")
+    assert result.exit_code == 0, result.output
+    names = ["shardy.slurm.sh", "shardy.merge.slurm.sh", "shardy.pbs.sh", "shardy.merge.pbs.sh"]
+    for name in names:
+        subprocess.run(["bash", "-n", str(tmp_path / "b" / name)], check=True)
+    slurm = (tmp_path / "b" / "shardy.slurm.sh").read_text()
+    assert "#SBATCH --array=1-4" in slurm and "--shard auto " in slurm
+    assert "SLURM_ARRAY_TASK_ID" in slurm and "SLURM_ARRAY_TASK_COUNT" in slurm
+    pbs = (tmp_path / "b" / "shardy.pbs.sh").read_text()
+    assert "#PBS -J 1-4" in pbs and "--shard auto/4" in pbs
+    assert "PBS_ARRAY_INDEX" in pbs and "PBS_ARRAYID" in pbs
+    merge = (tmp_path / "b" / "shardy.merge.slurm.sh").read_text()
+    assert "sweepcli merge" in merge and "full.shard-4-of-4.h5" in merge
+
+
+def test_local_dask_cluster_equals_a_joblib_run(job, tmp_path):
+    pytest.importorskip("distributed")
+    from distributed import Client, LocalCluster
+
+    assert invoke("run", job, "-o", tmp_path / "joblib.h5", "--workers", "2",
+                  "--no-progress").exit_code == 0
+    with LocalCluster(n_workers=2, threads_per_worker=1, host="127.0.0.1",
+                      dashboard_address=None, processes=True) as cluster:
+        result = invoke("run", job, "-o", tmp_path / "dask.h5", "--scheduler",
+                        cluster.scheduler_address, "--no-progress")
+        assert result.exit_code == 0, result.output
+    assert_same_content(tmp_path / "dask.h5", tmp_path / "joblib.h5")
