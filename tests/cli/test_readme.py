@@ -1,0 +1,35 @@
+"""The README's examples work as written."""
+
+import re
+
+from typer.testing import CliRunner
+
+from sweepcli.cli import app
+
+from ..conftest import ROOT
+
+
+def blocks(lang):
+    text = (ROOT / "README.md").read_text()
+    return re.findall(rf"```{lang}\n(.*?)```", text, flags=re.S)
+
+
+def test_ci_runs_the_readme_test_command():
+    commands = [b.strip() for b in blocks("bash")]
+    assert commands[1] in (ROOT / ".ci" / "run").read_text()
+    assert "jobs/quickstart.toml" in commands[0] and "sweepcli map" in commands[0]
+
+
+def test_readme_job_files_validate(tmp_path):
+    example, custom = [b for b in blocks("toml")]
+    job = tmp_path / "example.toml"
+    job.write_text(example)
+    result = CliRunner().invoke(app, ["check", str(job)])
+    assert result.exit_code == 0, result.output
+    assert "grid: 41 x 31 = 1271 points" in result.stdout
+
+    job = tmp_path / "custom.toml"
+    job.write_text(custom + '[params]\nt = 1.0\n[sweep]\nm = [-1.0, 1.0]\n[measure.gap]\n'
+                   f'[output]\npath = "{tmp_path / "c.h5"}"\n')
+    result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
+    assert result.exit_code == 0, result.output
