@@ -82,7 +82,7 @@ def run(ctx: typer.Context,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
     from .jobfile import load_job
-    from .run.runner import run_sweep
+    from .run.runner import run_job
     from .run.shards import parse_shard
     from .store import Results
     from .store.provenance import new_results, now
@@ -125,7 +125,7 @@ def run(ctx: typer.Context,
             executor = DaskExecutor(client)
         out.parent.mkdir(parents=True, exist_ok=True)
         results.write(out)
-        summary = run_sweep(job, results, workers=workers, chunk_size=chunk_size,
+        summary = run_job(job, results, workers=workers, chunk_size=chunk_size,
                             checkpoint=lambda r: r.write(out), checkpoint_every=checkpoint_every,
                             progress=progress, executor=executor,
                             selection=part.indices(job.size) if part else None)
@@ -276,6 +276,31 @@ def map_(ctx: typer.Context,
 
 
 @app.command()
+def boundaries(ctx: typer.Context,
+               results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
+               var: Annotated[Optional[str], typer.Option("--var", help="Integer variable (default: the first invariant).")] = None,
+               output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+               at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE.")] = None,
+               ) -> None:
+    """Phase boundaries of a two-parameter map as polylines in CSV (value, line, x, y)."""
+    from .report.boundaries import boundaries_csv, phase_boundaries
+    from .store import Results
+
+    try:
+        name, x, y, lines = phase_boundaries(Results.read(results_file), var, _parse_at(at or []))
+        text = boundaries_csv(name, x, y, lines)
+        if output is not None:
+            output.write_text(text)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    if output is None:
+        typer.echo(text, nl=False)
+    else:
+        typer.echo(f"{len(lines)} boundary lines -> {output}")
+
+
+@app.command()
 def models(ctx: typer.Context) -> None:
     """List the built-in models and the measurements with their parameters."""
     from .physics.measurements import MEASUREMENTS
@@ -297,3 +322,68 @@ def models(ctx: typer.Context) -> None:
 
 
 # --- report commands (diff, terminal maps, export) below this line ---
+
+EXIT_DIFFER = 1
+
+
+@app.command("diff")
+def diff_(ctx: typer.Context,
+          a: Annotated[Path, typer.Argument(help="First results file.", metavar="A")],
+          b: Annotated[Path, typer.Argument(help="Second results file.", metavar="B")],
+          rtol: Annotated[float, typer.Option("--rtol", min=0.0, help="Relative tolerance for floats: |a - b| <= atol + rtol * max(|a|, |b|).")] = 1e-6,
+          atol: Annotated[float, typer.Option("--atol", min=0.0, help="Absolute tolerance for floats.")] = 1e-12,
+          coord_tol: Annotated[float, typer.Option("--coord-tol", min=0.0, help="Relative tolerance for matching coordinate values of the two grids.")] = 1e-9,
+          provenance: Annotated[bool, typer.Option("--provenance", help="Also count a different job, versions or provenance (not times, host, command line) as a difference.")] = False,
+          common: Annotated[bool, typer.Option("--common", help="Judge only the common grid points: a subset or refinement is then no difference.")] = False,
+          top: Annotated[int, typer.Option("--top", min=0, help="Largest deviations listed per variable.")] = 5,
+          as_json: Annotated[bool, typer.Option("--json", help="Machine-readable output.")] = False,
+          ) -> None:
+    """Compare two results files: job and provenance, grids, values. Exit 0 if they agree, 1 if
+    they differ, 2 on error."""
+    import json
+
+    from .report.diff import diff_as_dict, diff_results, format_diff
+    from .report.terminal import terminal_width, want_colour
+    from .store import Results
+
+    try:
+        d = diff_results(Results.read(a), Results.read(b), labels=(str(a), str(b)), rtol=rtol,
+                         atol=atol, coord_tol=coord_tol, provenance=provenance,
+                         common_only=common, top=top)
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    if as_json:
+        typer.echo(json.dumps(diff_as_dict(d), indent=2))
+    else:
+        typer.echo(format_diff(d, width=terminal_width(), colour=want_colour()))
+    if not d.agree:
+        raise typer.Exit(EXIT_DIFFER)
+
+
+@app.command()
+def export(ctx: typer.Context,
+           results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
+           var: Annotated[Optional[list[str]], typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
+           output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+           ) -> None:
+    """Write variables of RESULTS as CSV in long format: one row per grid point, parameter
+    columns first; missing values empty, reason codes by name."""
+    from .report.export import export_table, write_csv
+    from .store import Results
+
+    try:
+        table = export_table(Results.read(results_file), var)
+        if output is None:
+            write_csv(table, sys.stdout)
+            return
+        try:
+            output.parent.mkdir(parents=True, exist_ok=True)
+            with open(output, "w", newline="", encoding="utf-8") as fh:
+                n = write_csv(table, fh)
+        except OSError as exc:
+            raise SweepError(f"{output}: cannot write the CSV file ({exc.strerror or exc}).") from None
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"{n} rows x {len(table.columns)} columns -> {output}", err=True)

@@ -28,7 +28,7 @@ from .physics.models import MODELS
 from .physics.point import Point, Quantity
 from .physics.registry import Param
 
-TABLES = ("job", "model", "params", "sweep", "drive", "measure", "output")
+TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "output")
 LATTICES = {
     "chain": np.array([[1.0]]),
     "square": np.eye(2),
@@ -49,6 +49,22 @@ class Axis:
     name: str
     values: tuple[float, ...]
     spacing: str  # "linear", "log" or "list"
+
+
+@dataclass(frozen=True)
+class Refine:
+    """Adaptive refinement: the grid of ``[sweep]`` is the coarse base; cells whose corners
+    disagree in ``by`` (or where ``gap_var`` falls below ``gap_below``) are halved, ``depth``
+    times at most. Points live on the finest grid, ``2**depth`` times denser than the base."""
+
+    by: str
+    depth: int
+    gap_below: float | None
+    gap_var: str
+
+    @property
+    def stride(self) -> int:
+        return 2 ** self.depth
 
 
 @dataclass(frozen=True)
@@ -98,6 +114,7 @@ class Job:
     normalised: str
     dim: int
     norb: int
+    refine: Refine | None = None
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -394,6 +411,10 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                       f"{norb} bands", filling)
     gap_tol = float(settings.get("gap_tol", 1e-6))
 
+    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes)
+    if refine is not None:
+        axes = tuple(_finer(a, refine.depth) for a in axes)
+
     output_t = ck.table(doc, "output")
     for key in output_t:
         if key != "path":
@@ -415,6 +436,9 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                   | {k: e.text for k, e in sorted(exprs.items())},
         "sweep": {k: v for k, v in sweep_t.items()},
         "drive": {"kind": drive},
+        **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
+            | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
+           if refine is not None else {}),
         "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
                    | {m: dict(opts) for m, opts in measurements},
     }
@@ -423,9 +447,50 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
-              dim=dim, norb=norb)
+              dim=dim, norb=norb, refine=refine)
     _check_values(ck, job, declared, exprs)
     return job
+
+
+def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple) -> Refine | None:
+    if not t:
+        return None
+    allowed = ["by", "depth", "gap_below", "gap_var"]
+    for key in t:
+        if key not in allowed:
+            raise ck.unknown("refine", key, allowed)
+    ints = [q.name for m, _ in measurements for q in quantities_of(m, dim) if q.dtype == "int32"]
+    floats = [q.name for m, _ in measurements for q in quantities_of(m, dim) if q.dtype == "float64"]
+    by = t.get("by")
+    if by not in ints:
+        raise ck.fail("refine", "by", "an integer quantity of the job's measurements (" +
+                      (", ".join(ints) or "none measured") + ")", by, suggest(str(by), ints))
+    depth = ck.number("refine", "depth", t.get("depth", 3), Param("depth", kind="int", low=1, high=10))
+    gap_below = t.get("gap_below")
+    if gap_below is not None:
+        gap_below = float(ck.number("refine", "gap_below", gap_below,
+                                    Param("gap_below", low=0, open_low=True)))
+    gap_var = t.get("gap_var", "gap")
+    if gap_below is not None and gap_var not in floats:
+        raise ck.fail("refine", "gap_var", "a float quantity of the job's measurements (" +
+                      ", ".join(floats) + ")", gap_var, suggest(str(gap_var), floats))
+    for a in axes:
+        if a.spacing == "list":
+            raise JobError(f"{ck.path}: [refine] needs ranges in [sweep]; {a.name} is an explicit "
+                           "list.")
+    return Refine(by, depth, gap_below, gap_var)
+
+
+def _finer(axis: Axis, depth: int) -> Axis:
+    n = len(axis.values)
+    if n == 1:
+        return axis
+    m = (n - 1) * 2 ** depth + 1
+    lo, hi = axis.values[0], axis.values[-1]
+    vals = np.geomspace(lo, hi, m) if axis.spacing == "log" else np.linspace(lo, hi, m)
+    # Keep the base values bit for bit, so a refined run and a coarse run share their points.
+    vals[:: 2 ** depth] = axis.values
+    return Axis(axis.name, tuple(float(v) for v in vals), axis.spacing)
 
 
 def _normalised_model(model: str, model_t: dict) -> dict:

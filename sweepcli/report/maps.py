@@ -13,6 +13,7 @@ import numpy as np
 
 from ..errors import ResultsError, SweepError, suggest
 from ..store import FILL_INT, Results
+from ..store.refined import display_values
 
 FORMATS = (".png", ".svg", ".pdf")
 MISSING_COLOUR = "#bbbbbb"
@@ -68,17 +69,19 @@ def closing_nodes(gap: np.ndarray) -> np.ndarray:
     Near a closing the gap is V-shaped, ``|s| * distance``; a node whose gap is at most half
     the largest change to a neighbour lies within about half a cell of the zero.
     """
-    gap = np.where(np.isfinite(gap), gap, np.inf)
+    finite = np.isfinite(gap)
+    gap = np.where(finite, gap, 0.0)
     change = np.zeros_like(gap)
     for axis in range(gap.ndim):
-        d = np.abs(np.diff(gap, axis=axis))
-        d = np.where(np.isfinite(d), d, 0.0)
+        both = np.logical_and(np.take(finite, range(1, gap.shape[axis]), axis),
+                              np.take(finite, range(0, gap.shape[axis] - 1), axis))
+        d = np.where(both, np.abs(np.diff(gap, axis=axis)), 0.0)
         pad = [(0, 0)] * gap.ndim
         pad[axis] = (1, 0)
         change = np.maximum(change, np.pad(d, pad))
         pad[axis] = (0, 1)
         change = np.maximum(change, np.pad(d, pad))
-    return np.isfinite(gap) & (gap <= 0.5 * change)
+    return finite & (change > 0) & (gap <= 0.5 * change)
 
 
 def _edges(values: np.ndarray, log: bool) -> np.ndarray:
@@ -114,8 +117,8 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
     from matplotlib.patches import Patch
 
     meta = results.variables[var]
-    data = results.data[var][index]
-    done = results.done[index].astype(bool)
+    data, done = display_values(results, var)
+    data, done = data[index], done[index].astype(bool)
     is_int = meta.dtype in ("int32", "uint8")
     values = data.astype(float)
     missing = ~done | ((data == FILL_INT) if meta.dtype == "int32" else ~np.isfinite(values))
@@ -176,7 +179,9 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
         gap_name = next((g for g in GAP_VARIABLES if g in results.variables), None)
         if gap_name is not None:
-            gap = results.data[gap_name][index].astype(float)
+            # Evaluated points only: filled-in values of a refined file are flat by construction.
+            gap = np.where(results.done[index].astype(bool),
+                           results.data[gap_name][index].astype(float), np.nan)
             closing = closing_nodes(gap)
             if closing.any():
                 gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")

@@ -114,3 +114,32 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
     return RunSummary(done=int(sel_done.sum()), total=total,
                       failed=int(np.count_nonzero(failed != "")), interrupted=interrupted,
                       seconds=time.monotonic() - start)
+
+
+def run_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
+            **options) -> RunSummary:
+    """Run a job: the whole grid (or ``selection``), or, with ``[refine]``, level by level."""
+    if job.refine is None:
+        return run_sweep(job, results, selection=selection, **options)
+    from .refine import base_indices, level_indices
+
+    if selection is not None:
+        raise SweepError("a job with [refine] cannot be sharded: which points a level needs "
+                         "depends on the previous level's results.")
+    r = job.refine
+    start = time.monotonic()
+    summary = None
+    for level in range(r.depth + 1):
+        wanted = (base_indices(results.shape, r.stride) if level == 0 else
+                  level_indices(results, r.by, r.stride, level, r.gap_below, r.gap_var))
+        if len(wanted) == 0:
+            break
+        summary = run_sweep(job, results, selection=wanted, **options)
+        if summary.interrupted:
+            break
+    done = int(results.done.sum())
+    return RunSummary(done=done, total=done if not (summary and summary.interrupted) else
+                      done + (summary.total - summary.done),
+                      failed=int(np.count_nonzero(results.failure.ravel() != "")),
+                      interrupted=bool(summary and summary.interrupted),
+                      seconds=time.monotonic() - start)

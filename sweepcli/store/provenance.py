@@ -54,4 +54,7 @@ def new_results(job: Job, argv: list[str] | None = None) -> Results:
         "started": now(),
         "finished": "",
     }
+    if job.refine is not None:
+        attrs["refine_by"] = job.refine.by
+        attrs["refine_stride"] = str(job.refine.stride)
     return Results(axes, variables, attrs)

@@ -21,7 +21,7 @@ def test_ci_runs_the_readme_test_command():
 
 
 def test_readme_job_files_validate(tmp_path):
-    example, custom = [b for b in blocks("toml")]
+    example, custom = [b for b in blocks("toml") if "[model]" in b]
     job = tmp_path / "example.toml"
     job.write_text(example)
     result = CliRunner().invoke(app, ["check", str(job)])
@@ -33,3 +33,10 @@ def test_readme_job_files_validate(tmp_path):
                    f'[output]\npath = "{tmp_path / "c.h5"}"\n')
     result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
     assert result.exit_code == 0, result.output
+
+    refine = next(b for b in blocks("toml") if "[refine]" in b)
+    job = tmp_path / "refined.toml"
+    job.write_text(example + refine)
+    result = CliRunner().invoke(app, ["check", str(job)])
+    assert result.exit_code == 0, result.output
+    assert "grid: 321 x 241 = 77361 points" in result.stdout
