@@ -10,7 +10,8 @@ import numpy as np
 from ..physics.point import Reason
 from ..store import FILL_INT, Results
 
-PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "schema_version",
+PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "shard", "refine_by",
+                   "refine_stride", "schema_version",
                    "sweepcli_version", "numpy_version", "scipy_version", "h5py_version",
                    "host", "command_line", "started", "finished")
 
@@ -84,7 +85,12 @@ def format_summary(s: Summary) -> str:
         unit = f" [{units}]" if units and units != "1" else ""
         lines.append(f"  {name}{unit}: {n} values from {lo:g} to {hi:g}")
     pct = 100.0 * s.done / s.total if s.total else 100.0
-    lines.append(f"completion: {s.done}/{s.total} points ({pct:.1f}%)")
+    lines.append(f"completion: {s.done}/{s.total} points ({pct:.1f}%)"
+                 + (" of the finest grid (refined: only cells with a boundary are evaluated)"
+                    if s.provenance.get("refine_stride") else ""))
+    if not s.provenance.get("finished"):
+        lines.append("status: not finished: still running, or interrupted (continue with "
+                     "`sweepcli run JOB -o FILE --resume`); figures are from the last checkpoint")
     if s.failed:
         lines.append(f"failed points: {len(s.failed)} shown")
         for params, msg in s.failed:
