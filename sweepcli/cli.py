@@ -260,17 +260,28 @@ def map_(ctx: typer.Context,
          var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the first invariant).")] = None,
          output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
          at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (nearest grid value).")] = None,
+         terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
+         width: Annotated[Optional[int], typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
     from .report.maps import draw_map
+    from .report.terminal import terminal_map, want_colour
     from .store import Results
 
     try:
+        if terminal and output is not None:
+            raise SweepError("--terminal prints the map; give it or --output, not both.")
         results = Results.read(results_file)
-        out = output or results_file.with_name(results_file.stem + f"-{var or 'map'}.png")
-        written = draw_map(results, out, var=var, at=_parse_at(at or []))
+        if terminal:
+            text = terminal_map(results, var, _parse_at(at or []), width, colour=want_colour())
+        else:
+            out = output or results_file.with_name(results_file.stem + f"-{var or 'map'}.png")
+            written = draw_map(results, out, var=var, at=_parse_at(at or []))
     except SweepError as exc:
         _fail(ctx, exc)
+        return
+    if terminal:
+        typer.echo(text)
         return
     typer.echo(f"map -> {written}")
 
@@ -338,8 +349,7 @@ def diff_(ctx: typer.Context,
           top: Annotated[int, typer.Option("--top", min=0, help="Largest deviations listed per variable.")] = 5,
           as_json: Annotated[bool, typer.Option("--json", help="Machine-readable output.")] = False,
           ) -> None:
-    """Compare two results files: job and provenance, grids, values. Exit 0 if they agree, 1 if
-    they differ, 2 on error."""
+    """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
 
     from .report.diff import diff_as_dict, diff_results, format_diff
@@ -367,8 +377,7 @@ def export(ctx: typer.Context,
            var: Annotated[Optional[list[str]], typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
            output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
            ) -> None:
-    """Write variables of RESULTS as CSV in long format: one row per grid point, parameter
-    columns first; missing values empty, reason codes by name."""
+    """Write variables of RESULTS as CSV, one row per grid point (missing values empty)."""
     from .report.export import export_table, write_csv
     from .store import Results
 

@@ -1,0 +1,364 @@
+"""``sweepcli map --terminal``: phase maps drawn with characters, readable over SSH without X.
+
+A 2D map has one character cell per grid point (resampled to the nearest grid point when the
+grid is wider than the terminal); the first free axis runs left to right, the second bottom to
+top, as on a plotted map. Every value gets its own character, so the picture reads without
+colour; ANSI colours are added only on request (the CLI asks only when stdout is a terminal).
+A 1D sweep prints a strip of the same characters with a table of the runs of equal value
+(integers) or a sparkline with its range (floats).
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+from collections import Counter
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import IO
+
+import numpy as np
+
+from ..physics.point import Reason
+from ..store import FILL_INT, Results
+from .maps import check_variable, select
+
+MISSING_GLYPH = "·"
+ZERO_GLYPH = "░"  # the trivial phase is drawn lightest
+LEVEL_GLYPHS = ("█", "▒", "#", "%", "@", "&", "$", "X", "O", "W", "M", "=", "+", "o", "x", "*")
+RAMP_GLYPHS = ("▁", "▂", "▃", "▄", "▅", "▆", "▇", "█")  # floats: low to high
+MISSING_COLOUR = "90"  # ANSI dark grey
+LEVEL_COLOURS = ("34", "31", "32", "33", "35", "36", "94", "91", "92", "93", "95", "96")
+ZERO_COLOUR = "37"
+RAMP_COLOURS = ("38;5;54", "38;5;61", "38;5;67", "38;5;73", "38;5;72", "38;5;107",
+                "38;5;149", "38;5;226")  # dark violet to yellow, like viridis
+MAX_ROWS = 48
+RESET = "\x1b[0m"
+
+
+def want_colour(stream: IO | None = None) -> bool:
+    """Colours only for a terminal, and never when ``NO_COLOR`` is set (no-color.org)."""
+    import sys
+
+    stream = stream if stream is not None else sys.stdout
+    if "NO_COLOR" in os.environ:
+        return False
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):
+        return False
+
+
+def terminal_width(default: int = 80) -> int:
+    return shutil.get_terminal_size((default, 24)).columns
+
+
+def fmt(value: float) -> str:
+    """A coordinate or value as a short label."""
+    return f"{value:.4g}"
+
+
+# ---------------------------------------------------------------- character grids
+def sample(n: int, m: int) -> tuple[np.ndarray, list[np.ndarray]]:
+    """``min(n, m)`` evenly spaced representatives of ``range(n)`` (first and last included)
+    and the contiguous bins around them (split halfway between representatives)."""
+    k = max(1, min(n, m))
+    reps = np.unique(np.round(np.linspace(0, n - 1, k)).astype(int)) if n else np.arange(0)
+    edges = (reps[:-1] + reps[1:] + 1) // 2
+    return reps, np.split(np.arange(n), edges)
+
+
+@dataclass
+class Axis:
+    """A labelled axis of a character grid: ``values`` of the grid points, ``label`` for it."""
+
+    label: str
+    values: np.ndarray
+
+
+def resample(codes: np.ndarray, ncols: int, nrows: int, reduce: str) -> tuple[np.ndarray, list, list]:
+    """Reduce ``codes`` (nx, ny) to at most (ncols, nrows) cells.
+
+    ``reduce="nearest"`` keeps evenly spaced grid points (a phase map stays a sample of the
+    data); ``"max"`` keeps the largest code of the points nearest to each cell (a difference
+    map never hides a difference). Returns the cells and the representative index of each
+    column and row.
+    """
+    rep_x, bx = sample(codes.shape[0], ncols)
+    rep_y, by = sample(codes.shape[1], nrows)
+    if reduce == "nearest":
+        return codes[np.ix_(rep_x, rep_y)], rep_x.tolist(), rep_y.tolist()
+    out = np.empty((len(bx), len(by)), dtype=codes.dtype)
+    for i, b in enumerate(bx):
+        col = codes[b].max(axis=0)
+        for j, c in enumerate(by):
+            out[i, j] = col[c].max()
+    return out, rep_x.tolist(), rep_y.tolist()
+
+
+def _tick_step(n: int, label_width: int) -> int:
+    """A tick spacing (in cells) wide enough for the labels, dividing ``n - 1`` if possible."""
+    if n <= 1:
+        return 1
+    for step in range(label_width, min(3 * label_width, n - 1) + 1):
+        if (n - 1) % step == 0:
+            return step
+    return max(label_width, 1)
+
+
+def render_grid(codes: np.ndarray, glyphs: Sequence[str], x: Axis, y: Axis | None,
+                width: int, height: int | None = None, reduce: str = "nearest",
+                colours: Sequence[str] | None = None,
+                row_label: str = "") -> tuple[list[str], str]:
+    """Lines of a character picture of ``codes`` (shape (nx, ny); ``glyphs[code]``).
+
+    Rows run from the largest ``y`` (top) to the smallest; ticks on the left carry ``y``
+    values, ticks below the grid ``x`` values. ``colours[code]`` (ANSI SGR parameters) colour
+    the cells when given. ``y=None`` draws one row labelled ``row_label`` (a 1D strip).
+    Returns the lines and a note on resampling ("" if none).
+    """
+    nx, ny = codes.shape
+    ylabels = [fmt(v) for v in y.values] if y is not None else [row_label]
+    margin = max([len(s) for s in ylabels] + [len(y.label) if y is not None else 0, 1])
+    ncols = max(8, width - margin - 2)
+    nrows = height if height is not None else MAX_ROWS
+    cells, rep_x, rep_y = resample(codes, ncols, nrows, reduce)
+    note = []
+    if len(rep_x) < nx:
+        note.append(f"{x.label}: {nx} points in {len(rep_x)} columns")
+    if len(rep_y) < ny:
+        note.append(f"{y.label}: {ny} points in {len(rep_y)} rows")
+    how = "nearest point" if reduce == "nearest" else "any point in a cell"
+    note_text = f"resampled ({'; '.join(note)}; {how})" if note else ""
+
+    def paint(codes_row: np.ndarray) -> str:
+        if not colours:
+            return "".join(glyphs[int(c)] for c in codes_row)
+        out, start = [], 0  # one escape sequence per run of equal cells
+        for i in range(1, len(codes_row) + 1):
+            if i == len(codes_row) or codes_row[i] != codes_row[start]:
+                c = int(codes_row[start])
+                out.append(f"\x1b[{colours[c]}m{glyphs[c] * (i - start)}{RESET}")
+                start = i
+        return "".join(out)
+
+    lines = []
+    if y is not None:
+        lines.append(f"{y.label:>{margin}}")
+    nr = cells.shape[1]
+    ystep = 1 if nr <= 8 else _tick_step(nr, 3)
+    for r in range(nr - 1, -1, -1):
+        row = paint(cells[:, r])
+        labelled = (nr - 1 - r) % ystep == 0 or r == 0
+        label = ylabels[rep_y[r]]
+        if labelled:
+            lines.append(f"{label:>{margin}} ┤{row}")
+        else:
+            lines.append(f"{'':>{margin}} │{row}")
+    xl = [fmt(x.values[i]) for i in rep_x]
+    step = _tick_step(len(rep_x), max(len(s) for s in xl) + 1)
+    ticks = list(range(0, len(rep_x), step))
+    axis_line = ["─"] * len(rep_x)
+    label_line = [" "] * (len(rep_x) + max(len(s) for s in xl) + 1)
+    for c in ticks:
+        axis_line[c] = "┬"
+        for k, ch in enumerate(xl[c]):
+            label_line[c + k] = ch
+    lines.append(f"{'':>{margin}} └" + "".join(axis_line))
+    lines.append(f"{'':>{margin}}  " + "".join(label_line).rstrip())
+    lines.append(f"{'':>{margin}}  {x.label}")
+    return lines, note_text
+
+
+# ---------------------------------------------------------------- phase maps
+@dataclass
+class Level:
+    """One legend entry: ``glyph`` stands for ``label``; ``count`` grid points drawn."""
+
+    glyph: str
+    label: str
+    count: int
+    colour: str = ""
+
+
+@dataclass
+class Coded:
+    """A variable turned into codes for drawing: ``codes[i]`` indexes ``levels``."""
+
+    codes: np.ndarray
+    levels: list[Level] = field(default_factory=list)
+    ramp: bool = False
+
+
+def _axis_label(axis) -> str:
+    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
+    return axis.name + unit
+
+
+def _missing_label(results: Results, var: str, index: tuple, missing: np.ndarray) -> str:
+    meta = results.variables[var]
+    rname = f"{meta.measurement}_reason"
+    if rname in results.variables and rname != var and missing.any():
+        reasons = results.data[rname][index][missing]
+        counts = Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
+        if len(counts) == 1:
+            return f"missing ({next(iter(counts))})"
+        return f"missing ({', '.join(f'{k}: {v}' for k, v in sorted(counts.items()))})"
+    return "missing"
+
+
+def code_variable(results: Results, var: str, index: tuple) -> Coded:
+    """Codes and legend of ``results.data[var][index]`` (any shape).
+
+    Integers (and reason codes) get one character per value, zero the lightest; floats eight
+    equal-width bins between their smallest and largest value. Missing points (not evaluated,
+    the integer fill value, NaN) get :data:`MISSING_GLYPH`.
+    """
+    meta = results.variables[var]
+    data = results.data[var][index]
+    done = results.done[index].astype(bool)
+    if meta.dtype == "int32":
+        missing = ~done | (data == FILL_INT)
+    elif meta.dtype == "uint8":
+        missing = np.zeros(data.shape, dtype=bool)
+    else:
+        missing = ~done | np.isnan(data)
+    levels: list[Level] = []
+    codes = np.zeros(data.shape, dtype=np.int64)
+    ramp = False
+    if meta.dtype in ("int32", "uint8"):
+        values = sorted(set(int(v) for v in data[~missing].ravel()))
+        # zero first (lightest), then by size with the positive value of a pair first
+        order = sorted(values, key=lambda v: (v != 0, abs(v), v < 0))
+        others = iter(LEVEL_GLYPHS)
+        for k, v in enumerate(order):
+            is_zero = v == 0  # a zero invariant, or the reason code ok
+            glyph = ZERO_GLYPH if is_zero else next(others, None) or chr(ord("a") + k % 26)
+            colour = ZERO_COLOUR if is_zero else LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
+            shown = Reason(v).name.lower() if meta.dtype == "uint8" else str(v)
+            sel = ~missing & (data == v)
+            codes[sel] = k
+            levels.append(Level(glyph, f"{var} = {shown}", int(sel.sum()), colour))
+    else:
+        ramp = True
+        finite = data[~missing]
+        if finite.size:
+            lo, hi = float(finite.min()), float(finite.max())
+            nlev = len(RAMP_GLYPHS) if hi > lo else 1
+            edges = np.linspace(lo, hi, nlev + 1)
+            idx = np.clip(np.searchsorted(edges, data, side="right") - 1, 0, nlev - 1)
+            unit = f" {meta.units}" if meta.units not in ("", "1") else ""
+            for k in range(nlev):
+                g = RAMP_GLYPHS[k] if nlev > 1 else RAMP_GLYPHS[-1]
+                sel = ~missing & (idx == k)
+                codes[sel] = k
+                label = (f"{fmt(edges[k])} <= {var} {'<=' if k == nlev - 1 else '<'} "
+                         f"{fmt(edges[k + 1])}{unit}" if nlev > 1 else f"{var} = {fmt(lo)}{unit}")
+                levels.append(Level(g, label, int(sel.sum()),
+                                    RAMP_COLOURS[k] if nlev > 1 else RAMP_COLOURS[-1]))
+    if missing.any():
+        codes[missing] = len(levels)
+        levels.append(Level(MISSING_GLYPH, _missing_label(results, var, index, missing),
+                            int(missing.sum()), MISSING_COLOUR))
+    return Coded(codes, levels, ramp)
+
+
+def _runs(coded: Coded, values: np.ndarray) -> list[str]:
+    """``name = a .. b (n points): label`` for each run of equal code along a 1D sweep."""
+    out = []
+    start = 0
+    codes = coded.codes
+    for i in range(1, len(codes) + 1):
+        if i == len(codes) or codes[i] != codes[start]:
+            span = (fmt(values[start]) if i - 1 == start
+                    else f"{fmt(values[start])} .. {fmt(values[i - 1])}")
+            n = i - start
+            out.append((span, f"({n} point{'s' if n != 1 else ''})",
+                        coded.levels[int(codes[start])].label))
+            start = i
+    w0 = max(len(s) for s, _, _ in out)
+    w1 = max(len(s) for _, s, _ in out)
+    return [f"{s:<{w0}} {n:<{w1}} {lab}" for s, n, lab in out]
+
+
+def terminal_map(results: Results, var: str | None = None, at: dict[str, float] | None = None,
+                 width: int | None = None, *, colour: bool = False,
+                 height: int | None = None) -> str:
+    """A character picture of one variable of ``results``.
+
+    Parameters
+    ----------
+    results : the results to draw.
+    var : variable name; default the first integer invariant (as ``sweepcli map``).
+    at : fixed values of swept parameters not drawn, ``{name: value}`` (nearest grid value);
+        other undrawn axes are fixed at their first value.
+    width : total width in characters; default the terminal's (``COLUMNS``).
+    colour : add ANSI colours (the characters alone already distinguish every value).
+    height : most rows of the 2D picture (default 48); more grid rows are resampled.
+
+    Returns
+    -------
+    str
+        Title, the picture with axis ticks (first free axis horizontal, second vertical
+        increasing upwards) and a legend ``glyph label (count points)``; for a 1D sweep a strip
+        plus a table of runs (integers) or a sparkline with its range (floats).
+
+    Raises
+    ------
+    ResultsError
+        Unknown variable or ``at`` name.
+    """
+    var = check_variable(results, var)
+    free, index = select(results, at or {})
+    width = width if width is not None else terminal_width()
+    meta = results.variables[var]
+    coded = code_variable(results, var, index)
+    palette = [lv.glyph for lv in coded.levels]
+    colours = [lv.colour for lv in coded.levels] if colour else None
+    fixed = [f"{a.name}={fmt(a.values[i])}" for a, i in zip(results.axes, index)
+             if isinstance(i, int) and len(a.values) > 1]
+    lines = []
+    if results.attrs.get("title"):
+        lines.append(results.attrs["title"])
+    lines.append(f"{var}: {meta.long_name}" + (f" at {', '.join(fixed)}" if fixed else ""))
+    lines.append("")
+    codes = coded.codes
+    if codes.ndim == 0:
+        lines.append(f"{coded.levels[int(codes)].label}")
+        return "\n".join(lines)
+    if len(free) == 1:
+        axis = results.axes[free[0]]
+        grid, note = render_grid(codes.reshape(-1, 1), palette,
+                                 Axis(_axis_label(axis), axis.values), None, width, height=1,
+                                 colours=colours, row_label=var)
+        lines += grid
+    else:
+        xa, ya = results.axes[free[0]], results.axes[free[1]]
+        grid, note = render_grid(codes, palette, Axis(_axis_label(xa), xa.values),
+                                 Axis(_axis_label(ya), ya.values), width, height=height,
+                                 colours=colours)
+        lines += grid
+    if note:
+        lines.append(note)
+    lines.append("")
+    lines.append("legend:")
+    for lv in coded.levels:
+        g = f"\x1b[{lv.colour}m{lv.glyph}{RESET}" if colour else lv.glyph
+        lines.append(f"  {g}  {lv.label} ({lv.count} point{'s' if lv.count != 1 else ''})")
+    if len(free) == 1:
+        axis = results.axes[free[0]]
+        lines.append("")
+        if not coded.ramp:
+            lines.append(f"runs along {axis.name}:")
+            lines += ["  " + s for s in _runs(coded, axis.values)]
+        else:
+            data = results.data[var][index]
+            ok = np.isfinite(data) & results.done[index].astype(bool)
+            if ok.any():
+                lo, hi = int(np.nanargmin(np.where(ok, data, np.nan))), int(
+                    np.nanargmax(np.where(ok, data, np.nan)))
+                unit = f" {meta.units}" if meta.units not in ("", "1") else ""
+                lines.append(f"min {var} = {fmt(data[lo])}{unit} at {axis.name}="
+                             f"{fmt(axis.values[lo])}; max {fmt(data[hi])}{unit} at "
+                             f"{axis.name}={fmt(axis.values[hi])}")
+    return "\n".join(lines)
