@@ -37,6 +37,7 @@ SAMPLES = {
     "bhz": dict(M=1.3, A=0.9, B=1.2, C=0.3, D=0.25, mix=0.15),
     "bhz_corner": dict(m=0.8, t=1.1, delta1=0.9, delta2=0.45),
     "bbh": dict(gamma=0.4, lam=1.2, delta=0.1),
+    "bipartite_square": dict(j1=0.3, j2=0.7, j3=1.1, j4=0.5, delta=0.2),
 }
 
 
@@ -125,7 +126,12 @@ def table_bbh(gamma, lam, delta):
     return rows, 4
 
 
-TABLES = {"qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
+def table_bipartite_square(j1, j2, j3, j4, delta):
+    return [((0, 0), 0, 0, delta), ((0, 0), 1, 1, -delta), ((0, 0), 0, 1, j1),
+            ((0, -1), 0, 1, j2), ((-1, -1), 0, 1, j3), ((-1, 0), 0, 1, j4)], 2
+
+
+TABLES = {"bipartite_square": table_bipartite_square, "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
           "bhz": table_bhz, "bhz_corner": table_bhz_corner, "bbh": table_bbh}
 
 
@@ -180,6 +186,10 @@ def formula(name, p, k):
         g1, g2, g3 = -kr("yx"), -kr("yy"), -kr("yz")
         return ((g + lam * c[0]) * g4 + lam * s[0] * g3 + (g + lam * c[1]) * g2
                 + lam * s[1] * g1 + dl * g0)
+    if name == "bipartite_square":
+        disp = [(0, 0), (0, -1), (-1, -1), (-1, 0)]
+        f = sum(p[f"j{i + 1}"] * np.exp(1j * np.dot(k, r)) for i, r in enumerate(disp))
+        return np.array([[p["delta"], f], [np.conj(f), -p["delta"]]])
     raise KeyError(name)
 
 

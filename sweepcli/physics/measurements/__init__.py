@@ -29,4 +29,4 @@ def quantities_of(name: str, dim: int) -> tuple[Quantity, ...]:
 
 
 # Importing the modules fills the registry.
-from . import static  # noqa: E402,F401
+from . import boundary, driven, static  # noqa: E402,F401

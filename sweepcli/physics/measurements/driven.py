@@ -1,0 +1,314 @@
+"""Measurements of periodically driven lattices: quasienergy gaps and Floquet invariants.
+
+``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drive`), ``point.tb`` the
+static model (its cell operators, e.g. ``"chiral"``, are used by the chiral invariants). The
+Floquet operator on a mesh is memoised in ``point.cache`` under ``("floquet_mesh", n)`` and the
+gaps under ``("floquet_gaps", n, refine)``; the invariants use the gaps at the default settings,
+so a job measuring ``quasienergy_gaps`` with its defaults and an invariant diagonalises
+``U(k)`` on that mesh once.
+
+Momentum locations are stored as ``k_i / 2 pi`` in ``[-0.5, 0.5)``, as for static gaps.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from .. import floquet as fl
+from .. import invariants as inv
+from ..lattice import pauli
+from ..point import Point, Quantity, Reason
+from ..registry import Param
+from . import MEASUREMENTS
+
+#: Default mesh of the quasienergy-gap search (points per direction; minima are refined).
+GAP_KMESH = 32
+#: Largest number of symmetry sectors ``line_winding`` stores.
+MAX_SECTORS = 4
+
+_RUDNER = "Rudner, Lindner, Berg and Levin, PRX 3, 031005 (2013)"
+_CHIRAL = ("Asboth and Obuse, PRB 88, 121406 (2013); Asboth, Tarasinski and Delplace, PRB 90, "
+           "125143 (2014)")
+_KMESH_DOC = "points per reciprocal direction of the first k-mesh"
+
+
+def _dim(point: Point) -> int:
+    return point.drive.dim
+
+
+def point_mesh(point: Point, n: int) -> fl.FloquetMesh:
+    """``U(k)`` diagonalised on an ``n^d`` mesh, memoised."""
+    return point.memo(("floquet_mesh", n), lambda: fl.floquet_mesh(point.drive, n, _dim(point)))
+
+
+def point_gaps(point: Point, kmesh: int = GAP_KMESH, refine: bool = True) -> fl.FloquetGaps:
+    """Quasienergy gaps at 0 and pi/T, memoised."""
+    return point.memo(("floquet_gaps", kmesh, bool(refine)),
+                      lambda: fl.floquet_gaps(point.drive, point_mesh(point, kmesh),
+                                              refine=refine))
+
+
+def _need_drive(point: Point) -> None:
+    if point.drive is None:
+        raise ValueError("this measurement needs a periodic drive; the job has none")
+
+
+def _gap_quantities(dim: int) -> tuple[Quantity, ...]:
+    qs = [Quantity("gap_0", "float64", "energy",
+                   "quasienergy gap at 0: width of the window around 0 that no band enters"),
+          Quantity("gap_pi", "float64", "energy",
+                   "quasienergy gap at pi/T: width of the window around pi/T that no band "
+                   "enters")]
+    for g in ("0", "pi"):
+        for i in range(1, dim + 1):
+            qs.append(Quantity(f"gap_{g}_k{i}", "float64", "1",
+                               f"k{i} of the smallest gap at {g}, in units of b{i} "
+                               f"(k{i} / 2 pi, in [-0.5, 0.5))"))
+    return tuple(qs)
+
+
+@MEASUREMENTS.register(
+    "quasienergy_gaps",
+    description="quasienergy gaps at 0 and pi/T of the Floquet operator and where they close",
+    source="uniform k-mesh, lowest local minima refined in continuous k with scipy.optimize; "
+           "closings are where U(k) has eigenvalue +1 or -1",
+    params=(Param("kmesh", kind="int", default=GAP_KMESH, low=4, doc=_KMESH_DOC,
+                  sweepable=False),
+            Param("refine", kind="bool", default=True, doc="refine minima in continuous k",
+                  sweepable=False)),
+    quantities=_gap_quantities, dims=(1, 2), driven=True, operators=(),
+)
+def quasienergy_gaps(point: Point, *, kmesh: int = GAP_KMESH, refine: bool = True
+                     ) -> dict[str, Any]:
+    """``gap_0 = 2 min |eps|``, ``gap_pi = 2 min (pi/T - |eps|)`` (energy) and their k.
+
+    Missing (nan) with ``NOT_CONVERGED`` when a harmonic drive's time slicing did not reach
+    its tolerance.
+    """
+    _need_drive(point)
+    g = point_gaps(point, kmesh, refine)
+    ok = g.converged
+    out: dict[str, Any] = {"gap_0": g.gap_0 if ok else math.nan,
+                           "gap_pi": g.gap_pi if ok else math.nan}
+    for name, k in (("0", g.k_0), ("pi", g.k_pi)):
+        for i, ki in enumerate(k, start=1):
+            out[f"gap_{name}_k{i}"] = float(ki / (2 * math.pi)) if ok else math.nan
+    out["reason"] = Reason.OK if ok else Reason.NOT_CONVERGED
+    return out
+
+
+@MEASUREMENTS.register(
+    "floquet_chern",
+    description="Chern numbers of the Floquet bands grouped between the 0 and pi gaps",
+    source="Fukui, Hatsugai and Suzuki, J. Phys. Soc. Jpn. 74, 1674 (2005), on Floquet "
+           "eigenvectors; band grouping as in " + _RUDNER,
+    params=(Param("kmesh", kind="int", default=inv.CHERN_KMESH, low=4,
+                  doc=_KMESH_DOC + "; the gap rule ceil(3.2/sqrt(gap/2)) may raise it",
+                  sweepable=False),
+            Param("max_kmesh", kind="int", default=inv.CHERN_MAX_KMESH, low=4,
+                  doc="largest k-mesh (points per direction)", sweepable=False),
+            Param("flux_tol", default=inv.FLUX_TOL, low=0.0, high=math.pi, open_low=True,
+                  open_high=True, units="rad",
+                  doc="largest accepted Berry flux through one plaquette", sweepable=False)),
+    quantities=(Quantity("floquet_chern_upper", "int32", "1",
+                         "Chern number of the Floquet bands with quasienergy in (0, pi/T)"),
+                Quantity("floquet_chern_lower", "int32", "1",
+                         "Chern number of the Floquet bands with quasienergy in (-pi/T, 0)"),
+                Quantity("floquet_chern_kmesh", "int32", "1", "k-mesh points per direction"),
+                Quantity("floquet_chern_max_flux", "float64", "rad",
+                         "largest plaquette Berry flux on that mesh")),
+    dims=(2,), driven=True, operators=(),
+)
+def floquet_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
+                  max_kmesh: int = inv.CHERN_MAX_KMESH, flux_tol: float = inv.FLUX_TOL
+                  ) -> dict[str, Any]:
+    """Chern numbers of the band groups above and below quasienergy 0.
+
+    Fixed layout whatever the number of bands: ``floquet_chern_upper`` is the group with
+    ``eps`` in ``(0, pi/T)`` (for two bands: the band above quasienergy 0),
+    ``floquet_chern_lower`` the group in ``(-pi/T, 0)``; an empty group has Chern number 0.
+    Both gaps must be open. Sign as :func:`sweepcli.physics.invariants.fhs_chern` (in the
+    high-frequency limit the groups are the static bands above and below zero energy).
+    """
+    _need_drive(point)
+    g = point_gaps(point)
+    r = fl.floquet_chern(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
+                         max_kmesh=max_kmesh, flux_tol=flux_tol,
+                         mesh_of=lambda n: point_mesh(point, n))
+    if not g.converged:
+        r = fl.FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
+    return {"floquet_chern_upper": r.upper, "floquet_chern_lower": r.lower,
+            "floquet_chern_kmesh": r.kmesh, "floquet_chern_max_flux": r.max_flux,
+            "reason": r.reason}
+
+
+@MEASUREMENTS.register(
+    "rudner_winding",
+    description="winding numbers W_0, W_pi of the periodised evolution (chiral edge modes in "
+                "the 0 and pi gaps, anomalous phases included)",
+    source=_RUDNER,
+    params=(Param("kmesh", kind="int", default=16, low=4, doc=_KMESH_DOC, sweepable=False),
+            Param("max_kmesh", kind="int", default=128, low=4,
+                  doc="largest k-mesh (points per direction)", sweepable=False),
+            Param("residue_tol", default=fl.RESIDUE_TOL, low=0.0, high=0.5, open_low=True,
+                  open_high=True,
+                  doc="largest accepted distance of the raw integral from an integer",
+                  sweepable=False)),
+    quantities=(Quantity("w_0", "int32", "1", "winding number of the gap at quasienergy 0"),
+                Quantity("w_pi", "int32", "1", "winding number of the gap at quasienergy pi/T"),
+                Quantity("w_residue", "float64", "1",
+                         "largest distance of the raw winding integrals from integers"),
+                Quantity("w_kmesh", "int32", "1", "k-mesh points per direction used last")),
+    dims=(2,), driven=True, operators=(),
+)
+def rudner_winding(point: Point, *, kmesh: int = 16, max_kmesh: int = 128,
+                   residue_tol: float = fl.RESIDUE_TOL) -> dict[str, Any]:
+    """``W_0``, ``W_pi``; sign such that ``C(band) = W(gap above) - W(gap below)``.
+
+    A winding is missing when its gap is closed (``GAP_CLOSED``; the other one is still given)
+    or when the integral does not settle within ``residue_tol`` (``NOT_CONVERGED``).
+    """
+    _need_drive(point)
+    g = point_gaps(point)
+    r = fl.rudner_winding(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
+                          max_kmesh=max_kmesh, residue_tol=residue_tol)
+    return {"w_0": r.w_0, "w_pi": r.w_pi, "w_residue": r.residue, "w_kmesh": r.kmesh,
+            "reason": r.reason}
+
+
+def _chiral_op(point: Point) -> np.ndarray:
+    ops = point.tb.operators
+    if "chiral" not in ops:
+        raise ValueError("this model (at these parameters) has no chiral operator")
+    return ops["chiral"]
+
+
+def _times(times: Any) -> list[float] | None:
+    if times is None:
+        return None
+    t = [float(x) for x in np.atleast_1d(np.asarray(times, dtype=float))]
+    return t or None
+
+
+@MEASUREMENTS.register(
+    "chiral_windings",
+    description="invariants nu_0, nu_pi of the 0 and pi gaps of a chiral-symmetric driven chain",
+    source=_CHIRAL,
+    params=(Param("times", kind="vector", default=None,
+                  doc="the two time-reversal-symmetric starting times t1, t2 (or t1 alone, "
+                      "t2 = t1 + T/2); found automatically for step drives", units="time",
+                  sweepable=False),
+            Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
+                  sweepable=False),
+            Param("max_kmesh", kind="int", default=4096, low=4,
+                  doc="largest k-mesh", sweepable=False),
+            Param("phase_tol", default=inv.PHASE_TOL, low=0.0, high=math.pi, open_low=True,
+                  open_high=True, units="rad",
+                  doc="largest accepted phase step of a determinant between neighbouring k",
+                  sweepable=False)),
+    quantities=(Quantity("nu_0", "int32", "1", "chiral invariant of the gap at quasienergy 0"),
+                Quantity("nu_pi", "int32", "1",
+                         "chiral invariant of the gap at quasienergy pi/T"),
+                Quantity("nu_kmesh", "int32", "1", "k-mesh points used last")),
+    dims=(1,), driven=True, operators=("chiral",),
+)
+def chiral_windings(point: Point, *, times: list[float] | None = None,
+                    kmesh: int = inv.WINDING_KMESH, max_kmesh: int = 4096,
+                    phase_tol: float = inv.PHASE_TOL) -> dict[str, Any]:
+    """``nu_0 = (nu + nu')/2``, ``nu_pi = (nu - nu')/2`` from the two symmetric frames.
+
+    ``nu`` belongs to the first symmetric time ``t1`` (the earliest segment centre or boundary
+    that is a mirror point, :meth:`~sweepcli.physics.drive.StepDrive.symmetric_times`); the
+    number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
+    """
+    _need_drive(point)
+    r = fl.chiral_windings(point.drive, _chiral_op(point), times=_times(times),
+                           gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
+                           phase_tol=phase_tol)
+    return {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh, "reason": r.reason}
+
+
+def _line_quantities(dim: int) -> tuple[Quantity, ...]:
+    qs = [Quantity("line_sectors", "int32", "1",
+                   "number of eigen-sectors of the symmetry operator (distinct eigenvalues)")]
+    for j in range(1, MAX_SECTORS + 1):
+        qs += [Quantity(f"line_phase_s{j}", "float64", "rad",
+                        f"phase of the symmetry eigenvalue of sector {j} (sectors ordered by "
+                        f"this phase in (-pi, pi])"),
+               Quantity(f"line_w0_s{j}", "int32", "1",
+                        f"winding of sector {j} at quasienergy 0"),
+               Quantity(f"line_wpi_s{j}", "int32", "1",
+                        f"winding of sector {j} at quasienergy pi/T")]
+    return tuple(qs)
+
+
+def _matrix(value: Any, n: int) -> np.ndarray:
+    m = pauli(value) if isinstance(value, str) else np.asarray(value, dtype=complex)
+    if m.shape != (n, n):
+        raise ValueError(f"the operator must be {n}x{n} for this model; got shape {m.shape}")
+    return m
+
+
+@MEASUREMENTS.register(
+    "line_winding",
+    description="symmetry-resolved windings at 0 and pi along an invariant line of the "
+                "Brillouin zone (counts corner or end modes per symmetry sector)",
+    source=_CHIRAL + "; sectors of a unitary symmetry that commutes with U(k) on the line",
+    params=(Param("operator", kind="matrix",
+                  doc="unitary symmetry operator S (matrix or Pauli word) that commutes with "
+                      "U(k) on the line", sweepable=False),
+            Param("direction", kind="vector",
+                  doc="integer direction of the line in reduced coordinates (it closes after "
+                      "s = 2 pi)", sweepable=False),
+            Param("origin", kind="vector", default=None,
+                  doc="origin of the line in reduced momenta (rad); default the zone centre",
+                  sweepable=False),
+            Param("times", kind="vector", default=None,
+                  doc="symmetric starting times t1, t2 (found automatically for step drives)",
+                  units="time", sweepable=False),
+            Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
+                  sweepable=False),
+            Param("max_kmesh", kind="int", default=4096, low=4, doc="largest k-mesh",
+                  sweepable=False)),
+    quantities=_line_quantities, dims=(1, 2), driven=True, operators=("chiral",),
+)
+def line_winding(point: Point, *, operator: Any, direction: list[float],
+                 origin: list[float] | None = None, times: list[float] | None = None,
+                 kmesh: int = inv.WINDING_KMESH, max_kmesh: int = 4096) -> dict[str, Any]:
+    """Per-sector ``nu_0``, ``nu_pi`` on the line ``k = origin + s direction``.
+
+    Layout: ``line_sectors`` = number of distinct eigenvalues of ``S`` (at most
+    ``MAX_SECTORS`` = 4); slot ``j`` (1-based) holds the sector with the ``j``-th smallest
+    eigenvalue phase ``line_phase_s{j}``; unused slots are missing (nan / None). The reason is
+    the worst over the sectors (a gapless sector makes its own windings missing). Raises
+    ValueError if ``S`` does not commute with ``U(k)`` on the line or with the chiral operator.
+    """
+    _need_drive(point)
+    drive = point.drive
+    n = drive.norb
+    s = _matrix(operator, n)
+    org = np.zeros(drive.dim) if origin is None else np.asarray(origin, dtype=float)
+    sectors = fl.line_sector_windings(drive, s, _chiral_op(point), origin=org,
+                                      direction=direction, times=_times(times),
+                                      gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh)
+    if len(sectors) > MAX_SECTORS:
+        raise ValueError(f"the operator has {len(sectors)} distinct eigenvalues; at most "
+                         f"{MAX_SECTORS} sectors are stored")
+    out: dict[str, Any] = {"line_sectors": len(sectors)}
+    worst = Reason.OK
+    for j in range(1, MAX_SECTORS + 1):
+        if j <= len(sectors):
+            sec = sectors[j - 1]
+            out[f"line_phase_s{j}"] = float(np.angle(sec.eigenvalue))
+            out[f"line_w0_s{j}"] = sec.result.nu_0
+            out[f"line_wpi_s{j}"] = sec.result.nu_pi
+            worst = max(worst, sec.result.reason)
+        else:
+            out[f"line_phase_s{j}"] = math.nan
+            out[f"line_w0_s{j}"] = None
+            out[f"line_wpi_s{j}"] = None
+    out["reason"] = Reason(worst)
+    return out

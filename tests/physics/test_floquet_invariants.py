@@ -1,0 +1,341 @@
+"""Floquet gaps and invariants against analytic results, published models and open chains.
+
+Independent references: closed-form quasienergies and windings of the step-driven chiral chain
+(derived below), end modes of open chains built by hand and evolved with scipy.linalg.expm,
+the static Chern numbers of numpy.linalg.eigh bands, and the anomalous five-step drive of
+Rudner, Lindner, Berg and Levin, PRX 3, 031005 (2013).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import scipy.linalg as sl
+
+from sweepcli.physics import floquet as fl
+from sweepcli.physics import invariants as inv
+from sweepcli.physics.drive import HarmonicDrive, StepDrive, floquet_operator
+from sweepcli.physics.lattice import assemble, pauli
+from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
+from sweepcli.physics.models import MODELS
+from sweepcli.physics.point import Point, Reason
+
+SZ = pauli("z")
+
+
+def model(name, **p):
+    return MODELS[name].func(**p)
+
+
+# ---------------------------------------------------------------------------------------------
+# The step-driven chiral chain (Asboth and Obuse, PRB 88, 121406 (2013); Asboth, Tarasinski and
+# Delplace, PRB 90, 125143 (2014)).
+#
+# Step 1 (T/2): intra-cell hopping v only, H1 = v sx. Step 2 (T/2): inter-cell w only,
+# H2 = w (cos k sx + sin k sy) (ssh docstring, basis A, B). With th1 = vT/2, th2 = wT/2 and
+# e^{-i th n.s} = cos th - i sin th n.s, the SU(2) product U = e^{-i th2 n2.s} e^{-i th1 sx} has
+#     cos(eps T) = cos th1 cos th2 - sin th1 sin th2 cos k,
+# so eps(k) = +-phi(k)/T. cos(eps T) is linear in cos k between cos(th1 + th2) (k = 0) and
+# cos(th1 - th2) (k = pi): the 0 gap closes where th1 +- th2 is an even multiple of pi, the pi
+# gap where it is an odd multiple. Half-period operator from t1 = T/4 (centre of step 1, chiral
+# sz): F = e^{-i (th2/2) n2.s} e^{-i (th1/2) sx}; with c_i = cos(th_i/2), s_i = sin(th_i/2),
+#     P_- F P_+ = F_BA = -i (c2 s1 + s2 c1 e^{ik}),   P_+ F P_+ = F_AA = c1 c2 - s1 s2 e^{-ik},
+# whence nu_0 = wind F_BA = 1 if |tan(th2/2)| > |tan(th1/2)| else 0 and
+# nu_pi = wind F_AA = -1 if |tan(th1/2) tan(th2/2)| > 1 else 0.
+
+
+def vw_drive(th1: float, th2: float, T: float = 1.0) -> StepDrive:
+    return StepDrive(T, ((T / 2, model("ssh", v=2 * th1 / T, w=0.0)),
+                         (T / 2, model("ssh", v=0.0, w=2 * th2 / T))))
+
+
+def vw_analytic(th1: float, th2: float) -> tuple[int, int]:
+    nu0 = int(abs(np.tan(th2 / 2)) > abs(np.tan(th1 / 2)))
+    nupi = -int(abs(np.tan(th1 / 2) * np.tan(th2 / 2)) > 1)
+    return nu0, nupi
+
+
+def open_chain(v: float, w: float, cells: int) -> np.ndarray:
+    # Asboth, Oroszlany and Palyi (2016), eq. 1.1, basis |m,A> = 2m, |m,B> = 2m+1.
+    h = np.zeros((2 * cells, 2 * cells))
+    for m in range(cells):
+        h[2 * m + 1, 2 * m] = h[2 * m, 2 * m + 1] = v
+    for m in range(cells - 1):
+        h[2 * m + 2, 2 * m + 1] = h[2 * m + 1, 2 * m + 2] = w
+    return h
+
+
+def end_modes(steps, T, gap0, gappi, cells=80):
+    """Numbers of quasienergies within a quarter of each gap of 0 and of pi/T (both ends)."""
+    u = np.eye(2 * cells, dtype=complex)
+    for d, (v, w) in steps:
+        u = sl.expm(-1j * d * open_chain(v, w, cells)) @ u
+    eps = -np.angle(np.linalg.eigvals(u)) / T
+    return (int(np.sum(np.abs(eps) < gap0 / 4)),
+            int(np.sum(np.pi / T - np.abs(eps) < gappi / 4)))
+
+
+def test_chiral_chain_dispersion():
+    th1, th2, T = 0.7, 2.1, 1.3
+    k = np.linspace(0, 2 * np.pi, 41)[:, None]
+    eps = fl.quasienergy_values(floquet_operator(vw_drive(th1, th2, T), k), T)
+    phi = np.arccos(np.cos(th1) * np.cos(th2) - np.sin(th1) * np.sin(th2) * np.cos(k[:, 0]))
+    np.testing.assert_allclose(eps, np.stack([-phi / T, phi / T], -1), atol=1e-10)
+
+
+@pytest.mark.parametrize("th1, th2", [(0.3, 0.9), (0.9, 0.3), (0.4, 2.0), (2.5, 2.9),
+                                      (0.6 * np.pi, 0.8 * np.pi), (0.8 * np.pi, 0.6 * np.pi),
+                                      (2.9, 1.0), (1.0, 1.4), (-0.4, 1.2)])
+def test_chiral_chain_phase_diagram(th1, th2):
+    r = fl.chiral_windings(vw_drive(th1, th2), SZ)
+    assert r.reason == Reason.OK
+    assert (r.nu_0, r.nu_pi) == vw_analytic(th1, th2)
+    assert (r.nu, r.nu_prime) == (r.nu_0 + r.nu_pi, r.nu_0 - r.nu_pi)
+
+
+def test_one_frame_alone_is_not_enough():
+    # th1 = 0.6 pi, th2 = 0.8 pi: nu_0 = 1, nu_pi = -1 (analytic, above) but the frame at
+    # t1 = T/4 has nu = 0: only the pair of frames sees both kinds of end modes.
+    th1, th2, T = 0.6 * np.pi, 0.8 * np.pi, 1.0
+    r = fl.chiral_windings(vw_drive(th1, th2, T), SZ)
+    assert (r.nu, r.nu_prime) == (0, 2) and (r.nu_0, r.nu_pi) == (1, -1)
+    modes = end_modes([(T / 2, (2 * th1 / T, 0.0)), (T / 2, (0.0, 2 * th2 / T))], T,
+                      r.gap_0, r.gap_pi)
+    assert modes == (2, 2)  # one 0 mode and one pi mode at each end
+
+
+@pytest.mark.parametrize("v1, w1, v2, w2, T", [(0.16, 0.52, -0.93, 1.47, 6.48),
+                                               (0.99, 0.37, -0.78, 1.38, 7.55),
+                                               (0.77, -1.37, 0.89, 0.70, 7.33)])
+def test_low_frequency_invariants_beyond_one(v1, w1, v2, w2, T):
+    # Two steps of SSH with both hoppings on; at low frequency the light cone of each step
+    # spans several cells and |nu| = 2 appears. Reference: the end modes of an 80-cell open
+    # chain (2 |nu_0| zero modes and 2 |nu_pi| pi modes, both ends).
+    d = StepDrive(T, ((T / 2, model("ssh", v=v1, w=w1)), (T / 2, model("ssh", v=v2, w=w2))))
+    r = fl.chiral_windings(d, SZ)
+    assert r.reason == Reason.OK and max(abs(r.nu_0), abs(r.nu_pi)) == 2
+    modes = end_modes([(T / 2, (v1, w1)), (T / 2, (v2, w2))], T, r.gap_0, r.gap_pi)
+    assert modes == (2 * abs(r.nu_0), 2 * abs(r.nu_pi))
+
+
+def test_half_period_route_equals_frames_route():
+    # A four-band chiral chain (two coupled legs, chiral operator diag(1, 1, -1, -1)) with random
+    # off-diagonal blocks in two steps: nu_0 = wind det P- F P+ and nu_pi = wind det P+ F P+
+    # (Asboth, Tarasinski and Delplace 2014) must equal (nu +- nu')/2 of the two frames.
+    rng = np.random.default_rng(3)
+    g = np.diag([1.0, 1.0, -1.0, -1.0]).astype(complex)
+
+    def chiral_tb():
+        def block(q):
+            out = np.zeros((4, 4), complex)
+            out[2:, :2] = q
+            return out
+        q0, q1 = (rng.normal(size=(2, 2)) + 1j * rng.normal(size=(2, 2)) for _ in range(2))
+        return assemble(np.eye(1), np.zeros((4, 1)), block(q0) + block(q0).conj().T,
+                        [((1,), block(q1) + block(rng.normal(size=(2, 2))).T)])
+
+    checked = 0
+    for _ in range(6):
+        T = rng.uniform(1.0, 3.0)
+        d = StepDrive(T, ((T / 2, chiral_tb()), (T / 2, chiral_tb())))
+        t1, t2 = d.symmetric_times(g)
+        k = fl._line(np.zeros(1), np.ones(1), 512)
+        u1, u2, f, _ = fl._frames_on(d, k, t1, t2)
+        r, step = fl.chiral_from_frames(u1, u2, f, g, T)
+        if r.reason != Reason.OK or step > 0.5:
+            continue
+        assert fl.half_period_windings(f, g) == (r.nu_0, r.nu_pi)
+        checked += 1
+    assert checked >= 3
+
+
+def test_frequency_sweep_closes_pi_gap_at_analytic_frequency():
+    # v = 0.5, w = 1, each for T/2: th1 + th2 = (v + w) T/2 = pi at omega = 2 pi/T = v + w.
+    # Near it the extreme of cos(eps T) sits at k = 0 with eps T = th1 + th2, so
+    # gap_pi = (2/T) |pi - (th1 + th2)|.
+    v, w = 0.5, 1.0
+
+    def drive(omega):
+        T = 2 * np.pi / omega
+        return StepDrive(T, ((T / 2, model("ssh", v=v, w=0.0)), (T / 2, model("ssh", v=0.0, w=w))))
+
+    for omega in (1.3, 1.45, 1.5, 1.56, 1.7):
+        d = drive(omega)
+        T = d.period
+        g = fl.floquet_gaps(d, fl.floquet_mesh(d, 33, 1))
+        assert g.gap_pi == pytest.approx(2 / T * abs(np.pi - (v + w) * T / 2), abs=1e-9)
+        assert abs(g.k_pi[0]) < 1e-6
+    assert fl.floquet_gaps(drive(1.5), fl.floquet_mesh(drive(1.5), 33, 1)).gap_pi < 1e-9
+    grid = np.linspace(1.2, 1.8, 7)
+    found = fl.transition_points(lambda om: floquet_operator(drive(om), np.zeros((1, 1))), grid)
+    assert [(t.gap, round(t.value, 10)) for t in found] == [("pi", v + w)]
+    # At the closing the pi invariant is missing, the 0 invariant still defined (half period).
+    r = fl.chiral_windings(drive(1.5), SZ)
+    assert r.reason == Reason.GAP_CLOSED and r.nu_pi is None and r.nu_0 == 1
+
+
+def test_high_frequency_limit_reproduces_static_qwz():
+    # A weak harmonic modulation of the QWZ mass at omega = 4 pi (pi/T = 2 pi above the static
+    # bandwidth 3): the Floquet bands are the static bands dressed perturbatively, so their
+    # Chern numbers are the static ones (numpy.linalg.eigh bands), the 0-gap winding is the
+    # Chern number of the bands below zero and the pi gap is trivial (Rudner et al. 2013).
+    T, m = 0.5, 1.0
+    d = HarmonicDrive(T, lambda t: model("qwz", m=m + 0.3 * np.cos(2 * np.pi * t / T)),
+                      tol=1e-7)
+    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
+    c = fl.floquet_chern(d, g)
+    static = inv.chern_number(model("qwz", m=m), 1).value
+    assert static == -1  # Qi, Wu and Zhang 2006 in this project's sign (invariants module)
+    assert c.reason == Reason.OK and (c.lower, c.upper) == (static, -static)
+    w = fl.rudner_winding(d, g)
+    assert w.reason == Reason.OK and (w.w_0, w.w_pi) == (static, 0) and w.residue < 1e-3
+
+
+def five_step(J: float, delta: float, T: float = 1.0, order=(1, 2, 3, 4)) -> StepDrive:
+    segs = [(T / 5, model("bipartite_square", **{f"j{mu}": J})) for mu in order]
+    return StepDrive(T, tuple(segs) + ((T / 5, model("bipartite_square", delta=delta)),))
+
+
+def test_anomalous_five_step_drive():
+    # Rudner et al. 2013: at J T/5 = pi/2 every step transfers a particle fully, U(k, 4T/5) = 1,
+    # all Floquet bands are flat with Chern number 0, and both gaps carry winding 1 (one chiral
+    # edge mode each); reversing the circulation reverses the sign.
+    T, delta = 1.0, 1.0
+    d = five_step(5 * np.pi / (2 * T), delta, T)
+    np.testing.assert_allclose(floquet_operator(d, np.array([[0.3, 1.7]]), start=0.0)[0],
+                               sl.expm(-1j * T / 5 * delta * SZ), atol=1e-12)
+    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 16, 2))
+    assert g.gap_0 == pytest.approx(2 * delta / 5) and g.gap_pi == pytest.approx(
+        2 * (np.pi - delta / 5))
+    c = fl.floquet_chern(d, g)
+    assert c.reason == Reason.OK and (c.upper, c.lower) == (0, 0)
+    w = fl.rudner_winding(d, g)
+    assert w.reason == Reason.OK and (w.w_0, w.w_pi) == (1, 1) and w.residue < 1e-9
+    rev = five_step(5 * np.pi / (2 * T), delta, T, order=(4, 3, 2, 1))
+    w = fl.rudner_winding(rev, fl.floquet_gaps(rev, fl.floquet_mesh(rev, 16, 2)))
+    assert (w.w_0, w.w_pi) == (-1, -1)
+
+
+@pytest.mark.parametrize("a, b, T", [(0.5, -2.5, 2.0), (-1.2, 2.7, 1.7), (1.5, -0.5, 3.0)])
+def test_band_chern_is_difference_of_gap_windings(a, b, T):
+    # Rudner et al. 2013: C(band) = W(gap above) - W(gap below); the band in (0, pi/T) lies
+    # between the 0 gap (below) and the pi gap (above). Two-step QWZ drives at low frequency
+    # have |C| up to 2 here.
+    d = StepDrive(T, ((T / 2, model("qwz", m=a)), (T / 2, model("qwz", m=b))))
+    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
+    c = fl.floquet_chern(d, g)
+    w = fl.rudner_winding(d, g)
+    assert c.reason == Reason.OK and w.reason == Reason.OK
+    assert c.upper == w.w_pi - w.w_0 and c.lower == w.w_0 - w.w_pi
+
+
+def test_closed_gap_gives_missing_values():
+    # m alternating 1 and 3: at k = (pi, pi) both steps are (m - 2) sz and commute, the mean
+    # mass vanishes and U = 1 there: the 0 gap is closed exactly, the pi gap open.
+    d = StepDrive(1.0, ((0.5, model("qwz", m=1.0)), (0.5, model("qwz", m=3.0))))
+    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
+    assert g.gap_0 < 1e-9 and np.allclose(np.abs(g.k_0), np.pi) and g.gap_pi > 0.1
+    c = fl.floquet_chern(d, g)
+    assert c.reason == Reason.GAP_CLOSED and c.upper is None and c.lower is None
+    w = fl.rudner_winding(d, g)
+    assert w.reason == Reason.GAP_CLOSED and w.w_0 is None and w.w_pi is not None
+
+
+# ---------------------------------------------------------------------------------------------
+# Symmetry-resolved windings along a line
+
+
+def two_chains(params, axis):
+    """Two SSH legs (orbitals 0, 1 and 2, 3) with inter-cell hopping along ``axis``."""
+    (v1, w1), (v2, w2) = params
+    onsite = np.zeros((4, 4), complex)
+    hop = np.zeros((4, 4), complex)
+    for o, (v, w) in zip((0, 2), params):
+        onsite[o, o + 1] = onsite[o + 1, o] = v
+        hop[o + 1, o] = w
+    dim = len(axis)
+    return assemble(np.eye(dim), np.zeros((4, dim)), onsite, [(tuple(axis), hop)],
+                    operators={"chiral": np.diag([1.0, -1, 1, -1])})
+
+
+def leg_drive(th, axis, T=1.0):
+    (a1, a2), (b1, b2) = th
+    return StepDrive(T, ((T / 2, two_chains(((2 * a1 / T, 0), (2 * b1 / T, 0)), axis)),
+                         (T / 2, two_chains(((0, 2 * a2 / T), (0, 2 * b2 / T)), axis))))
+
+
+def test_line_sector_windings():
+    th = ((0.3, 0.9), (0.6 * np.pi, 0.8 * np.pi))  # analytic (1, 0) and (1, -1)
+    s = np.diag([1.0, 1, -1, -1])
+    g = np.diag([1.0, -1, 1, -1])
+    secs = fl.line_sector_windings(leg_drive(th, (1,)), s, g, origin=[0.0], direction=[1])
+    # sectors ordered by the phase of the eigenvalue of S: +1 (leg 1) first, then -1 (leg 2)
+    assert np.allclose([sec.eigenvalue for sec in secs], [1, -1]) and secs[0].size == 2
+    assert [(x.result.nu_0, x.result.nu_pi) for x in secs] == [vw_analytic(*th[0]),
+                                                                vw_analytic(*th[1])]
+    # 2D legs hopping along a1 + a2: on the diagonal k = s (1, 1) the Bloch phase is e^{2is},
+    # so each sector's windings double; along k = s (1, 0) they are the chain's.
+    d2 = leg_drive(th, (1, 1))
+    diag = fl.line_sector_windings(d2, s, g, origin=[0.0, 0.0], direction=[1, 1])
+    assert [(x.result.nu_0, x.result.nu_pi) for x in diag] == [(2, 0), (2, -2)]
+    side = fl.line_sector_windings(d2, s, g, origin=[0.0, 0.3], direction=[1, 0])
+    assert [(x.result.nu_0, x.result.nu_pi) for x in side] == [(1, 0), (1, -1)]
+    # A static model: the winding of each sector's chiral block (SSH: 1 for |v| < |w|).
+    static = fl.line_sector_windings(two_chains(((0.3, 1.0), (1.5, 1.0)), (1,)), s, g,
+                                     origin=[0.0], direction=[1])
+    assert [x.result.nu_0 for x in static] == [1, 0]
+
+
+def test_line_winding_rejects_bad_operators():
+    d = leg_drive(((0.3, 0.9), (0.4, 1.1)), (1,))
+    g = np.diag([1.0, -1, 1, -1])
+    mixing = np.kron(pauli("x"), np.eye(2))  # swaps the legs, which differ
+    with pytest.raises(ValueError, match="does not commute with U\\(k\\)"):
+        fl.line_sector_windings(d, mixing, g, origin=[0.0], direction=[1])
+    with pytest.raises(ValueError, match="does not commute with the chiral operator"):
+        fl.line_sector_windings(d, np.kron(np.eye(2), pauli("x")), g, origin=[0.0],
+                                direction=[1])
+    with pytest.raises(ValueError, match="must be unitary"):
+        fl.line_sector_windings(d, 2 * np.eye(4), g, origin=[0.0], direction=[1])
+    with pytest.raises(ValueError, match="nonzero integer vector"):
+        fl.line_sector_windings(d, np.eye(4), g, origin=[0.0], direction=[0.5])
+
+
+# ---------------------------------------------------------------------------------------------
+# Measurements through a Point
+
+
+def driven_point(drive, build):
+    return Point(params={}, build=lambda q: build, drive=drive)
+
+
+def test_driven_measurement_records():
+    d = five_step(5 * np.pi / 2, 1.0)
+    pt = driven_point(d, model("bipartite_square"))
+    out = {}
+    for name in ("quasienergy_gaps", "floquet_chern", "rudner_winding"):
+        r = MEASUREMENTS[name].func(pt)
+        assert set(r) == {q.name for q in quantities_of(name, 2)} | {"reason"}
+        out.update(r)
+    assert out["gap_0"] == pytest.approx(0.4) and out["floquet_chern_upper"] == 0
+    assert (out["w_0"], out["w_pi"]) == (1, 1)
+    assert -0.5 <= out["gap_0_k1"] < 0.5
+    assert len([k for k in pt.cache if k[0] == "floquet_gaps"]) == 1
+
+    chain = driven_point(vw_drive(0.6 * np.pi, 0.8 * np.pi), model("ssh", v=0.5))
+    r = MEASUREMENTS["chiral_windings"].func(chain)
+    assert (r["nu_0"], r["nu_pi"], r["reason"]) == (1, -1, Reason.OK)
+    lw = MEASUREMENTS["line_winding"].func(
+        driven_point(leg_drive(((0.3, 0.9), (0.6 * np.pi, 0.8 * np.pi)), (1,)),
+                     two_chains(((0.5, 1.0), (0.5, 1.0)), (1,))),
+        operator=np.diag([1.0, 1, -1, -1]), direction=[1])
+    assert set(lw) == {q.name for q in quantities_of("line_winding", 1)} | {"reason"}
+    assert lw["line_sectors"] == 2 and lw["line_phase_s1"] == pytest.approx(0.0)
+    assert lw["line_phase_s2"] == pytest.approx(np.pi)
+    assert [lw[f"line_w{g}_s{j}"] for j in (1, 2) for g in ("0", "pi")] == [1, 0, 1, -1]
+    assert lw["line_w0_s3"] is None and np.isnan(lw["line_phase_s3"])
+    for name in ("quasienergy_gaps", "floquet_chern", "rudner_winding", "chiral_windings",
+                 "line_winding"):
+        assert MEASUREMENTS[name].extra["driven"] is True
+        for q in quantities_of(name, 2 if name not in ("chiral_windings",) else 1):
+            assert q.name == q.name.lower() and q.dtype in ("float64", "int32")
