@@ -193,7 +193,7 @@ def check(ctx: typer.Context,
         _fail(ctx, exc)
         return
     typer.echo(f"{job_file}: ok ({job.title})")
-    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); drive: {job.drive}")
+    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); drive: {job.drive.kind}")
     typer.echo(f"grid: {' x '.join(str(n) for n in job.shape)} = {job.size} points")
     for a in job.axes:
         typer.echo(f"  {a.name}: {len(a.values)} values, {a.values[0]:g} .. {a.values[-1]:g} ({a.spacing})")

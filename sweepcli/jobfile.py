@@ -34,12 +34,13 @@ LATTICES = {
     "square": np.eye(2),
     "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
 }
-DRIVE_KINDS = ("static",)
+DRIVE_KINDS = ("static", "steps", "harmonic", "kicks")
 MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
     Param("gap_tol", default=1e-6, low=0, open_low=True, doc="gaps below this count as closed"),
 )
 SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
+DRIVE_BUILDS = 20  # of which the drive is built at the first few
 
 
 @dataclass(frozen=True)
@@ -92,6 +93,85 @@ class CustomModel:
                         dict(self.operators))
 
 
+@dataclass(frozen=True)
+class DriveSpec:
+    """The ``[drive]`` table: the period (or angular frequency) and the protocol.
+
+    ``steps``: ``(span, overrides)`` with the span a fraction of the period; ``terms``
+    (harmonic): ``(parameter, amplitude, harmonic n, phase)`` adding
+    ``amplitude * cos(n omega t + phase)`` to the parameter; ``kicks``: ``(time, strength,
+    overrides)`` with the time a fraction of the period and the kick ``exp(-i strength H)``, H the
+    model at the overridden parameters. All entries are expressions of the job's parameters.
+    """
+
+    kind: str = "static"
+    period: Expression | None = None
+    omega: Expression | None = None
+    steps: tuple = ()
+    terms: tuple = ()
+    kicks: tuple = ()
+    tol: float = 1e-8
+    max_slices: int = 4096
+    scheme: str = "magnus4"
+    source: tuple = ()  # the table as given, for normalisation
+
+    @property
+    def names(self) -> frozenset[str]:
+        exprs = [e for e in (self.period, self.omega) if e is not None]
+        for span, over in self.steps:
+            exprs += [span, *(e for _, e in over)]
+        for _, amp, _, phase in self.terms:
+            exprs += [amp, phase]
+        for time, strength, over in self.kicks:
+            exprs += [time, strength, *(e for _, e in over)]
+        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
+
+    def normalised(self) -> dict:
+        return dict(self.source) if self.kind != "static" else {"kind": "static"}
+
+    @property
+    def always_set(self) -> frozenset[str]:
+        """Model parameters that every step sets (they need no value of their own)."""
+        if self.kind != "steps":
+            return frozenset()
+        return frozenset.intersection(*(frozenset(k for k, _ in over) for _, over in self.steps))
+
+    def period_at(self, values: Mapping[str, complex]) -> float:
+        if self.period is not None:
+            return _real(self.period(values))
+        omega = _real(self.omega(values))
+        return 2 * math.pi / omega if omega != 0 else math.inf
+
+    def compile(self, values: Mapping[str, complex], build):
+        """The drive at one grid point, as the physics core's drive object."""
+        from .physics import drive as dr
+
+        period = self.period_at(values)
+
+        def at(overrides) -> TightBinding:
+            return build({**values, **{k: e(values) for k, e in overrides}})
+
+        if self.kind == "steps":
+            return dr.StepDrive(period, tuple((_real(span(values)) * period, at(over))
+                                              for span, over in self.steps))
+        if self.kind == "kicks":
+            kicks = tuple((_real(time(values)) * period,
+                           dr.combine([(_real(strength(values)), at(over))]))
+                          for time, strength, over in self.kicks)
+            return dr.KickDrive(period, build(values), kicks)
+        omega = 2 * math.pi / period
+        terms = [(p, _real(a(values)), n, _real(ph(values))) for p, a, n, ph in self.terms]
+
+        def hamiltonian_at(t: float) -> TightBinding:
+            shifted = dict(values)
+            for p, amp, n, phase in terms:
+                shifted[p] = _real(shifted[p]) + amp * math.cos(n * omega * t + phase)
+            return build(shifted)
+
+        return dr.HarmonicDrive(period, hamiltonian_at, tol=self.tol, max_slices=self.max_slices,
+                                scheme=self.scheme)
+
+
 @dataclass(frozen=True, eq=False)
 class Job:
     """A validated, normalised job. Derived things (grids, k-meshes) are computed, never stored."""
@@ -106,7 +186,7 @@ class Job:
     fixed: tuple[tuple[str, float], ...]
     derived: tuple[tuple[str, Expression], ...]  # in evaluation order
     axes: tuple[Axis, ...]
-    drive: str
+    drive: DriveSpec
     measurements: tuple[tuple[str, tuple[tuple[str, Any], ...]], ...]
     filling: int | None
     gap_tol: float
@@ -149,7 +229,12 @@ class Job:
         return factory(**{p: _real(values[p]) for p in self.model_params})
 
     def point(self, index: int) -> Point:
-        return Point(params=self.values_at(index), build=self.build_model,
+        values = self.values_at(index)
+        drive = self.drive.compile(values, self.build_model) if self.drive.kind != "static" else None
+        if self.drive.always_set:
+            # Parameters that only the steps set: the static model is that of the first step.
+            values.update({k: e(values) for k, e in self.drive.steps[0][1] if k not in values})
+        return Point(params=values, build=self.build_model, drive=drive,
                      filling=self.filling, gap_tol=self.gap_tol)
 
 
@@ -362,30 +447,28 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         else:
             param = declared.get(key, Param(key))
             fixed[key] = ck.number("params", key, value, param)
+    missing = []
     for p in declared.values():
         if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
             if p.required:
-                what = f" ({p.doc})" if p.doc else ""
-                raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
-                               f"and must be {p.expectation()}; it is neither in [params] nor "
-                               "in [sweep].")
-            fixed[p.name] = p.default
+                missing.append(p)
+            else:
+                fixed[p.name] = p.default
     known = set(fixed) | set(exprs) | {a.name for a in axes}
     derived = _order_expressions(ck, exprs, known)
-    used = set(declared).union(*(e.names for e in exprs.values()))
+    drive = _drive(ck, ck.table(doc, "drive"), known, set(declared))
+    for p in missing:
+        if p.name not in drive.always_set:
+            what = f" ({p.doc})" if p.doc else ""
+            raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
+                           f"and must be {p.expectation()}; it is neither in [params] nor "
+                           "in [sweep]" + (" nor set by every [[drive.step]]."
+                                           if drive.kind == "steps" else "."))
+    used = set(declared).union(*(e.names for e in exprs.values())).union(drive.names)
     for key in list(params_t) + list(sweep_t):
         if key not in used:
             table = "params" if key in params_t else "sweep"
             raise ck.unknown(table, key, sorted(declared), what="parameter")
-
-    drive_t = ck.table(doc, "drive")
-    drive = drive_t.get("kind", "static")
-    for key in drive_t:
-        if key != "kind":
-            raise ck.unknown("drive", key, ["kind"])
-    if drive not in DRIVE_KINDS:
-        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
-                      drive, suggest(str(drive), DRIVE_KINDS))
 
     measure_t = ck.table(doc, "measure")
     settings: dict[str, Any] = {}
@@ -394,7 +477,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     for key, value in measure_t.items():
         if isinstance(value, dict):
             measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
-                                                   driven=drive != "static")))
+                                                   driven=drive.kind != "static")))
         elif key in setting_names:
             param = next(p for p in MEASURE_SETTINGS if p.name == key)
             settings[key] = ck.option("measure", key, value, param)
@@ -435,12 +518,12 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "params": {k: (v if not isinstance(v, complex) else str(v)) for k, v in sorted(fixed.items())}
                   | {k: e.text for k, e in sorted(exprs.items())},
         "sweep": {k: v for k, v in sweep_t.items()},
-        "drive": {"kind": drive},
+        "drive": drive.normalised(),
         **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
             | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
            if refine is not None else {}),
         "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
-                   | {m: dict(opts) for m, opts in measurements},
+                   | {m: {k: v for k, v in opts if v is not None} for m, opts in measurements},
     }
     normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
     job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
@@ -491,6 +574,166 @@ def _finer(axis: Axis, depth: int) -> Axis:
     # Keep the base values bit for bit, so a refined run and a coarse run share their points.
     vals[:: 2 ** depth] = axis.values
     return Axis(axis.name, tuple(float(v) for v in vals), axis.spacing)
+
+
+def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
+    kind = t.get("kind", "static")
+    if kind not in DRIVE_KINDS:
+        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
+                      kind, suggest(str(kind), DRIVE_KINDS))
+    allowed = {"static": ["kind"], "steps": ["kind", "period", "omega", "step"],
+               "harmonic": ["kind", "period", "omega", "term", "tol", "max_slices", "scheme"],
+               "kicks": ["kind", "period", "omega", "kick"]}[kind]
+    for key in t:
+        if key not in allowed:
+            raise ck.unknown("drive", key, allowed)
+    if kind == "static":
+        return DriveSpec()
+
+    def expr(table: str, key: str, value: object) -> Expression:
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            raise ck.fail(table, key, "a number or an arithmetic expression", value)
+        try:
+            e = parse(str(value))
+        except ExpressionError as exc:
+            raise ck.fail(table, key, "a number or an arithmetic expression", value,
+                          f" {exc}.") from None
+        for n in sorted(e.names):
+            if n not in known:
+                raise ck.fail(table, key, "an expression of defined parameters", value,
+                              f" {n!r} is not defined in [params] or [sweep].{suggest(n, known)}")
+        return e
+
+    def overrides(table: str, value: object) -> tuple:
+        if value is None:
+            return ()
+        if not isinstance(value, dict):
+            raise ck.fail(table, "set", "a table of model parameters and values, e.g. "
+                          "{ m = \"m1\" }", value)
+        out = []
+        for key, v in value.items():
+            if key not in model_params:
+                raise ck.unknown(f"{table}.set", key, sorted(model_params), what="model parameter")
+            out.append((key, expr(f"{table}.set", key, v)))
+        return tuple(out)
+
+    def entries(key: str) -> list[dict]:
+        value = t.get(key)
+        if not isinstance(value, list) or not value or not all(isinstance(v, dict) for v in value):
+            raise ck.fail("drive", key, f"one or more tables [[drive.{key}]]", value)
+        return value
+
+    if ("period" in t) == ("omega" in t):
+        raise ck.fail("drive", "period", "given, or omega instead (exactly one of them)",
+                      None if "period" not in t else "both")
+    period = expr("drive", "period", t["period"]) if "period" in t else None
+    omega = expr("drive", "omega", t["omega"]) if "omega" in t else None
+    spec: dict[str, Any] = {"kind": kind, "period": period, "omega": omega}
+    if kind == "steps":
+        steps = []
+        for i, step in enumerate(entries("step")):
+            table = f"drive.step.{i}"
+            for key in step:
+                if key not in ("span", "set"):
+                    raise ck.unknown(table, key, ["span", "set"])
+            if "span" not in step:
+                raise ck.fail(table, "span", "the fraction of the period this step lasts", None)
+            steps.append((expr(table, "span", step["span"]), overrides(table, step.get("set"))))
+        spec["steps"] = tuple(steps)
+    elif kind == "kicks":
+        kicks = []
+        for i, kick in enumerate(entries("kick")):
+            table = f"drive.kick.{i}"
+            for key in kick:
+                if key not in ("time", "strength", "set"):
+                    raise ck.unknown(table, key, ["time", "strength", "set"])
+            if "time" not in kick:
+                raise ck.fail(table, "time", "the kick time as a fraction of the period, in [0, 1)",
+                              None)
+            kicks.append((expr(table, "time", kick["time"]),
+                          expr(table, "strength", kick.get("strength", 1)),
+                          overrides(table, kick.get("set"))))
+        spec["kicks"] = tuple(kicks)
+    else:
+        terms = []
+        for i, term in enumerate(entries("term")):
+            table = f"drive.term.{i}"
+            for key in term:
+                if key not in ("param", "amplitude", "harmonic", "phase"):
+                    raise ck.unknown(table, key, ["param", "amplitude", "harmonic", "phase"])
+            param = term.get("param")
+            if param not in model_params:
+                raise ck.fail(table, "param", "a model parameter (" + ", ".join(sorted(model_params))
+                              + ")", param, suggest(str(param), model_params))
+            n = ck.number(table, "harmonic", term.get("harmonic", 1),
+                          Param("harmonic", kind="int", low=1))
+            terms.append((param, expr(table, "amplitude", term.get("amplitude")),
+                          n, expr(table, "phase", term.get("phase", 0))))
+        spec["terms"] = tuple(terms)
+        spec["tol"] = float(ck.number("drive", "tol", t.get("tol", 1e-8),
+                                      Param("tol", low=0, open_low=True)))
+        spec["max_slices"] = ck.number("drive", "max_slices", t.get("max_slices", 4096),
+                                       Param("max_slices", kind="int", low=8))
+        scheme = t.get("scheme", "magnus4")
+        if scheme not in ("magnus4", "midpoint"):
+            raise ck.fail("drive", "scheme", "\"magnus4\" or \"midpoint\"", scheme)
+        spec["scheme"] = scheme
+    return DriveSpec(**spec, source=tuple(t.items()))
+
+
+def _check_drive(ck: _Checker, job: Job, values: Mapping[str, complex], index: int,
+                 build: bool) -> None:
+    """Period, spans and kick times at one grid point; the drive must compile there."""
+    d = job.drive
+    where = f" at grid point {index}"
+    period = d.period_at(values)
+    key = "period" if d.period is not None else "omega"
+    if not (math.isfinite(period) and period > 0):
+        raise JobError(f"{ck.path}: [drive] {key} must give a positive, finite period; it gives "
+                       f"{period:g}{where}.")
+    if d.kind == "steps":
+        spans = [_real(span(values)) for span, _ in d.steps]
+        for i, sp in enumerate(spans):
+            if not sp >= 0:
+                raise JobError(f"{ck.path}: [drive.step.{i}] span must be a non-negative "
+                               f"fraction of the period; it is {sp:g}{where}.")
+        if abs(sum(spans) - 1) > 1e-9:
+            raise JobError(f"{ck.path}: [[drive.step]] spans must add up to one period (1); "
+                           f"they add up to {sum(spans):.12g}{where}.")
+    if d.kind == "kicks":
+        for i, (time, _, _) in enumerate(d.kicks):
+            tv = _real(time(values))
+            if not 0 <= tv < 1:
+                raise JobError(f"{ck.path}: [drive.kick.{i}] time must be a fraction of the "
+                               f"period in [0, 1); it is {tv:g}{where}.")
+    try:
+        if build:
+            d.compile(values, job.build_model)
+    except ValueError as exc:
+        raise JobError(f"{ck.path}: [drive] cannot be built{where}: {exc}.") from None
+
+
+def _check_line_operator(ck: _Checker, job: Job, point: Point) -> None:
+    """A line_winding operator must commute with H(k) of every part of the drive on the line."""
+    for name, options in job.measurements:
+        if name != "line_winding":
+            continue
+        opts = dict(options)
+        s = ck.matrix(f"measure.{name}", "operator", opts["operator"], job.norb)
+        direction = np.asarray(opts["direction"], float)
+        if direction.shape != (job.dim,):
+            raise ck.fail(f"measure.{name}", "direction", f"a list of {job.dim} integers",
+                          opts["direction"])
+        origin = np.zeros(job.dim) if opts.get("origin") is None else np.asarray(opts["origin"])
+        k = origin + np.linspace(0, 2 * np.pi, 7, endpoint=False)[:, None] * direction
+        parts = [tb for _, tb in point.drive.factors()] if point.drive is not None else [point.tb]
+        for tb in parts:
+            h = tb.bloch(k)
+            err = float(np.max(np.abs(s @ h - h @ s)))
+            if err > 1e-8 * max(1.0, float(np.max(np.abs(h)))):
+                raise JobError(f"{ck.path}: [measure.{name}] operator must commute with H(k) on "
+                               f"the line k = origin + s * {list(opts['direction'])}; it does not "
+                               f"(largest commutator entry {err:.3g} at the first grid point).")
 
 
 def _normalised_model(model: str, model_t: dict) -> dict:
@@ -731,6 +974,10 @@ def _check_values(ck: _Checker, job: Job, declared: dict[str, Param], exprs: dic
             if not param.admits(_real(v)):
                 raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
                               exprs[key].text, f" It evaluates to {_real(v):g} at grid point {int(i)}.")
+        if job.drive.kind != "static":
+            _check_drive(ck, job, values, int(i), build=i in idx[:DRIVE_BUILDS])
+        if i == idx[0]:
+            _check_line_operator(ck, job, job.point(int(i)))
         if job.custom is not None:
             tb = job.build_model(values)
             err = tb.hermiticity_error()

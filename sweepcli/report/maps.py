@@ -20,6 +20,12 @@ MISSING_COLOUR = "#bbbbbb"
 GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
 
 
+def gap_variable_for(results: Results, var: str) -> str | None:
+    """The gap whose closings bound the phases of ``var``: gap_pi for pi-gap quantities."""
+    order = ("gap_pi", "gap", "gap_0") if "pi" in var.split("_") else GAP_VARIABLES
+    return next((g for g in order if g in results.variables and g != var), None)
+
+
 def default_variable(results: Results) -> str:
     """The first integer invariant, else the first float variable."""
     plain = [v for v in results.variables.values() if not v.is_reason]
@@ -141,7 +147,7 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             ax.set_xscale("log")
         ax.set_xlabel(_label(axis))
         ax.set_ylabel(f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
-        gap_name = next((g for g in GAP_VARIABLES if g in results.variables and g != var), None)
+        gap_name = gap_variable_for(results, var)
         if gap_name is not None:
             twin = ax.twinx()
             gap = results.data[gap_name][index].astype(float)
@@ -177,7 +183,7 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             cmap = plt.get_cmap("viridis").with_extremes(bad=MISSING_COLOUR)
             mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")
             fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
-        gap_name = next((g for g in GAP_VARIABLES if g in results.variables), None)
+        gap_name = gap_variable_for(results, var)
         if gap_name is not None:
             # Evaluated points only: filled-in values of a refined file are flat by construction.
             gap = np.where(results.done[index].astype(bool),
