@@ -130,6 +130,10 @@ def run(ctx: typer.Context,
                             progress=progress, executor=executor,
                             selection=part.indices(job.size) if part else None)
         if not summary.interrupted:
+            if job.predict is not None and part is None:
+                from .run.predict import predict_transitions
+
+                results.tables["transitions"] = predict_transitions(job)
             results.attrs["finished"] = now()
             results.write(out)
     except SweepError as exc:

@@ -9,6 +9,7 @@ and what was given. Job files are data: expressions are parsed by :mod:`sweepcli
 from __future__ import annotations
 
 import hashlib
+import itertools
 import math
 import re
 import tomllib
@@ -28,7 +29,7 @@ from .physics.models import MODELS
 from .physics.point import Point, Quantity
 from .physics.registry import Param
 
-TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "output")
+TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "predict", "output")
 LATTICES = {
     "chain": np.array([[1.0]]),
     "square": np.eye(2),
@@ -195,6 +196,7 @@ class Job:
     dim: int
     norb: int
     refine: Refine | None = None
+    predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -212,12 +214,15 @@ class Job:
         """``(measurement, its quantities)`` in job order."""
         return [(name, quantities_of(name, self.dim)) for name, _ in self.measurements]
 
-    def values_at(self, index: int) -> dict[str, complex]:
-        """All parameter values (fixed, swept, derived) at flat grid index ``index``."""
+    def values_at(self, index: int, overrides: Mapping[str, float] | None = None
+                  ) -> dict[str, complex]:
+        """All parameter values (fixed, swept, derived) at flat grid index ``index``; swept
+        parameters in ``overrides`` take the given (off-grid) values instead."""
         multi = np.unravel_index(index, self.shape) if self.axes else ()
         values: dict[str, complex] = dict(self.fixed)
         for axis, i in zip(self.axes, multi):
             values[axis.name] = axis.values[i]
+        values.update(overrides or {})
         for name, expr in self.derived:
             values[name] = expr(values)
         return values
@@ -228,8 +233,8 @@ class Job:
         factory = MODELS[self.model].func
         return factory(**{p: _real(values[p]) for p in self.model_params})
 
-    def point(self, index: int) -> Point:
-        values = self.values_at(index)
+    def point(self, index: int, overrides: Mapping[str, float] | None = None) -> Point:
+        values = self.values_at(index, overrides)
         drive = self.drive.compile(values, self.build_model) if self.drive.kind != "static" else None
         if self.drive.always_set:
             # Parameters that only the steps set: the static model is that of the first step.
@@ -495,6 +500,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     gap_tol = float(settings.get("gap_tol", 1e-6))
 
     refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes)
+    predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
         axes = tuple(_finer(a, refine.depth) for a in axes)
 
@@ -519,6 +525,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                   | {k: e.text for k, e in sorted(exprs.items())},
         "sweep": {k: v for k, v in sweep_t.items()},
         "drive": drive.normalised(),
+        **({"predict": {"momenta": [list(k) for k in predict]}} if predict is not None else {}),
         **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
             | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
            if refine is not None else {}),
@@ -530,7 +537,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
-              dim=dim, norb=norb, refine=refine)
+              dim=dim, norb=norb, refine=refine, predict=predict)
     _check_values(ck, job, declared, exprs)
     return job
 
@@ -562,6 +569,33 @@ def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple) ->
             raise JobError(f"{ck.path}: [refine] needs ranges in [sweep]; {a.name} is an explicit "
                            "list.")
     return Refine(by, depth, gap_below, gap_var)
+
+
+def _predict(ck: _Checker, t: dict, dim: int, given: bool) -> tuple | None:
+    """Momenta (reduced, rad) at which transitions are predicted; default all of {0, pi}^dim."""
+    if not given:
+        return None
+    for key in t:
+        if key != "momenta":
+            raise ck.unknown("predict", key, ["momenta"])
+    if "momenta" not in t:
+        return tuple(tuple(float(x) for x in k)
+                     for k in itertools.product((0.0, math.pi), repeat=dim))
+    value = t["momenta"]
+    expected = f"a list of momenta, each {dim} reduced coordinates in rad (e.g. \"pi\")"
+    if not isinstance(value, list) or not value or not all(
+            isinstance(k, list) and len(k) == dim for k in value):
+        raise ck.fail("predict", "momenta", expected, value)
+    out = []
+    for k in value:
+        coords = []
+        for x in k:
+            c = ck.constant("predict", "momenta", x)
+            if isinstance(c, bool) or not isinstance(c, (int, float)):
+                raise ck.fail("predict", "momenta", expected, value)
+            coords.append(float(c))
+        out.append(tuple(coords))
+    return tuple(out)
 
 
 def _finer(axis: Axis, depth: int) -> Axis:

@@ -69,6 +69,41 @@ def select(results: Results, at: dict[str, float]) -> tuple[list[int], tuple]:
     return free, tuple(index)
 
 
+def _transition_rows(results: Results, index: tuple) -> list[dict]:
+    """Predicted transitions that lie on the drawn slice (other axes at their selected values)."""
+    table = results.tables.get("transitions")
+    if not table or not len(table["gap"]):
+        return []
+    keep = np.ones(len(table["gap"]), bool)
+    for a, i in zip(results.axes, index):
+        if isinstance(i, int) and len(a.values) > 1:
+            keep &= np.isclose(table[a.name], a.values[i], rtol=0, atol=1e-12 * (1 + abs(a.values[i])))
+    cols = list(table)
+    rows = [{c: table[c][j] for c in cols} for j in np.flatnonzero(keep)]
+    seen, out = set(), []
+    for r in rows:  # one legend entry per gap in 1D
+        key = (r["gap"], round(float(next(r[c] for c in cols if c == r["axis"])), 12))
+        if key not in seen:
+            seen.add(key)
+            out.append(r)
+    return out
+
+
+def _draw_transitions(ax, results: Results, index: tuple, x: str, y: str) -> list:
+    from matplotlib.lines import Line2D
+
+    rows = _transition_rows(results, index)
+    handles = []
+    for gap, marker, colour in (("0", "+", "tab:red"), ("pi", "x", "k")):
+        pts = [(r[x], r[y]) for r in rows if r["gap"] == gap]
+        if pts:
+            px, py = zip(*pts)
+            ax.plot(px, py, ls="", marker=marker, ms=4, mew=0.8, color=colour)
+            handles.append(Line2D([], [], ls="", marker=marker, color=colour,
+                                  label=f"predicted closing at {gap}"))
+    return handles
+
+
 def closing_nodes(gap: np.ndarray) -> np.ndarray:
     """Grid nodes nearest to a gap closing.
 
@@ -157,6 +192,10 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
         if is_int and np.isfinite(values).any():
             lo, hi = int(np.nanmin(values)), int(np.nanmax(values))
             ax.set_yticks(range(lo, hi + 1))
+        for row in _transition_rows(results, index):
+            ax.axvline(row[axis.name], color="k" if row["gap"] == "pi" else "tab:red", lw=0.8,
+                       ls=":" if row["gap"] == "pi" else "--",
+                       label=f"predicted closing at {row['gap']}")
         ax.legend(loc="best", fontsize=8)
     else:
         xa, ya = results.axes[free[0]], results.axes[free[1]]
@@ -196,6 +235,7 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
 
                 handles.append(Line2D([], [], color="k", marker=".", ls="", ms=4,
                                       label=f"{gap_name} closes within half a cell"))
+        handles += _draw_transitions(ax, results, index, xa.name, ya.name)
         if xa.spacing == "log":
             ax.set_xscale("log")
         if ya.spacing == "log":

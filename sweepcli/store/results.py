@@ -68,6 +68,8 @@ class Results:
         self.data = {v.name: np.full(shape, v.missing(), dtype=v.dtype) for v in variables}
         self.done = np.zeros(shape, dtype=np.uint8)
         self.failure = np.full(shape, "", dtype=object)
+        # Tables beside the grid (e.g. predicted transitions): name -> column -> 1-D array.
+        self.tables: dict[str, dict[str, np.ndarray]] = {}
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -156,6 +158,15 @@ class Results:
         ds = grid_dataset("failure", self.failure.astype(object),
                           dtype=h5py.string_dtype("utf-8"), **compress)
         ds.attrs["long_name"] = "error message of a point whose evaluation failed"
+        for name, columns in self.tables.items():
+            group = f.create_group(name)
+            group.attrs["columns"] = ",".join(columns)
+            for col, values in columns.items():
+                if values.dtype == object:
+                    group.create_dataset(col, data=values.astype(object),
+                                         dtype=h5py.string_dtype("utf-8"))
+                else:
+                    group.create_dataset(col, data=values)
 
     @classmethod
     def read(cls, path: str | Path) -> Results:
@@ -197,6 +208,12 @@ class Results:
             out.data[v.name] = f[v.name][()]
         out.done = f["done"][()]
         out.failure = np.array(f["failure"].asstr()[()], dtype=object).reshape(out.shape)
+        for name, group in f.items():
+            if isinstance(group, h5py.Group):
+                cols = [c for c in _text(group.attrs["columns"]).split(",") if c]
+                out.tables[name] = {c: (np.array(group[c].asstr()[()], dtype=object)
+                                        if h5py.check_string_dtype(group[c].dtype)
+                                        else group[c][()]) for c in cols}
         return out
 
 

@@ -1,0 +1,57 @@
+"""Predicted transition lines: where U(k*) (or H(k*)) at fixed momenta gets an eigenvalue +1 or
+-1 (a closing of the quasienergy gap at 0 or pi), located between neighbouring grid values.
+
+For each swept parameter and each line of the grid along it (the other parameters at their
+grid values), :func:`sweepcli.physics.floquet.transition_points` follows every eigenphase of
+``U(k*)`` by eigenvector overlap and finds its crossings of 0 and pi by root finding. A static
+job uses ``U = exp(-i tau H(k*))`` with ``tau`` small enough that phases stay within (-pi/2,
+pi/2): its 0 crossings are the zero-energy closings.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+
+from ..jobfile import Job
+from ..physics.drive import floquet_operator, hermitian_exponential
+from ..physics.floquet import transition_points
+
+
+def _operator(job: Job, k: np.ndarray):
+    def u_of(index: int, axis: str):
+        def at(p: float) -> np.ndarray:
+            point = job.point(index, {axis: p})
+            if point.drive is not None:
+                return floquet_operator(point.drive, k)
+            h = point.tb.bloch(k)
+            scale = float(np.max(np.sum(np.abs(h), axis=-1))) or 1.0
+            return hermitian_exponential(h, 0.5 / scale)
+        return at
+    return u_of
+
+
+def predict_transitions(job: Job) -> dict[str, np.ndarray]:
+    """A table (columns of equal length): ``axis`` (the parameter varied), one column per swept
+    parameter (the crossing point), ``gap`` ("0" or "pi") and ``k1``[, ``k2``] (k / 2 pi)."""
+    momenta = np.array(job.predict, dtype=float)
+    u_of = _operator(job, momenta)
+    rows: list[tuple] = []
+    names = [a.name for a in job.axes]
+    for ai, axis in enumerate(job.axes):
+        if len(axis.values) < 2:
+            continue
+        others = [range(len(a.values)) if i != ai else [0] for i, a in enumerate(job.axes)]
+        for multi in itertools.product(*others):
+            index = int(np.ravel_multi_index(multi, job.shape))
+            for t in transition_points(u_of(index, axis.name), axis.values):
+                coords = [a.values[m] for a, m in zip(job.axes, multi)]
+                coords[ai] = t.value
+                rows.append((axis.name, *coords, t.gap, *(momenta[t.index] / (2 * np.pi))))
+    table: dict[str, np.ndarray] = {}
+    columns = ["axis", *names, "gap", *(f"k{i + 1}" for i in range(job.dim))]
+    for j, col in enumerate(columns):
+        values = [r[j] for r in rows]
+        table[col] = np.array(values, dtype=object if col in ("axis", "gap") else float)
+    return table

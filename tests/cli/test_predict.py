@@ -1,0 +1,50 @@
+"""Predicted transition lines of a drive: where U(k*) at high-symmetry momenta has eigenvalue
++1 or -1, found between grid values by root finding, stored in the file and drawn by map."""
+
+import numpy as np
+from typer.testing import CliRunner
+
+from sweepcli.cli import app
+from sweepcli.store import Results
+
+JOB = """
+[model]
+name = "ssh"
+[sweep]
+omega = { start = 0.6, stop = 2.0, num = 15 }
+[drive]
+kind = "steps"
+omega = "omega"
+[[drive.step]]
+span = 0.5
+set = { v = 0.5, w = 0 }
+[[drive.step]]
+span = 0.5
+set = { v = 0, w = 1.0 }
+[measure.quasienergy_gaps]
+[predict]
+[output]
+path = "OUT"
+"""
+
+
+def test_predicted_closings_of_the_two_step_chain(tmp_path):
+    # Analytic (derived in tests/cli/test_driven_jobs.py): at k = 0, U = exp(-i (th1 + th2) s_x)
+    # with th1 + th2 = (v + w) T / 2 = pi (v + w) / omega: eigenvalue -1 at omega = v + w = 1.5,
+    # eigenvalue +1 at omega = (v + w) / 2 = 0.75. At k = pi, U = exp(-i (th1 - th2) s_x): its
+    # crossings (omega = |v - w| = 0.5 for pi, none for 0 with v != w) lie outside the range.
+    job = tmp_path / "job.toml"
+    out = tmp_path / "p.h5"
+    job.write_text(JOB.replace("OUT", str(out)))
+    result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
+    assert result.exit_code == 0, result.output
+    t = Results.read(out).tables["transitions"]
+    found = sorted((str(g), round(float(w), 9), float(k)) for g, w, k in
+                   zip(t["gap"], t["omega"], t["k1"]))
+    assert found == [("0", 0.75, 0.0), ("pi", 1.5, 0.0)]
+    # The computed gap closes where predicted: gap_pi is smallest at the grid value 1.5.
+    r = Results.read(out)
+    assert r.axis("omega").values[np.argmin(r.data["gap_pi"])] == 1.5
+    png = tmp_path / "p.png"
+    assert CliRunner().invoke(app, ["map", str(out), "--var", "gap_pi", "-o", str(png)]).exit_code == 0
+    assert png.stat().st_size > 10_000
