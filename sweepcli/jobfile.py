@@ -530,7 +530,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
             | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
            if refine is not None else {}),
         "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
-                   | {m: {k: v for k, v in opts if v is not None} for m, opts in measurements},
+                   | {m: {k: _plain(v) for k, v in opts if v is not None} for m, opts in measurements},
     }
     normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
     job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
@@ -753,7 +753,8 @@ def _check_line_operator(ck: _Checker, job: Job, point: Point) -> None:
         if name != "line_winding":
             continue
         opts = dict(options)
-        s = ck.matrix(f"measure.{name}", "operator", opts["operator"], job.norb)
+        op = opts["operator"]
+        s = point.tb.operators[op] if isinstance(op, str) else op
         direction = np.asarray(opts["direction"], float)
         if direction.shape != (job.dim,):
             raise ck.fail(f"measure.{name}", "direction", f"a list of {job.dim} integers",
@@ -768,6 +769,13 @@ def _check_line_operator(ck: _Checker, job: Job, point: Point) -> None:
                 raise JobError(f"{ck.path}: [measure.{name}] operator must commute with H(k) on "
                                f"the line k = origin + s * {list(opts['direction'])}; it does not "
                                f"(largest commutator entry {err:.3g} at the first grid point).")
+
+
+def _plain(value: Any) -> Any:
+    """A TOML-writable form: complex matrices become nested lists of numbers or "a+bj" strings."""
+    if isinstance(value, np.ndarray):
+        return [[(float(x.real) if x.imag == 0 else repr(complex(x))) for x in row] for row in value]
+    return value
 
 
 def _normalised_model(model: str, model_t: dict) -> dict:
@@ -957,7 +965,12 @@ def _measurement(ck: _Checker, name: str, options: dict, dim: int, norb: int,
         param = entry.param(key)
         if param is None:
             raise ck.unknown(table, key, [p.name for p in entry.params], what="option")
-        out.append((key, ck.option(table, key, value, param)))
+        if param.kind == "matrix" and isinstance(value, str) and value in have:
+            out.append((key, value))  # a cell operator of the model, looked up at each point
+        elif param.kind == "matrix":
+            out.append((key, ck.matrix(table, key, value, norb)))
+        else:
+            out.append((key, ck.option(table, key, value, param)))
     given = {k for k, _ in out}
     for p in entry.params:
         if p.name not in given:

@@ -22,7 +22,8 @@ GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
 
 def gap_variable_for(results: Results, var: str) -> str | None:
     """The gap whose closings bound the phases of ``var``: gap_pi for pi-gap quantities."""
-    order = ("gap_pi", "gap", "gap_0") if "pi" in var.split("_") else GAP_VARIABLES
+    pi_gap = any(token.endswith("pi") for token in var.split("_"))  # gap_pi, nu_pi, line_wpi_s1
+    order = ("gap_pi", "gap", "gap_0") if pi_gap else GAP_VARIABLES
     return next((g for g in order if g in results.variables and g != var), None)
 
 

@@ -245,8 +245,12 @@ def _line_quantities(dim: int) -> tuple[Quantity, ...]:
     return tuple(qs)
 
 
-def _matrix(value: Any, n: int) -> np.ndarray:
-    m = pauli(value) if isinstance(value, str) else np.asarray(value, dtype=complex)
+def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
+    """A matrix, a Pauli word, or the name of one of the model's cell operators."""
+    if isinstance(value, str):
+        m = operators[value] if operators and value in operators else pauli(value)
+    else:
+        m = np.asarray(value, dtype=complex)
     if m.shape != (n, n):
         raise ValueError(f"the operator must be {n}x{n} for this model; got shape {m.shape}")
     return m
@@ -289,7 +293,7 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
     _need_drive(point)
     drive = point.drive
     n = drive.norb
-    s = _matrix(operator, n)
+    s = _matrix(operator, n, point.tb.operators)
     org = np.zeros(drive.dim) if origin is None else np.asarray(origin, dtype=float)
     sectors = fl.line_sector_windings(drive, s, _chiral_op(point), origin=org,
                                       direction=direction, times=_times(times),

@@ -1,0 +1,22 @@
+"""results-schema.md documents every stored quantity of every registered measurement."""
+
+import re
+
+from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
+
+from .conftest import ROOT
+
+
+def test_every_quantity_is_documented():
+    text = (ROOT / "results-schema.md").read_text()
+    missing = []
+    for entry in MEASUREMENTS:
+        if f"`{entry.name}`" not in text:
+            missing.append(entry.name)
+        for dim in entry.extra.get("dims", (1, 2)):
+            for q in quantities_of(entry.name, dim):
+                # Numbered slots (line_w0_s3) are documented once with a placeholder.
+                name = re.sub(r"_s\d+$", "_sj", q.name)
+                if f"`{name}`" not in text and f"`{q.name}`" not in text:
+                    missing.append(q.name)
+    assert not sorted(set(missing))
