@@ -212,7 +212,8 @@ class Job:
 
     def quantities(self) -> list[tuple[str, tuple[Quantity, ...]]]:
         """``(measurement, its quantities)`` in job order."""
-        return [(name, quantities_of(name, self.dim)) for name, _ in self.measurements]
+        driven = self.drive.kind != "static"
+        return [(name, quantities_of(name, self.dim, driven)) for name, _ in self.measurements]
 
     def values_at(self, index: int, overrides: Mapping[str, float] | None = None
                   ) -> dict[str, complex]:
@@ -499,7 +500,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                       f"{norb} bands", filling)
     gap_tol = float(settings.get("gap_tol", 1e-6))
 
-    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes)
+    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes, drive.kind != "static")
     predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
         axes = tuple(_finer(a, refine.depth) for a in axes)
@@ -513,7 +514,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         raise ck.fail("output", "path", "a file path", output)
 
     axis_names = {a.name for a in axes}
-    clash = axis_names & {q.name for m, _ in measurements for q in quantities_of(m, dim)}
+    clash = axis_names & {q.name for m, _ in measurements
+                          for q in quantities_of(m, dim, drive.kind != "static")}
     if clash:
         raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
                        "measured quantity; rename it.")
@@ -542,15 +544,17 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     return job
 
 
-def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple) -> Refine | None:
+def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple,
+            driven: bool) -> Refine | None:
     if not t:
         return None
     allowed = ["by", "depth", "gap_below", "gap_var"]
     for key in t:
         if key not in allowed:
             raise ck.unknown("refine", key, allowed)
-    ints = [q.name for m, _ in measurements for q in quantities_of(m, dim) if q.dtype == "int32"]
-    floats = [q.name for m, _ in measurements for q in quantities_of(m, dim) if q.dtype == "float64"]
+    qs = [q for m, _ in measurements for q in quantities_of(m, dim, driven)]
+    ints = [q.name for q in qs if q.dtype == "int32"]
+    floats = [q.name for q in qs if q.dtype == "float64"]
     by = t.get("by")
     if by not in ints:
         raise ck.fail("refine", "by", "an integer quantity of the job's measurements (" +

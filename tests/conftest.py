@@ -1,7 +1,13 @@
 import os
-from pathlib import Path
 
-import pytest
+# One BLAS thread: with several threads this machine's OpenBLAS is up to 100x slower on the
+# small dense matrices of the suite (measured: a 576x576 eigh 13.6 s vs 0.1 s), and CI has 2 cores.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+from pathlib import Path  # noqa: E402
+
+import pytest  # noqa: E402
 
 # Rich error panels wrap long paths; a wide terminal keeps messages on one line for matching.
 os.environ.setdefault("COLUMNS", "300")

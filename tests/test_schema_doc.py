@@ -13,8 +13,9 @@ def test_every_quantity_is_documented():
     for entry in MEASUREMENTS:
         if f"`{entry.name}`" not in text:
             missing.append(entry.name)
-        for dim in entry.extra.get("dims", (1, 2)):
-            for q in quantities_of(entry.name, dim):
+        drives = {None: (False, True), True: (True,), False: (False,)}[entry.extra.get("driven")]
+        for dim, driven in ((d, dr) for d in entry.extra.get("dims", (1, 2)) for dr in drives):
+            for q in quantities_of(entry.name, dim, driven):
                 # Numbered slots (line_w0_s3) are documented once with a placeholder.
                 name = re.sub(r"_s\d+$", "_sj", q.name)
                 if f"`{name}`" not in text and f"`{q.name}`" not in text:

@@ -4,7 +4,8 @@ A measurement is registered with
 
 * ``params``: its options, declared with constraints (validated once, at job load);
 * ``quantities``: the stored variables, a tuple of :class:`~sweepcli.physics.point.Quantity` or a
-  callable ``quantities(dim) -> tuple`` when they depend on the lattice dimension;
+  callable ``quantities(dim, driven=False) -> tuple`` when they depend on the lattice dimension
+  or on whether the job is driven;
 * ``dims``: the lattice dimensions it applies to; ``driven``: ``False`` (static jobs only),
   ``True`` (driven jobs only) or ``None`` (both); ``operators``: names of cell operators the
   model must provide (``"chiral"``, ``"spin"``);
@@ -22,10 +23,11 @@ from ..registry import Registry
 MEASUREMENTS: Registry = Registry("measurement")
 
 
-def quantities_of(name: str, dim: int) -> tuple[Quantity, ...]:
-    """The variables measurement ``name`` stores for a lattice of dimension ``dim``."""
+def quantities_of(name: str, dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+    """The variables measurement ``name`` stores for a lattice of dimension ``dim`` in a static
+    (``driven=False``) or driven job."""
     q = MEASUREMENTS[name].extra["quantities"]
-    return tuple(q(dim) if callable(q) else q)
+    return tuple(q(dim, driven=driven) if callable(q) else q)
 
 
 # Importing the modules fills the registry.

@@ -56,7 +56,7 @@ def _need_drive(point: Point) -> None:
         raise ValueError("this measurement needs a periodic drive; the job has none")
 
 
-def _gap_quantities(dim: int) -> tuple[Quantity, ...]:
+def _gap_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = [Quantity("gap_0", "float64", "energy",
                    "quasienergy gap at 0: width of the window around 0 that no band enters"),
           Quantity("gap_pi", "float64", "energy",
@@ -231,7 +231,7 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     return {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh, "reason": r.reason}
 
 
-def _line_quantities(dim: int) -> tuple[Quantity, ...]:
+def _line_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = [Quantity("line_sectors", "int32", "1",
                    "number of eigen-sectors of the symmetry operator (distinct eigenvalues)")]
     for j in range(1, MAX_SECTORS + 1):

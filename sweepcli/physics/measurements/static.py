@@ -33,7 +33,7 @@ def point_gap(point: Point, nocc: int | None = None, kmesh: int = GAP_KMESH,
     return point.memo(key, lambda: band_gap(point.tb, nocc, kmesh, refine=refine))
 
 
-def _gap_quantities(dim: int) -> tuple[Quantity, ...]:
+def _gap_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = [Quantity("gap", "float64", "energy", "smallest direct gap above the occupied bands")]
     for i in range(1, dim + 1):
         qs.append(Quantity(f"gap_k{i}", "float64", "1",

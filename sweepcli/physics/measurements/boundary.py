@@ -1,0 +1,241 @@
+"""Measurements of open samples: end modes of chains, chiral edge modes of ribbons, corner modes.
+
+Static jobs build the samples from ``point.tb``; driven jobs from the steps of
+``point.drive.factors()`` (``(duration, TightBinding)`` in time order), evolved with
+:func:`sweepcli.physics.drive.evolve`. Conventions, windows and the classification criterion
+are in :mod:`sweepcli.physics.boundary`.
+
+Layout of the stored variables (``g`` is ``0``, plus ``pi`` for driven jobs):
+
+* ``end_modes``: ``end_modes_g`` (both ends), ``end_modes_g_left`` (the end at cell 0),
+  ``end_modes_g_right``, and ``end_modes_method``;
+* ``edge_modes``: ``chiral_edge_modes_g`` (net chiral modes on the low edge of the ribbon, +1
+  per mode moving towards +k_par) and ``edge_gap_g``;
+* ``corner_modes``: ``corner_modes_g`` (all corners) and one variable per corner,
+  ``corner_modes_g_00``, ``_10``, ``_01``, ``_11``, the two digits saying whether the corner
+  is at the low (0) or high (1) end of lattice directions a_1 and a_2; and
+  ``corner_modes_method``.
+
+``*_method`` is 0 for dense diagonalisation, 1 for Lanczos. The quantities of a driven job are
+``quantities(dim, driven=True)``. The stored reason is the first non-OK reason of the gaps
+(0 before pi): a closed gap at 0 leaves the ``_0`` variables missing while the ``_pi`` ones may
+still be filled.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from .. import boundary as bd
+from .. import samples
+from ..drive import converged_factors
+from ..lattice import kmesh
+from ..point import Point, Quantity, Reason
+from ..registry import Param
+from . import MEASUREMENTS
+from .static import point_gap
+
+METHOD_CODE = {"dense": 0, "sparse": 1}
+#: Bulk mesh (points per direction) on which the time slicing of a smooth drive is converged.
+FACTOR_KMESH = 8
+_GAPS = {False: ("0",), True: ("0", "pi")}
+_AT = {"0": "at zero (quasi)energy", "pi": "at quasienergy pi/T"}
+_CORNERS = ("00", "10", "01", "11")
+
+_WINDOW = Param("window", default=bd.WINDOW_FRACTION, low=0.0, high=1.0, open_low=True,
+                doc="half-width of the in-gap window as a fraction of half the bulk gap",
+                sweepable=False)
+_METHOD = Param("method", kind="choice", default="auto", choices=("auto", "dense", "sparse"),
+                doc="dense diagonalisation, Lanczos, or chosen by sample size",
+                sweepable=False)
+
+
+def _windows(point: Point, fraction: float) -> dict[str, bd.Window]:
+    """Windows of the point's gaps, memoised (``{"0": ...}`` static, ``{"0", "pi"}`` driven)."""
+    if point.drive is None:
+        # The direct gap is the one the gap and invariant measurements memoise.
+        return point.memo(("boundary.window", point.nocc, fraction),
+                          lambda: {"0": bd.static_window(point.tb, point.nocc, fraction,
+                                                         direct_gap=point_gap(point).gap)})
+    return point.memo(("boundary.floquet_windows", fraction),
+                      lambda: bd.floquet_windows(_factors(point), fraction))
+
+
+def _factors(point: Point) -> list | None:
+    """The drive's steps over one period, or ``None`` if a smooth drive's slicing failed.
+
+    :func:`~sweepcli.physics.drive.converged_factors` doubles the slices of a harmonic drive
+    until the bulk ``U(k)`` on a coarse mesh stops changing; step and kick drives return their
+    own factors.
+    """
+    def compute() -> list | None:
+        fs, ev = converged_factors(point.drive, kmesh(FACTOR_KMESH, point.drive.dim))
+        return list(fs) if ev.converged else None
+
+    return point.memo(("boundary.factors",), compute)
+
+
+def _unsliced(name: str, point: Point) -> dict[str, Any] | None:
+    """All-missing result (``NOT_CONVERGED``) when a drive's time slicing did not converge."""
+    if point.drive is None or _factors(point) is not None:
+        return None
+    out: dict[str, Any] = {q.name: (None if q.dtype.startswith("int") else float("nan"))
+                           for q in MEASUREMENTS[name].extra["quantities"](point.drive.dim, True)}
+    out["reason"] = Reason.NOT_CONVERGED
+    return out
+
+
+def _reason(results: dict[str, Any]) -> Reason:
+    for r in results.values():
+        if r.reason != Reason.OK:
+            return r.reason
+    return Reason.OK
+
+
+def _end_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+    qs = []
+    for g in _GAPS[driven]:
+        qs += [Quantity(f"end_modes_{g}", "int32", "1", f"end modes of an open chain {_AT[g]}"),
+               Quantity(f"end_modes_{g}_left", "int32", "1", f"end modes {_AT[g]} at cell 0"),
+               Quantity(f"end_modes_{g}_right", "int32", "1", f"end modes {_AT[g]} at the last "
+                                                               f"cell")]
+    qs.append(Quantity("end_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
+    return tuple(qs)
+
+
+@MEASUREMENTS.register(
+    "end_modes",
+    description="modes bound to the ends of an open chain, counted per end",
+    source="Su, Schrieffer and Heeger, PRL 42, 1698 (1979); Kitaev, Physics-Uspekhi 44, 131 "
+           "(2001); Asboth and Obuse, PRB 88, 121406 (2013) for drives",
+    params=(Param("cells", kind="int", default=40, low=4, doc="chain length in cells",
+                  sweepable=False),
+            _WINDOW,
+            Param("end_size", kind="int", default=bd.CORNER_SIZE, low=1,
+                  doc="cells counted from each end as its end region (chain length >= 4x)",
+                  sweepable=False),
+            _METHOD),
+    quantities=_end_quantities, dims=(1,), driven=None, operators=(),
+)
+def end_modes(point: Point, *, cells: int = 40, window: float = bd.WINDOW_FRACTION,
+              end_size: int = bd.CORNER_SIZE, method: str = "auto") -> dict[str, Any]:
+    """End modes of a chain of ``cells`` cells: total and per end, at 0 (and pi/T if driven)."""
+    missing = _unsliced("end_modes", point)
+    if missing is not None:
+        return missing
+    results = _box(point, (cells,), window, end_size, method)
+    out: dict[str, Any] = {}
+    for g, r in results.items():
+        pc = r.per_corner
+        out[f"end_modes_{g}"] = r.total
+        out[f"end_modes_{g}_left"] = None if pc is None else int(pc[0])
+        out[f"end_modes_{g}_right"] = None if pc is None else int(pc[1])
+    out["end_modes_method"] = METHOD_CODE[next(iter(results.values())).method]
+    out["reason"] = _reason(results)
+    return out
+
+
+def _box(point: Point, shape: tuple[int, ...], fraction: float, corner_size: int, method: str
+         ) -> dict[str, bd.ModeCount]:
+    # Sizes are checked before the bulk window is computed, so a bad sample fails at once.
+    bd.check_region_size(shape, corner_size)
+    driven = point.drive is not None
+    tb0 = _factors(point)[0][1] if driven else point.tb
+    samples.choose_method(tb0, shape, method, driven=driven)
+    wins = _windows(point, fraction)
+    if not driven:
+        return {"0": bd.box_modes(tb0, shape, wins["0"], corner_size=corner_size, method=method,
+                                  gap_tol=point.gap_tol)}
+    return bd.floquet_box_modes(_factors(point), shape, wins, corner_size=corner_size,
+                                method=method, gap_tol=point.gap_tol)
+
+
+def _edge_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+    qs = []
+    for g in _GAPS[driven]:
+        qs += [Quantity(f"chiral_edge_modes_{g}", "int32", "1",
+                        f"net chiral modes {_AT[g]} on the low edge of a ribbon (+1 towards "
+                        f"+k_par)"),
+               Quantity(f"edge_gap_{g}", "float64", "energy",
+                        f"gap of the ribbon spectrum {_AT[g]}, minimised over k_par")]
+    return tuple(qs)
+
+
+@MEASUREMENTS.register(
+    "edge_modes",
+    description="chiral edge modes and edge gap of a ribbon (open across, periodic along)",
+    source="Hatsugai, PRL 71, 3697 (1993) (bulk-edge correspondence); Rudner, Lindner, Berg "
+           "and Levin, PRX 3, 031005 (2013) for drives",
+    params=(Param("width", kind="int", default=24, low=4, doc="ribbon width in cells",
+                  sweepable=False),
+            _WINDOW,
+            Param("open_axis", kind="choice", default=1, choices=(0, 1),
+                  doc="lattice direction cut open (0: a_1, 1: a_2); the other stays periodic",
+                  sweepable=False),
+            Param("nk", kind="int", default=128, low=8,
+                  doc="first number of k_par points (doubled until crossings resolve)",
+                  sweepable=False)),
+    quantities=_edge_quantities, dims=(2,), driven=None, operators=(),
+)
+def edge_modes(point: Point, *, width: int = 24, window: float = bd.WINDOW_FRACTION,
+               open_axis: int = 1, nk: int = 128) -> dict[str, Any]:
+    """Net chiral edge modes on the low edge and the edge gap, per gap."""
+    missing = _unsliced("edge_modes", point)
+    if missing is not None:
+        return missing
+    wins = _windows(point, window)
+    if point.drive is None:
+        results = {"0": bd.ribbon_modes(point.tb, width, wins["0"], open_axis=open_axis, nk=nk,
+                                        gap_tol=point.gap_tol)}
+    else:
+        results = bd.floquet_ribbon_modes(_factors(point), width, wins, open_axis=open_axis,
+                                          nk=nk, gap_tol=point.gap_tol)
+    out: dict[str, Any] = {}
+    for g, r in results.items():
+        out[f"chiral_edge_modes_{g}"] = r.chiral
+        out[f"edge_gap_{g}"] = r.edge_gap
+    out["reason"] = _reason(results)
+    return out
+
+
+def _corner_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+    qs = []
+    for g in _GAPS[driven]:
+        qs.append(Quantity(f"corner_modes_{g}", "int32", "1",
+                           f"corner modes of a square flake {_AT[g]}, all corners"))
+        for c in _CORNERS:
+            qs.append(Quantity(f"corner_modes_{g}_{c}", "int32", "1",
+                               f"corner modes {_AT[g]} at the corner ({c[0]}, {c[1]}) "
+                               f"(0 low, 1 high end of a_1, a_2)"))
+    qs.append(Quantity("corner_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
+    return tuple(qs)
+
+
+@MEASUREMENTS.register(
+    "corner_modes",
+    description="modes bound to the corners of a square flake, counted per corner",
+    source="Benalcazar, Bernevig and Hughes, Science 357, 61 (2017); Schindler et al., Science "
+           "Advances 4, eaat0346 (2018)",
+    params=(Param("size", kind="int", default=16, low=4, doc="flake side L in cells (L x L)",
+                  sweepable=False),
+            _WINDOW,
+            Param("corner_size", kind="int", default=bd.CORNER_SIZE, low=1,
+                  doc="side of the square corner regions in cells (L >= 4x)", sweepable=False),
+            _METHOD),
+    quantities=_corner_quantities, dims=(2,), driven=None, operators=(),
+)
+def corner_modes(point: Point, *, size: int = 16, window: float = bd.WINDOW_FRACTION,
+                 corner_size: int = bd.CORNER_SIZE, method: str = "auto") -> dict[str, Any]:
+    """Corner modes of an ``size x size`` flake: total and per corner, at 0 (and pi/T)."""
+    missing = _unsliced("corner_modes", point)
+    if missing is not None:
+        return missing
+    results = _box(point, (size, size), window, corner_size, method)
+    out: dict[str, Any] = {}
+    for g, r in results.items():
+        out[f"corner_modes_{g}"] = r.total
+        for i, c in enumerate(_CORNERS):
+            out[f"corner_modes_{g}_{c}"] = None if r.per_corner is None else int(r.per_corner[i])
+    out["corner_modes_method"] = METHOD_CODE[next(iter(results.values())).method]
+    out["reason"] = _reason(results)
+    return out
