@@ -266,6 +266,7 @@ def map_(ctx: typer.Context,
          at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (nearest grid value).")] = None,
          terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
          width: Annotated[Optional[int], typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
+         mark_disagree: Annotated[bool, typer.Option("--mark-disagree", help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
     from .report.maps import draw_map
@@ -280,7 +281,8 @@ def map_(ctx: typer.Context,
             text = terminal_map(results, var, _parse_at(at or []), width, colour=want_colour())
         else:
             out = output or results_file.with_name(results_file.stem + f"-{var or 'map'}.png")
-            written = draw_map(results, out, var=var, at=_parse_at(at or []))
+            written = draw_map(results, out, var=var, at=_parse_at(at or []),
+                               mark_disagree=mark_disagree)
     except SweepError as exc:
         _fail(ctx, exc)
         return

@@ -215,6 +215,12 @@ class Job:
         driven = self.drive.kind != "static"
         return [(name, quantities_of(name, self.dim, driven)) for name, _ in self.measurements]
 
+    def consistency_rules(self) -> list:
+        """Bulk-boundary rules that apply to the quantities this job stores."""
+        from .run.consistency import rules_for
+
+        return rules_for({q.name for _, qs in self.quantities() for q in qs})
+
     def values_at(self, index: int, overrides: Mapping[str, float] | None = None
                   ) -> dict[str, complex]:
         """All parameter values (fixed, swept, derived) at flat grid index ``index``; swept
@@ -782,6 +788,34 @@ def _plain(value: Any) -> Any:
     return value
 
 
+SAMPLE_SHAPES = {"end_modes": ("cells", "end_size", 1), "corner_modes": ("size", "corner_size", 2)}
+
+
+def _check_samples(ck: _Checker, job: Job, point: Point) -> None:
+    """Open samples must be large enough for their end/corner regions and fit in memory;
+    both are known before any work starts."""
+    from .physics import boundary, samples
+
+    for name, options in job.measurements:
+        if name not in SAMPLE_SHAPES:
+            continue
+        size_key, region_key, dims = SAMPLE_SHAPES[name]
+        opts = dict(options)
+        shape = (opts[size_key],) * dims
+        tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
+        try:
+            boundary.check_region_size(shape, opts[region_key])
+        except ValueError as exc:
+            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} is too "
+                           f"small: {exc}.") from None
+        try:
+            samples.choose_method(tb, shape, opts.get("method", "auto"),
+                                  driven=point.drive is not None)
+        except ValueError as exc:
+            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} needs "
+                           f"more memory than this machine has: {exc}.") from None
+
+
 def _normalised_model(model: str, model_t: dict) -> dict:
     if model != "custom":
         return {"name": model}
@@ -1028,7 +1062,9 @@ def _check_values(ck: _Checker, job: Job, declared: dict[str, Param], exprs: dic
         if job.drive.kind != "static":
             _check_drive(ck, job, values, int(i), build=i in idx[:DRIVE_BUILDS])
         if i == idx[0]:
-            _check_line_operator(ck, job, job.point(int(i)))
+            first = job.point(int(i))
+            _check_line_operator(ck, job, first)
+            _check_samples(ck, job, first)
         if job.custom is not None:
             tb = job.build_model(values)
             err = tb.hermiticity_error()

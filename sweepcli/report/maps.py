@@ -142,8 +142,17 @@ def _label(axis) -> str:
     return name + unit
 
 
+def disagreement(results: Results) -> np.ndarray:
+    """Grid mask of points where any bulk-boundary flag (``agree_*``) is 0."""
+    mask = np.zeros(results.shape, bool)
+    for name, v in results.variables.items():
+        if name.startswith("agree_") and v.dtype == "int32":
+            mask |= results.done.astype(bool) & (results.data[name] == 0)
+    return mask
+
+
 def draw_map(results: Results, out: str | Path, var: str | None = None,
-             at: dict[str, float] | None = None) -> Path:
+             at: dict[str, float] | None = None, mark_disagree: bool = False) -> Path:
     """Draw ``var`` (default: the first integer invariant) to ``out``; format from the suffix."""
     out = Path(out)
     if out.suffix.lower() not in FORMATS:
@@ -193,6 +202,11 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
         if is_int and np.isfinite(values).any():
             lo, hi = int(np.nanmin(values)), int(np.nanmax(values))
             ax.set_yticks(range(lo, hi + 1))
+        if mark_disagree:
+            bad = disagreement(results)[index]
+            if bad.any():
+                ax.plot(x[bad], np.nan_to_num(values[bad]), ls="", marker="o", mfc="none",
+                        mec="crimson", ms=8, label="bulk and boundary disagree")
         for row in _transition_rows(results, index):
             ax.axvline(row[axis.name], color="k" if row["gap"] == "pi" else "tab:red", lw=0.8,
                        ls=":" if row["gap"] == "pi" else "--",
@@ -237,6 +251,15 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
                 handles.append(Line2D([], [], color="k", marker=".", ls="", ms=4,
                                       label=f"{gap_name} closes within half a cell"))
         handles += _draw_transitions(ax, results, index, xa.name, ya.name)
+        if mark_disagree:
+            bad = disagreement(results)[index]
+            if bad.any():
+                from matplotlib.lines import Line2D
+
+                gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")
+                ax.plot(gx[bad], gy[bad], ls="", marker="o", mfc="none", mec="crimson", ms=7)
+                handles.append(Line2D([], [], ls="", marker="o", mfc="none", mec="crimson",
+                                      label="bulk and boundary disagree"))
         if xa.spacing == "log":
             ax.set_xscale("log")
         if ya.spacing == "log":

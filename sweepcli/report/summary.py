@@ -96,6 +96,14 @@ def format_summary(s: Summary) -> str:
         for params, msg in s.failed:
             where = ", ".join(f"{k}={v:g}" for k, v in params.items())
             lines.append(f"  {where}: {msg}")
+    agree = [v for v in s.variables if v.name.startswith("agree_") and v.dtype == "int32"]
+    if agree:
+        lines.append("")
+        lines.append("bulk-boundary consistency:")
+        for v in agree:
+            bad, good = v.counts.get(0, 0), v.counts.get(1, 0)
+            lines.append(f"  {v.name}: {bad} of {bad + good} points disagree"
+                         + (f" ({v.missing} undecided: a side is missing)" if v.missing else ""))
     lines.append("")
     lines.append("variables:")
     for v in s.variables:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from ..jobfile import Job
 from ..physics.measurements import MEASUREMENTS, quantities_of
 from ..physics.point import Reason
+from .consistency import evaluate
 
 Record = tuple[int, dict, str]
 
@@ -28,6 +29,7 @@ def evaluate_point(job: Job, index: int) -> Record:
             failures.append(f"{name}: {type(exc).__name__}: {exc}")
         values.update(result)
         values[f"{name}_reason"] = int(reason)
+    values.update(evaluate(job.consistency_rules(), values))
     return index, values, "; ".join(failures)
 
 

@@ -35,6 +35,9 @@ def new_results(job: Job, argv: list[str] | None = None) -> Results:
             variables.append(Variable(q.name, q.dtype, q.units, q.long_name, measurement))
         variables.append(Variable(f"{measurement}_reason", "uint8", "1",
                                   f"why {measurement} is missing (0 = not missing)", measurement))
+    for rule in job.consistency_rules():
+        q = rule.quantity
+        variables.append(Variable(q.name, q.dtype, q.units, q.long_name, "consistency"))
     attrs = {
         "title": job.title,
         "job_name": job.name,

@@ -329,13 +329,14 @@ def test_driven_measurement_records():
         driven_point(leg_drive(((0.3, 0.9), (0.6 * np.pi, 0.8 * np.pi)), (1,)),
                      two_chains(((0.5, 1.0), (0.5, 1.0)), (1,))),
         operator=np.diag([1.0, 1, -1, -1]), direction=[1])
-    assert set(lw) == {q.name for q in quantities_of("line_winding", 1)} | {"reason"}
+    assert set(lw) == {q.name for q in quantities_of("line_winding", 1, driven=True)} | {"reason"}
     assert lw["line_sectors"] == 2 and lw["line_phase_s1"] == pytest.approx(0.0)
     assert lw["line_phase_s2"] == pytest.approx(np.pi)
     assert [lw[f"line_w{g}_s{j}"] for j in (1, 2) for g in ("0", "pi")] == [1, 0, 1, -1]
     assert lw["line_w0_s3"] is None and np.isnan(lw["line_phase_s3"])
+    assert MEASUREMENTS["line_winding"].extra["driven"] is None  # H(k) of a static job too
     for name in ("quasienergy_gaps", "floquet_chern", "rudner_winding", "chiral_windings",
                  "line_winding"):
-        assert MEASUREMENTS[name].extra["driven"] is True
+        assert MEASUREMENTS[name].extra["driven"] in (True, None)
         for q in quantities_of(name, 2 if name not in ("chiral_windings",) else 1):
             assert q.name == q.name.lower() and q.dtype in ("float64", "int32")

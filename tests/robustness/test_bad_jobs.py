@@ -175,3 +175,22 @@ def test_custom_model_matrix_of_the_wrong_size(tmp_path):
     msg = run_bad(tmp_path, CUSTOM.replace('matrix = "y"', 'matrix = "yy"').replace("1j*v", "v"))
     assert msg == ("JOB: [model.onsite.1] matrix must be a Pauli word such as \"zx\" or a square "
                    "matrix of numbers of size 2; got 'a matrix of size 4'.")
+
+
+def test_flake_too_small_for_its_corner_regions(tmp_path):
+    text = GOOD.replace('name = "qwz"', 'name = "bhz_corner"').replace("t = 1.0", "delta2 = 0.5")
+    text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 8\ncorner_size = 3")
+    msg = run_bad(tmp_path, text)
+    assert msg == ("JOB: [measure.corner_modes] size = 8 is too small: sample of 8 x 8 cells is too "
+                   "small for corner regions of 3 cells: each side needs at least 12 cells (4 x "
+                   "corner_size), so that an edge or bulk state cannot put more than half its "
+                   "weight into them.")
+
+
+def test_flake_too_large_for_the_machine(tmp_path):
+    text = GOOD.replace('name = "qwz"', 'name = "bhz_corner"').replace("t = 1.0", "delta2 = 0.5")
+    text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 4000\nmethod = \"dense\"")
+    msg = run_bad(tmp_path, text)
+    assert msg.startswith("JOB: [measure.corner_modes] size = 4000 needs more memory than this "
+                          "machine has: flake of 4000 x 4000 cells x 4 orbitals")
+    assert "GiB" in msg

@@ -239,9 +239,11 @@ def _line_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
                         f"phase of the symmetry eigenvalue of sector {j} (sectors ordered by "
                         f"this phase in (-pi, pi])"),
                Quantity(f"line_w0_s{j}", "int32", "1",
-                        f"winding of sector {j} at quasienergy 0"),
-               Quantity(f"line_wpi_s{j}", "int32", "1",
-                        f"winding of sector {j} at quasienergy pi/T")]
+                        f"winding of sector {j} at quasienergy 0" if driven else
+                        f"winding of sector {j} at energy 0")]
+        if driven:
+            qs.append(Quantity(f"line_wpi_s{j}", "int32", "1",
+                               f"winding of sector {j} at quasienergy pi/T"))
     return tuple(qs)
 
 
@@ -277,7 +279,7 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4, doc="largest k-mesh",
                   sweepable=False)),
-    quantities=_line_quantities, dims=(1, 2), driven=True, operators=("chiral",),
+    quantities=_line_quantities, dims=(1, 2), driven=None, operators=("chiral",),
 )
 def line_winding(point: Point, *, operator: Any, direction: list[float],
                  origin: list[float] | None = None, times: list[float] | None = None,
@@ -290,12 +292,11 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
     the worst over the sectors (a gapless sector makes its own windings missing). Raises
     ValueError if ``S`` does not commute with ``U(k)`` on the line or with the chiral operator.
     """
-    _need_drive(point)
-    drive = point.drive
-    n = drive.norb
+    source = point.drive if point.drive is not None else point.tb  # U(k) or, static, H(k)
+    n = source.norb
     s = _matrix(operator, n, point.tb.operators)
-    org = np.zeros(drive.dim) if origin is None else np.asarray(origin, dtype=float)
-    sectors = fl.line_sector_windings(drive, s, _chiral_op(point), origin=org,
+    org = np.zeros(source.dim) if origin is None else np.asarray(origin, dtype=float)
+    sectors = fl.line_sector_windings(source, s, _chiral_op(point), origin=org,
                                       direction=direction, times=_times(times),
                                       gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh)
     if len(sectors) > MAX_SECTORS:
@@ -308,11 +309,13 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
             sec = sectors[j - 1]
             out[f"line_phase_s{j}"] = float(np.angle(sec.eigenvalue))
             out[f"line_w0_s{j}"] = sec.result.nu_0
-            out[f"line_wpi_s{j}"] = sec.result.nu_pi
+            if point.drive is not None:
+                out[f"line_wpi_s{j}"] = sec.result.nu_pi
             worst = max(worst, sec.result.reason)
         else:
             out[f"line_phase_s{j}"] = math.nan
             out[f"line_w0_s{j}"] = None
-            out[f"line_wpi_s{j}"] = None
+            if point.drive is not None:
+                out[f"line_wpi_s{j}"] = None
     out["reason"] = Reason(worst)
     return out
