@@ -185,14 +185,18 @@ def merge(ctx: typer.Context,
 
 @app.command()
 def check(ctx: typer.Context,
-          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")]) -> None:
-    """Validate JOB and print its grid, measurements and a cost estimate; runs nothing."""
+          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+          time_one: Annotated[bool, typer.Option("--time-one", help="Also evaluate the middle grid point once and report its time (this runs one point).")] = False,
+          ) -> None:
+    """Validate JOB and print its grid, measurements and a cost estimate; runs nothing unless
+    --time-one is given."""
     from .jobfile import load_job
-    from .run.cost import estimate
+    from .run.cost import estimate, time_one_point
 
     try:
         job = load_job(job_file)
         cost = estimate(job)
+        measured = time_one_point(job) if time_one else None
     except SweepError as exc:
         _fail(ctx, exc)
         return
@@ -205,6 +209,10 @@ def check(ctx: typer.Context,
         opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
         typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
     typer.echo(f"cost estimate: {cost.format()}")
+    if measured is not None:
+        typer.echo(f"measured: {measured:.3g} s for the middle grid point; about "
+                   f"{measured * job.size / 3600:.2g} core-hours for the grid "
+                   "(use it with `sweepcli batch --seconds-per-point`)")
     typer.echo(f"output: {job.output}")
 
 
@@ -215,6 +223,7 @@ def batch(ctx: typer.Context,
           workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes per task.")] = 1,
           directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
           force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
+          seconds_per_point: Annotated[Optional[float], typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`).")] = None,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from .jobfile import load_job
@@ -224,7 +233,7 @@ def batch(ctx: typer.Context,
         job = load_job(job_file)
         if tasks > job.size:
             raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
-        p = plan(job, tasks, workers)
+        p = plan(job, tasks, workers, seconds_per_point)
         texts = scripts(job, str(job_file), p)
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:

@@ -24,10 +24,11 @@ class BatchPlan:
     points_per_task: int
 
 
-def plan(job: Job, tasks: int, workers: int) -> BatchPlan:
+def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = None) -> BatchPlan:
     cost = estimate(job)
+    per_point = cost.seconds_per_point if seconds_per_point is None else seconds_per_point
     per_task = math.ceil(job.size / tasks)
-    seconds = SAFETY * cost.seconds_per_point * per_task / workers + MARGIN_S
+    seconds = SAFETY * per_point * per_task / workers + MARGIN_S
     memory = math.ceil((cost.memory_bytes * workers) / 2**20) + 512
     return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task)
 

@@ -1,4 +1,5 @@
-"""A rough cost estimate for ``sweepcli check``, from sizes alone (nothing is run)."""
+"""Cost of a job for ``sweepcli check`` and ``sweepcli batch``: a rough estimate from sizes
+alone (nothing is run), or the measured time of one grid point when asked for."""
 
 from __future__ import annotations
 
@@ -40,3 +41,17 @@ def estimate(job: Job) -> Cost:
         per_point += 3.0 * kpts * job.norb ** 3 * SECONDS_PER_KPOINT_N3 * (1 + 2.25)
         peak = max(peak, 16 * kpts * job.norb ** 2 * 4)
     return Cost(per_point, job.size, peak + 200 * 2**20)
+
+
+def time_one_point(job: Job) -> float:
+    """Seconds to evaluate the middle grid point once (in this process, one BLAS thread)."""
+    import time
+
+    from threadpoolctl import threadpool_limits
+
+    from .worker import evaluate_point
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        t0 = time.perf_counter()
+        evaluate_point(job, job.size // 2)
+        return time.perf_counter() - t0

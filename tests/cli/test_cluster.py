@@ -140,3 +140,14 @@ def test_local_dask_cluster_equals_a_joblib_run(job, tmp_path):
                         cluster.scheduler_address, "--no-progress")
         assert result.exit_code == 0, result.output
     assert_same_content(tmp_path / "dask.h5", tmp_path / "joblib.h5")
+
+
+def test_check_can_time_one_point_and_batch_can_use_it(job, tmp_path):
+    result = invoke("check", job, "--time-one")
+    assert result.exit_code == 0, result.output
+    assert "measured: " in result.stdout and "s for the middle grid point" in result.stdout
+    result = invoke("batch", job, "--tasks", "3", "--seconds-per-point", "600", "--dir", tmp_path / "b")
+    assert result.exit_code == 0, result.output
+    # 9 points per task x 600 s x safety 2 + 10 min margin = 3 h 10 min.
+    assert "#SBATCH --time=03:10:00" in (tmp_path / "b" / "shardy.slurm.sh").read_text()
+    assert "#PBS -l walltime=03:10:00" in (tmp_path / "b" / "shardy.pbs.sh").read_text()

@@ -40,3 +40,21 @@ def test_readme_job_files_validate(tmp_path):
     result = CliRunner().invoke(app, ["check", str(job)])
     assert result.exit_code == 0, result.output
     assert "grid: 321 x 241 = 77361 points" in result.stdout
+
+
+def test_readme_drive_examples_validate(tmp_path):
+    steps = next(b for b in blocks("toml") if 'kind = "steps"' in b)
+    harmonic = next(b for b in blocks("toml") if 'kind = "harmonic"' in b)
+    out = f'[output]\npath = "{tmp_path / "d.h5"}"\n'
+    cases = [
+        ('[model]\nname = "bhz_corner"\n[params]\ndelta2 = 0.6\n[sweep]\nratio = [0.0, 1.0]\n'
+         'T = [1.0]\n[measure.quasienergy_gaps]\n' + steps, "grid: 2 x 1 = 2 points"),
+        ('[model]\nname = "qwz"\n[params]\nm = 1.0\n[sweep]\nA = [0.1]\nomega = [10.0]\n'
+         '[measure.quasienergy_gaps]\n' + harmonic, "grid: 1 x 1 = 1 points"),
+    ]
+    for text, grid in cases:
+        job = tmp_path / "drive.toml"
+        job.write_text(text + out)
+        result = CliRunner().invoke(app, ["check", str(job)])
+        assert result.exit_code == 0, result.output
+        assert grid in result.stdout
