@@ -269,6 +269,12 @@ class _Checker:
         return JobError(f"{self.path}: [{table}] has an unknown {what} {key!r} "
                         f"(allowed: {listed}).{suggest(key, allowed)}")
 
+    def only(self, table: str, given: Mapping, allowed: list[str]) -> None:
+        """Refuse a key of ``given`` that is not in ``allowed``, suggesting the closest."""
+        for key in given:
+            if key not in allowed:
+                raise self.unknown(table, key, list(allowed))
+
     def table(self, doc: Mapping, name: str) -> dict:
         value = doc.get(name, {})
         if not isinstance(value, dict):
@@ -400,9 +406,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
             raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
                            f"{suggest(key, TABLES)}")
     job_t = ck.table(doc, "job")
-    for key in job_t:
-        if key not in ("name", "title", "description"):
-            raise ck.unknown("job", key, ["name", "title", "description"])
+    ck.only("job", job_t, ["name", "title", "description"])
     name = job_t.get("name", Path(path).stem)
     if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
         raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
@@ -512,9 +516,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         axes = tuple(_finer(a, refine.depth) for a in axes)
 
     output_t = ck.table(doc, "output")
-    for key in output_t:
-        if key != "path":
-            raise ck.unknown("output", key, ["path"])
+    ck.only("output", output_t, ["path"])
     output = output_t.get("path", f"results/{name}.h5")
     if not isinstance(output, str) or not output:
         raise ck.fail("output", "path", "a file path", output)
@@ -555,9 +557,7 @@ def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple,
     if not t:
         return None
     allowed = ["by", "depth", "gap_below", "gap_var"]
-    for key in t:
-        if key not in allowed:
-            raise ck.unknown("refine", key, allowed)
+    ck.only("refine", t, allowed)
     qs = [q for m, _ in measurements for q in quantities_of(m, dim, driven)]
     ints = [q.name for q in qs if q.dtype == "int32"]
     floats = [q.name for q in qs if q.dtype == "float64"]
@@ -585,9 +585,7 @@ def _predict(ck: _Checker, t: dict, dim: int, given: bool) -> tuple | None:
     """Momenta (reduced, rad) at which transitions are predicted; default all of {0, pi}^dim."""
     if not given:
         return None
-    for key in t:
-        if key != "momenta":
-            raise ck.unknown("predict", key, ["momenta"])
+    ck.only("predict", t, ["momenta"])
     if "momenta" not in t:
         return tuple(tuple(float(x) for x in k)
                      for k in itertools.product((0.0, math.pi), repeat=dim))
@@ -628,9 +626,7 @@ def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> Dr
     allowed = {"static": ["kind"], "steps": ["kind", "period", "omega", "step"],
                "harmonic": ["kind", "period", "omega", "term", "tol", "max_slices", "scheme"],
                "kicks": ["kind", "period", "omega", "kick"]}[kind]
-    for key in t:
-        if key not in allowed:
-            raise ck.unknown("drive", key, allowed)
+    ck.only("drive", t, allowed)
     if kind == "static":
         return DriveSpec()
 
@@ -677,9 +673,7 @@ def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> Dr
         steps = []
         for i, step in enumerate(entries("step")):
             table = f"drive.step.{i}"
-            for key in step:
-                if key not in ("span", "set"):
-                    raise ck.unknown(table, key, ["span", "set"])
+            ck.only(table, step, ["span", "set"])
             if "span" not in step:
                 raise ck.fail(table, "span", "the fraction of the period this step lasts", None)
             steps.append((expr(table, "span", step["span"]), overrides(table, step.get("set"))))
@@ -688,9 +682,7 @@ def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> Dr
         kicks = []
         for i, kick in enumerate(entries("kick")):
             table = f"drive.kick.{i}"
-            for key in kick:
-                if key not in ("time", "strength", "set"):
-                    raise ck.unknown(table, key, ["time", "strength", "set"])
+            ck.only(table, kick, ["time", "strength", "set"])
             if "time" not in kick:
                 raise ck.fail(table, "time", "the kick time as a fraction of the period, in [0, 1)",
                               None)
@@ -702,9 +694,7 @@ def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> Dr
         terms = []
         for i, term in enumerate(entries("term")):
             table = f"drive.term.{i}"
-            for key in term:
-                if key not in ("param", "amplitude", "harmonic", "phase"):
-                    raise ck.unknown(table, key, ["param", "amplitude", "harmonic", "phase"])
+            ck.only(table, term, ["param", "amplitude", "harmonic", "phase"])
             param = term.get("param")
             if param not in model_params:
                 raise ck.fail(table, "param", "a model parameter (" + ", ".join(sorted(model_params))
@@ -835,9 +825,7 @@ def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
         return Axis(key, tuple(float(v) for v in vals), "list")
     if not isinstance(value, dict):
         raise ck.fail("sweep", key, spec_help, value)
-    for k in value:
-        if k not in ("start", "stop", "num", "spacing"):
-            raise ck.unknown(f"sweep.{key}", k, ["start", "stop", "num", "spacing"])
+    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing"])
     for k in ("start", "stop", "num"):
         if k not in value:
             raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
@@ -891,9 +879,7 @@ def _order_expressions(ck: _Checker, exprs: dict[str, Expression], known: set[st
 
 def _custom_model(ck: _Checker, t: dict) -> CustomModel:
     allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators"]
-    for key in t:
-        if key not in allowed:
-            raise ck.unknown("model", key, allowed)
+    ck.only("model", t, allowed)
     lat = t.get("lattice")
     if isinstance(lat, str):
         if lat not in LATTICES:
@@ -939,17 +925,13 @@ def _custom_model(ck: _Checker, t: dict) -> CustomModel:
     onsite = []
     for i, term in enumerate(terms("onsite")):
         where = f"model.onsite.{i}"
-        for k in term:
-            if k not in ("matrix", "coeff"):
-                raise ck.unknown(where, k, ["matrix", "coeff"])
+        ck.only(where, term, ["matrix", "coeff"])
         onsite.append((ck.matrix(where, "matrix", term.get("matrix"), n),
                        _coeff(ck, where, term.get("coeff", 1))))
     hoppings = []
     for i, term in enumerate(terms("hopping")):
         where = f"model.hopping.{i}"
-        for k in term:
-            if k not in ("d", "matrix", "coeff"):
-                raise ck.unknown(where, k, ["d", "matrix", "coeff"])
+        ck.only(where, term, ["d", "matrix", "coeff"])
         d = term.get("d")
         if not (isinstance(d, list) and len(d) == dim and all(
                 isinstance(x, int) and not isinstance(x, bool) for x in d)) or not any(d):
