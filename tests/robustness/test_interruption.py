@@ -15,7 +15,7 @@ from sweepcli.store import Results
 
 from ..cli.test_end_to_end import assert_same_content
 
-# About 20-40 ms per point: long enough to interrupt a 1-worker run part way.
+# About 10-40 ms per point, 400 points: long enough to interrupt a 1-worker run part way.
 JOB = """
 [job]
 name = "interrupt"
@@ -25,7 +25,7 @@ name = "haldane"
 t2 = 0.2
 phi = 1.2
 [sweep]
-M = { start = -1.5, stop = 1.5, num = 120 }
+M = { start = -1.5, stop = 1.5, num = 400 }
 [measure.gap]
 [measure.chern]
 [output]
