@@ -38,6 +38,7 @@ SAMPLES = {
     "bhz_corner": dict(m=0.8, t=1.1, delta1=0.9, delta2=0.45),
     "bbh": dict(gamma=0.4, lam=1.2, delta=0.1),
     "bipartite_square": dict(j1=0.3, j2=0.7, j3=1.1, j4=0.5, delta=0.2),
+    "graphene_field": dict(t=1.1, M=0.2, ax=0.3, ay=-0.45),
 }
 
 
@@ -131,7 +132,18 @@ def table_bipartite_square(j1, j2, j3, j4, delta):
             ((0, -1), 0, 1, j2), ((-1, -1), 0, 1, j3), ((-1, 0), 0, 1, j4)], 2
 
 
-TABLES = {"bipartite_square": table_bipartite_square, "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
+def table_graphene_field(t, M, ax, ay):
+    # Bonds A -> B: to the B of the same cell and of the cells -a_1, -a_2 (Cartesian deltas).
+    a1, a2 = np.array([1.0, 0.0]), np.array([0.5, np.sqrt(3) / 2])
+    ra, rb = (a1 + a2) / 3, 2 * (a1 + a2) / 3
+    rows = [((0, 0), 0, 0, M), ((0, 0), 1, 1, -M)]
+    for r in ((0, 0), (-1, 0), (0, -1)):
+        delta = rb + r[0] * a1 + r[1] * a2 - ra
+        rows.append((r, 0, 1, t * np.exp(1j * (ax * delta[0] + ay * delta[1]))))
+    return rows, 2
+
+
+TABLES = {"graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square, "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
           "bhz": table_bhz, "bhz_corner": table_bhz_corner, "bbh": table_bbh}
 
 
@@ -186,6 +198,14 @@ def formula(name, p, k):
         g1, g2, g3 = -kr("yx"), -kr("yy"), -kr("yz")
         return ((g + lam * c[0]) * g4 + lam * s[0] * g3 + (g + lam * c[1]) * g2
                 + lam * s[1] * g1 + dl * g0)
+    if name == "graphene_field":
+        a1, a2 = np.array([1.0, 0.0]), np.array([0.5, np.sqrt(3) / 2])
+        deltas = [(a1 + a2) / 3, (a1 + a2) / 3 - a1, (a1 + a2) / 3 - a2]
+        kc = np.linalg.solve(np.array([a1, a2]), k)  # Cartesian k from reduced (k.a_i = k_i)
+        # Peierls phase on each bond; periodic gauge: Bloch phase of the cell displacement.
+        f = sum(p["t"] * np.exp(1j * np.dot([p["ax"], p["ay"]], d)) * np.exp(1j * kc @ (d - deltas[0]))
+                for d in deltas)
+        return np.array([[p["M"], f], [np.conj(f), -p["M"]]])
     if name == "bipartite_square":
         disp = [(0, 0), (0, -1), (-1, -1), (-1, 0)]
         f = sum(p[f"j{i + 1}"] * np.exp(1j * np.dot(k, r)) for i, r in enumerate(disp))
