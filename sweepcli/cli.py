@@ -327,6 +327,30 @@ def boundaries(ctx: typer.Context,
 
 
 @app.command()
+def sample(ctx: typer.Context,
+           results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
+           at: Annotated[Optional[list[str]], typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
+           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement).")] = None,
+           size: Annotated[Optional[int], typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
+           gap: Annotated[str, typer.Option("--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
+           output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+           ) -> None:
+    """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
+    from .report.sample_plot import draw_sample
+    from .store import Results
+
+    try:
+        results = Results.read(results_file)
+        out = output or results_file.with_name(results_file.stem + "-sample.png")
+        written, drawn = draw_sample(results, out, at=_parse_at(at or []), kind=kind, size=size,
+                                     gap=gap, label=str(results_file))
+    except SweepError as exc:
+        _fail(ctx, exc)
+        return
+    typer.echo(f"{drawn.describe()} -> {written}")
+
+
+@app.command()
 def models(ctx: typer.Context) -> None:
     """List the built-in models and the measurements with their parameters."""
     from .physics.measurements import MEASUREMENTS

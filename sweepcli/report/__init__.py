@@ -1,1 +1,2 @@
-"""Reading results files into summaries and pictures; never touches the physics."""
+"""Summaries, pictures, diffs and exports of results files. Everything here reads the store;
+`sample_plot` alone rebuilds one grid point from the stored job to draw its open sample."""

@@ -50,7 +50,7 @@ _METHOD = Param("method", kind="choice", default="auto", choices=("auto", "dense
                 sweepable=False)
 
 
-def _windows(point: Point, fraction: float) -> dict[str, bd.Window]:
+def point_windows(point: Point, fraction: float) -> dict[str, bd.Window]:
     """Windows of the point's gaps, memoised (``{"0": ...}`` static, ``{"0", "pi"}`` driven)."""
     if point.drive is None:
         # The direct gap is the one the gap and invariant measurements memoise.
@@ -58,10 +58,10 @@ def _windows(point: Point, fraction: float) -> dict[str, bd.Window]:
                           lambda: {"0": bd.static_window(point.tb, point.nocc, fraction,
                                                          direct_gap=point_gap(point).gap)})
     return point.memo(("boundary.floquet_windows", fraction),
-                      lambda: bd.floquet_windows(_factors(point), fraction))
+                      lambda: bd.floquet_windows(point_factors(point), fraction))
 
 
-def _factors(point: Point) -> list | None:
+def point_factors(point: Point) -> list | None:
     """The drive's steps over one period, or ``None`` if a smooth drive's slicing failed.
 
     :func:`~sweepcli.physics.drive.converged_factors` doubles the slices of a harmonic drive
@@ -77,7 +77,7 @@ def _factors(point: Point) -> list | None:
 
 def _unsliced(name: str, point: Point) -> dict[str, Any] | None:
     """All-missing result (``NOT_CONVERGED``) when a drive's time slicing did not converge."""
-    if point.drive is None or _factors(point) is not None:
+    if point.drive is None or point_factors(point) is not None:
         return None
     out: dict[str, Any] = {q.name: (None if q.dtype.startswith("int") else float("nan"))
                            for q in MEASUREMENTS[name].extra["quantities"](point.drive.dim, True)}
@@ -140,13 +140,13 @@ def _box(point: Point, shape: tuple[int, ...], fraction: float, corner_size: int
     # Sizes are checked before the bulk window is computed, so a bad sample fails at once.
     bd.check_region_size(shape, corner_size)
     driven = point.drive is not None
-    tb0 = _factors(point)[0][1] if driven else point.tb
+    tb0 = point_factors(point)[0][1] if driven else point.tb
     samples.choose_method(tb0, shape, method, driven=driven)
-    wins = _windows(point, fraction)
+    wins = point_windows(point, fraction)
     if not driven:
         return {"0": bd.box_modes(tb0, shape, wins["0"], corner_size=corner_size, method=method,
                                   gap_tol=point.gap_tol)}
-    return bd.floquet_box_modes(_factors(point), shape, wins, corner_size=corner_size,
+    return bd.floquet_box_modes(point_factors(point), shape, wins, corner_size=corner_size,
                                 method=method, gap_tol=point.gap_tol)
 
 
@@ -183,12 +183,12 @@ def edge_modes(point: Point, *, width: int = 24, window: float = bd.WINDOW_FRACT
     missing = _unsliced("edge_modes", point)
     if missing is not None:
         return missing
-    wins = _windows(point, window)
+    wins = point_windows(point, window)
     if point.drive is None:
         results = {"0": bd.ribbon_modes(point.tb, width, wins["0"], open_axis=open_axis, nk=nk,
                                         gap_tol=point.gap_tol)}
     else:
-        results = bd.floquet_ribbon_modes(_factors(point), width, wins, open_axis=open_axis,
+        results = bd.floquet_ribbon_modes(point_factors(point), width, wins, open_axis=open_axis,
                                           nk=nk, gap_tol=point.gap_tol)
     out: dict[str, Any] = {}
     for g, r in results.items():

@@ -1,0 +1,196 @@
+"""`sweepcli sample`: the open sample behind one grid point's count, rebuilt from the file's
+provenance, solved again and drawn; its counts are the stored ones and its states sit where the
+published phase diagrams put them."""
+
+import h5py
+import numpy as np
+import pytest
+import scipy.linalg as sla
+from typer.testing import CliRunner
+
+from sweepcli.cli import app
+from sweepcli.physics import samples
+from sweepcli.physics.models import MODELS
+from sweepcli.report.sample_plot import draw_sample
+from sweepcli.store import Results
+
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
+
+CORNER_JOB = """
+[job]
+name = "corner"
+title = "Second-order BHZ flake"
+[model]
+name = "bhz_corner"
+[params]
+delta2 = 0.6
+[sweep]
+m = [-1.0, 2.6]
+[measure.corner_modes]
+size = 12
+"""
+
+CHAIN_JOB = """
+[job]
+name = "dchain"
+title = "Two-step driven chain"
+[model]
+name = "ssh"
+[sweep]
+T = [2.0, 7.55]
+[drive]
+kind = "steps"
+period = "T"
+[[drive.step]]
+span = 0.5
+set = { v = 1.0, w = 0.37 }
+[[drive.step]]
+span = 0.5
+set = { v = -0.8, w = 1.4 }
+[measure.end_modes]
+"""
+
+
+def invoke(*args):
+    return CliRunner().invoke(app, [str(a) for a in args], env={"COLUMNS": "300"})
+
+
+def _run(tmp, name, text):
+    job, out = tmp / f"{name}.toml", tmp / f"{name}.h5"
+    job.write_text(text + f'[output]\npath = "{out}"\n')
+    result = invoke("run", job, "--no-progress")
+    assert result.exit_code == 0, result.output
+    return out
+
+
+@pytest.fixture(scope="module")
+def corner_file(tmp_path_factory):
+    return _run(tmp_path_factory.mktemp("corner"), "corner", CORNER_JOB)
+
+
+@pytest.fixture(scope="module")
+def chain_file(tmp_path_factory):
+    return _run(tmp_path_factory.mktemp("chain"), "chain", CHAIN_JOB)
+
+
+def _stored(results, prefix, keys, index):
+    return {k: int(results.data[f"{prefix}{suffix}"][index]) for k, suffix in keys.items()}
+
+
+def test_corner_flake_at_a_topological_point(corner_file, tmp_path):
+    # Schindler et al., Science Advances 4, eaat0346 (2018): one zero mode at each corner of a
+    # flake for |m| < 2|t| (delta2 != 0), none for |m| > 2|t|.
+    png = tmp_path / "flake.png"
+    result = invoke("sample", corner_file, "--at", "m=-0.9", "-o", png)
+    assert result.exit_code == 0, result.output
+    assert "flake of 12 x 12 cells at m=-1: 4 corner mode(s)" in result.stdout
+    assert png.read_bytes()[:8] == PNG_MAGIC and png.stat().st_size > 10_000
+
+    r = Results.read(corner_file)
+    written, d = draw_sample(r, tmp_path / "flake.svg", at={"m": -1.0})
+    assert written.stat().st_size > 0 and d.kind == "flake" and d.shape == (12, 12)
+    keys = {"total": "", "00": "_00", "10": "_10", "01": "_01", "11": "_11"}
+    assert d.counts["0"] == _stored(r, "corner_modes_0", keys, (0,))
+    assert d.counts["0"] == {"total": 4, "00": 1, "10": 1, "01": 1, "11": 1}
+    assert d.stored["0"] == d.counts["0"]
+    assert d.full_spectrum and d.levels.size == 12 * 12 * 4
+    assert len(d.mode_indices) == 4
+
+    # The drawn levels and density against plain numpy: eigh of the dense open flake (built
+    # from the same model) and the diagonal of the projector on the in-window eigenvectors.
+    tb = MODELS["bhz_corner"].func(m=-1.0, delta2=0.6)
+    e, v = np.linalg.eigh(samples.open_hamiltonian(tb, (12, 12)).toarray())
+    assert np.allclose(d.levels, e, atol=1e-9)
+    inside = np.isin(np.arange(e.size), d.window_indices)
+    ref = (np.abs(v[:, inside]) ** 2).sum(axis=1).reshape(12, 12, 4).sum(axis=2)
+    assert np.allclose(d.density, ref, atol=1e-8)
+    assert d.density.sum() == pytest.approx(len(d.window_indices))
+
+    # Corner modes: their weight lies in the 3 x 3 corner regions. The decay length is about a
+    # cell here (measured 0.97-0.98 of each mode inside its region), so a mode spread along an
+    # edge (at most 2r/L = 1/2 in the corners, boundary.py) would fail this by far.
+    rr = d.options["corner_size"]
+    corners = sum(d.density[sx, sy].sum() for sx in (slice(0, rr), slice(-rr, None))
+                  for sy in (slice(0, rr), slice(-rr, None)))
+    assert corners / d.density.sum() > 0.9
+    assert np.allclose(d.corner_weight, d.corner_weight.mean(), rtol=0.05)
+
+
+def test_corner_flake_at_a_trivial_point_has_no_in_gap_states(corner_file, tmp_path):
+    # Same source: |m| > 2|t| is trivial; the window in the gap holds no level at all.
+    r = Results.read(corner_file)
+    _, d = draw_sample(r, tmp_path / "t.png", at={"m": 2.6})
+    assert d.counts["0"]["total"] == 0 == int(r.data["corner_modes_0"][1])
+    assert d.window_indices.size == 0 and d.density.sum() == 0
+
+
+def test_driven_chain_end_modes_at_zero_and_pi(chain_file, tmp_path):
+    # Asboth and Obuse, PRB 88, 121406 (2013): |nu_0| modes at 0 and |nu_pi| at pi per end;
+    # at T = 7.55 this drive has two pi modes at each end (tests/cli/test_bulk_boundary.py).
+    png = tmp_path / "chain.png"
+    result = invoke("sample", chain_file, "--at", "T=7.55", "--gap", "pi", "-o", png)
+    assert result.exit_code == 0, result.output
+    assert png.read_bytes()[:8] == PNG_MAGIC
+
+    r = Results.read(chain_file)
+    _, d = draw_sample(r, tmp_path / "chain.pdf", at={"T": 7.55}, gap="pi")
+    assert d.kind == "chain" and d.shape == (40,) and d.index == (1,)
+    keys = {"total": "", "left": "_left", "right": "_right"}
+    for g in ("0", "pi"):
+        assert d.counts[g] == _stored(r, f"end_modes_{g}", keys, (1,))
+    assert max(d.counts["pi"]["left"], d.counts["0"]["left"]) == 2
+
+    # The whole quasienergy spectrum against scipy.linalg.expm of the two dense steps.
+    T = 7.55
+    ssh = MODELS["ssh"].func
+    h1 = samples.open_hamiltonian(ssh(v=1.0, w=0.37), (40,)).toarray()
+    h2 = samples.open_hamiltonian(ssh(v=-0.8, w=1.4), (40,)).toarray()
+    u = sla.expm(-0.5j * T * h2) @ sla.expm(-0.5j * T * h1)
+    eps = np.sort(-np.angle(np.linalg.eigvals(u)) / T)
+    # Levels at +-pi/T are the same quasienergy: compare on the circle, both ways.
+    period = 2 * np.pi / T
+    dist = np.abs(d.levels[:, None] - eps[None, :]) % period
+    dist = np.minimum(dist, period - dist)
+    assert d.levels.size == eps.size
+    assert dist.min(axis=0).max() < 1e-8 and dist.min(axis=1).max() < 1e-8
+    # Every in-window pi state is counted as an end mode, so by the counting criterion
+    # (boundary.py: > 0.6 of a cluster's weight in the end regions) and the density drawn
+    # being that of the same states, more than 0.6 of it lies in the end regions.
+    assert len(d.mode_indices) == len(d.window_indices) == 4
+    assert d.density.sum() == pytest.approx(4)
+    assert d.corner_weight.sum() > 0.6 * d.density.sum()
+
+
+def test_a_ribbon_of_the_flake_job(corner_file, tmp_path):
+    r = Results.read(corner_file)
+    _, d = draw_sample(r, tmp_path / "ribbon.png", at={"m": -1.0}, kind="ribbon", size=12)
+    # Second-order phase: the edges are gapped (Schindler et al. 2018), no chiral mode.
+    assert d.kind == "ribbon" and d.counts["0"] == {"chiral": 0}
+    assert d.levels.shape[1] == 12 * 4 and d.window_indices.size == 0
+
+
+@pytest.mark.parametrize("case", ["unknown axis", "no job", "invalid job", "static pi"])
+def test_bad_requests_exit_2_with_one_line(corner_file, tmp_path, case):
+    target = corner_file
+    args = []
+    if case == "unknown axis":
+        args = ["--at", "mass=1"]
+        expected = "--at names 'mass', which is not a swept parameter (swept: m)."
+    elif case == "static pi":
+        args = ["--gap", "pi"]
+        expected = "--gap pi needs a driven job"
+    else:
+        target = tmp_path / "copy.h5"
+        target.write_bytes(corner_file.read_bytes())
+        with h5py.File(target, "a") as f:
+            if case == "no job":
+                del f.attrs["job_text"]
+                expected = f"{target}: holds no job file"
+            else:
+                f.attrs["job_text"] = f.attrs["job_text"] + "\n[nonsense]\nx = 1\n"
+                expected = f"{target}: the job stored in it is not valid in sweepcli"
+    result = invoke("sample", target, *args, "-o", tmp_path / "x.png")
+    assert result.exit_code == 2
+    assert result.stderr.startswith("error: " + expected), result.stderr
+    assert len(result.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "x.png").exists()
