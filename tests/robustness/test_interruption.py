@@ -103,3 +103,24 @@ def test_resume_refuses_a_different_job(reference, tmp_path):
     assert proc.returncode == 2
     assert "was written by a different job" in proc.stderr and "refusing to resume" in proc.stderr
     assert copy.read_bytes() == ref.read_bytes()
+
+
+def test_a_dying_worker_keeps_the_finished_points(reference, tmp_path):
+    psutil = pytest.importorskip("psutil")
+    job, ref = reference
+    out = tmp_path / "run.h5"
+    proc = start(job, out, "--workers", "2", "--chunk-size", "4")
+    wait_for_points(out, proc, minimum=8)
+    workers = [c for c in psutil.Process(proc.pid).children(recursive=True)
+               if "loky" in " ".join(c.cmdline()) and "resource_tracker" not in " ".join(c.cmdline())]
+    assert workers, "no worker processes found"
+    workers[-1].kill()
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 2, err
+    assert "a worker process died" in err and "--resume" in err
+    partial = Results.read(out)
+    assert 0 < partial.n_done < partial.size
+    proc = start(job, out, "--resume")
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 0, err
+    assert_same_content(out, ref)
