@@ -83,7 +83,8 @@ def _probe() -> str:
 def connect_dask(address: str | None = None, cluster: str | None = None, *, wait: float = 600.0):
     """A dask client: to a running scheduler at ``address``, or to a new cluster
     ``cluster`` = ``local:N``, ``slurm:N`` or ``pbs:N`` (N worker jobs; dask-jobqueue reads the
-    queue, account, cores and memory from its configuration file).
+    queue, account, cores and memory from its configuration, ~/.config/dask/jobqueue.yaml or
+    ``DASK_JOBQUEUE__SLURM__CORES``-style environment variables).
 
     Raises a SweepError naming the install extra when dask is missing, and checks that the
     workers can import sweepcli (a scheduler whose workers cannot hangs without an error).

@@ -151,3 +151,54 @@ def test_check_can_time_one_point_and_batch_can_use_it(job, tmp_path):
     # 9 points per task x 600 s x safety 2 + 10 min margin = 3 h 10 min.
     assert "#SBATCH --time=03:10:00" in (tmp_path / "b" / "shardy.slurm.sh").read_text()
     assert "#PBS -l walltime=03:10:00" in (tmp_path / "b" / "shardy.pbs.sh").read_text()
+
+
+FAKE_SBATCH = """#!/bin/bash
+# Fake sbatch: run the job script in the background on this machine and print a job id.
+script="${@: -1}"
+id=$RANDOM
+cp "$script" "$FAKE_SLURM/job-$id.sh"
+nohup bash "$FAKE_SLURM/job-$id.sh" > "$FAKE_SLURM/job-$id.log" 2>&1 &
+echo $! > "$FAKE_SLURM/job-$id.pid"
+echo "Submitted batch job $id"
+"""
+FAKE_SCANCEL = """#!/bin/bash
+for id in "$@"; do f="$FAKE_SLURM/job-$id.pid"; [ -f "$f" ] && pkill -P "$(cat "$f")"; done
+exit 0
+"""
+
+
+def test_slurm_cluster_through_a_fake_sbatch(job, tmp_path):
+    # dask-jobqueue writes a real Slurm job script; a stand-in sbatch runs it here, so the
+    # SLURMCluster path (--dask-cluster slurm:N) is exercised without a scheduler.
+    pytest.importorskip("dask_jobqueue")
+    import os
+    import signal
+    import sys
+
+    fake = tmp_path / "fake-slurm"
+    fake.mkdir()
+    for name, text in (("sbatch", FAKE_SBATCH), ("scancel", FAKE_SCANCEL)):
+        (fake / name).write_text(text)
+        (fake / name).chmod(0o755)
+    env = dict(os.environ, PATH=f"{fake}:{os.path.dirname(sys.executable)}:{os.environ['PATH']}",
+               FAKE_SLURM=str(fake), TQDM_DISABLE="1", DASK_JOBQUEUE__SLURM__CORES="1",
+               DASK_JOBQUEUE__SLURM__MEMORY="2GB", DASK_JOBQUEUE__SLURM__INTERFACE="lo",
+               DASK_JOBQUEUE__SLURM__SCHEDULER_OPTIONS='{"host": "127.0.0.1"}')
+    try:
+        proc = subprocess.run([sys.executable, "-m", "sweepcli", "run", str(job), "-o",
+                               str(tmp_path / "slurm.h5"), "--dask-cluster", "slurm:1",
+                               "--no-progress"], env=env, capture_output=True, text=True,
+                              timeout=240)
+        assert proc.returncode == 0, proc.stderr
+        assert list(fake.glob("job-*.sh")), "sbatch was never called"
+        assert "#SBATCH" in next(fake.glob("job-*.sh")).read_text()
+    finally:
+        for pid_file in fake.glob("job-*.pid"):
+            subprocess.run(["pkill", "-P", pid_file.read_text().strip()], check=False)
+            try:
+                os.kill(int(pid_file.read_text()), signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+    assert invoke("run", job, "-o", tmp_path / "local.h5", "--no-progress").exit_code == 0
+    assert_same_content(tmp_path / "slurm.h5", tmp_path / "local.h5")
