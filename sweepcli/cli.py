@@ -175,6 +175,15 @@ def merge(ctx: typer.Context,
             if not partial:
                 raise SweepError(msg + "; refusing to merge an incomplete set (use --partial).")
             typer.echo(f"warning: {msg}.", err=True)
+        if report.complete:
+            from .store.provenance import stored_job
+
+            job = stored_job(merged, str(shards[0]))
+            if job.predict is not None:
+                # Shards skip the predicted transitions; the merged grid gets them, as a full run.
+                from .run.predict import predict_transitions
+
+                merged.tables["transitions"] = predict_transitions(job)
         output.parent.mkdir(parents=True, exist_ok=True)
         merged.write(output)
     except SweepError as exc:

@@ -30,6 +30,7 @@ import numpy as np
 from .. import __version__
 from ..errors import ResultsError, SweepError, suggest
 from ..store import FILL_INT, Results
+from ..store.provenance import stored_job
 from .maps import FORMATS
 
 #: Sample kind -> (boundary measurement whose options it takes, option holding its size).
@@ -103,47 +104,6 @@ class SampleDrawing:
 # ----------------------------------------------------------------------------------------------
 # From the file to a point
 # ----------------------------------------------------------------------------------------------
-
-def job_of(results: Results, label: str = "the results file"):
-    """The :class:`~sweepcli.jobfile.Job` stored in ``results`` (``attrs["job_text"]``).
-
-    Raises
-    ------
-    ResultsError
-        If the file holds no job, or the stored job is not valid in this version of sweepcli, or
-        it no longer gives the file's grid.
-    """
-    from ..errors import JobError
-    from ..jobfile import build_job
-
-    text = results.attrs.get("job_text", "")
-    if not text.strip():
-        raise ResultsError(f"{label}: holds no job file (attribute 'job_text'), so its samples "
-                           "cannot be rebuilt; only files written by `sweepcli run` can be "
-                           "inspected.")
-    path = results.attrs.get("job_path", "") or "job.toml"
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ResultsError(f"{label}: the stored job file is not valid TOML ({exc}).") from None
-    try:
-        job = build_job(doc, text=text, path=path)
-    except JobError as exc:
-        raise ResultsError(f"{label}: the job stored in it is not valid in sweepcli "
-                           f"{__version__}: {exc}") from None
-    same = job.shape == results.shape and all(
-        a.name == b.name and np.allclose(a.values, b.values, rtol=1e-12, atol=1e-12)
-        for a, b in zip(job.axes, results.axes))
-    if not same:
-        raise ResultsError(f"{label}: the stored job gives a grid ({_grid_text(job.axes)}) "
-                           f"different from the file's ({_grid_text(results.axes)}); was the "
-                           "file written by another version of sweepcli?")
-    return job
-
-
-def _grid_text(axes) -> str:
-    return " x ".join(f"{a.name}[{len(a.values)}]" for a in axes)
-
 
 def nearest_index(results: Results, at: dict[str, float]) -> tuple[int, ...]:
     """Grid index nearest to ``at`` on every axis; axes not named take their first value."""
@@ -310,7 +270,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
     """
     from ..physics.measurements import boundary as mb
 
-    job = job_of(results, label)
+    job = stored_job(results, label)
     if gap not in GAPS:
         raise SweepError(f"--gap must be 0 or pi; got {gap!r}.")
     driven = job.drive.kind != "static"

@@ -5,6 +5,7 @@ from __future__ import annotations
 import platform
 import socket
 import sys
+import tomllib
 from datetime import datetime, timezone
 
 import h5py
@@ -12,7 +13,8 @@ import numpy as np
 import scipy
 
 from .. import __version__
-from ..jobfile import Job
+from ..errors import JobError, ResultsError
+from ..jobfile import Job, build_job
 from ..physics.models import MODELS
 from .results import SCHEMA_VERSION, AxisData, Results, Variable
 
@@ -61,3 +63,41 @@ def new_results(job: Job, argv: list[str] | None = None) -> Results:
         attrs["refine_by"] = job.refine.by
         attrs["refine_stride"] = str(job.refine.stride)
     return Results(axes, variables, attrs)
+
+
+def stored_job(results: Results, label: str = "the results file"):
+    """The :class:`~sweepcli.jobfile.Job` stored in ``results`` (``attrs["job_text"]``).
+
+    Raises
+    ------
+    ResultsError
+        If the file holds no job, or the stored job is not valid in this version of sweepcli, or
+        it no longer gives the file's grid.
+    """
+    text = results.attrs.get("job_text", "")
+    if not text.strip():
+        raise ResultsError(f"{label}: holds no job file (attribute 'job_text'), so its samples "
+                           "cannot be rebuilt; only files written by `sweepcli run` can be "
+                           "inspected.")
+    path = results.attrs.get("job_path", "") or "job.toml"
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ResultsError(f"{label}: the stored job file is not valid TOML ({exc}).") from None
+    try:
+        job = build_job(doc, text=text, path=path)
+    except JobError as exc:
+        raise ResultsError(f"{label}: the job stored in it is not valid in sweepcli "
+                           f"{__version__}: {exc}") from None
+    same = job.shape == results.shape and all(
+        a.name == b.name and np.allclose(a.values, b.values, rtol=1e-12, atol=1e-12)
+        for a, b in zip(job.axes, results.axes))
+    if not same:
+        raise ResultsError(f"{label}: the stored job gives a grid ({_grid_text(job.axes)}) "
+                           f"different from the file's ({_grid_text(results.axes)}); was the "
+                           "file written by another version of sweepcli?")
+    return job
+
+
+def _grid_text(axes) -> str:
+    return " x ".join(f"{a.name}[{len(a.values)}]" for a in axes)

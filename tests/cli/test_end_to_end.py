@@ -84,11 +84,14 @@ def file_content(path):
         for k, v in f.attrs.items():
             if k not in TIME_KEYS:
                 content[f"@{k}"] = v
-        for name, ds in f.items():
-            content[name] = ds[()]
-            for k, v in ds.attrs.items():
+        def visit(name, obj):
+            if isinstance(obj, h5py.Dataset):
+                content[name] = obj[()]
+            for k, v in obj.attrs.items():
                 if k not in ("DIMENSION_LIST", "REFERENCE_LIST"):
                     content[f"{name}@{k}"] = v
+
+        f.visititems(visit)
     return content
 
 

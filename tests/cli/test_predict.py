@@ -48,3 +48,23 @@ def test_predicted_closings_of_the_two_step_chain(tmp_path):
     png = tmp_path / "p.png"
     assert CliRunner().invoke(app, ["map", str(out), "--var", "gap_pi", "-o", str(png)]).exit_code == 0
     assert png.stat().st_size > 10_000
+
+
+def test_merged_shards_get_the_predicted_transitions_of_a_full_run(tmp_path):
+    from .test_end_to_end import assert_same_content
+
+    job = tmp_path / "job.toml"
+    job.write_text(JOB.replace("OUT", str(tmp_path / "full.h5")))
+    runner = CliRunner()
+    assert runner.invoke(app, ["run", str(job), "--no-progress"]).exit_code == 0
+    shards = []
+    for i in (1, 2):
+        assert runner.invoke(app, ["run", str(job), "--shard", f"{i}/2", "--no-progress"]).exit_code == 0
+        shards.append(str(tmp_path / f"full.shard-{i}-of-2.h5"))
+        assert "transitions" not in Results.read(shards[-1]).tables
+    result = runner.invoke(app, ["merge", str(tmp_path / "merged.h5"), *shards])
+    assert result.exit_code == 0, result.output
+    assert_same_content(tmp_path / "merged.h5", tmp_path / "full.h5")
+    a = Results.read(tmp_path / "merged.h5").tables["transitions"]
+    b = Results.read(tmp_path / "full.h5").tables["transitions"]
+    assert a.keys() == b.keys() and all(np.array_equal(a[c], b[c]) for c in a)
