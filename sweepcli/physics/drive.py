@@ -223,7 +223,6 @@ class StepDrive:
         """
         T = self.period
         b = self._boundaries()
-        n = len(self.segments)
         g = None if chiral is None else np.asarray(chiral, complex)
         rel: dict[tuple[int, int], bool] = {}
 

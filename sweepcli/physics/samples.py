@@ -151,7 +151,6 @@ def ribbon(tb: TightBinding, width: int, open_axis: int = 1) -> TightBinding:
     if width < 1:
         raise ValueError(f"ribbon width must be at least 1 cell; got {width}")
     par = 1 - open_axis
-    n = tb.norb
     onsite = np.kron(np.eye(width), tb.onsite)
     hops: dict[tuple[int, ...], np.ndarray] = {}
     for r, t in tb.hoppings.items():

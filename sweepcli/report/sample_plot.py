@@ -20,14 +20,12 @@ from __future__ import annotations
 
 import math
 import textwrap
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .. import __version__
 from ..errors import ResultsError, SweepError, suggest
 from ..store import FILL_INT, Results
 from ..store.provenance import stored_job

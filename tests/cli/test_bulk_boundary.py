@@ -2,11 +2,10 @@
 with the per-point agreement flags that `show` counts and `map --mark-disagree` draws."""
 
 import numpy as np
-import pytest
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.store import FILL_INT, Results
+from sweepcli.store import Results
 
 
 def run(tmp_path, text, name="job"):

@@ -130,7 +130,7 @@ def test_batch_scripts_are_valid_shell_naming_the_shard_variables(job, tmp_path)
 
 def test_local_dask_cluster_equals_a_joblib_run(job, tmp_path):
     pytest.importorskip("distributed")
-    from distributed import Client, LocalCluster
+    from distributed import LocalCluster
 
     assert invoke("run", job, "-o", tmp_path / "joblib.h5", "--workers", "2",
                   "--no-progress").exit_code == 0

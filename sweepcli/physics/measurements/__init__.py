@@ -31,4 +31,4 @@ def quantities_of(name: str, dim: int, driven: bool = False) -> tuple[Quantity, 
 
 
 # Importing the modules fills the registry.
-from . import boundary, driven, static  # noqa: E402,F401
+from . import boundary, driven, static  # noqa: E402,F401,F811

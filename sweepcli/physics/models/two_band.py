@@ -73,7 +73,7 @@ def haldane(*, t2: float, phi: float, M: float, t1: float = 1.0) -> TightBinding
     ``-sin(phi)`` in the convention of :func:`sweepcli.physics.invariants.fhs_chern`, and 0
     outside.
     """
-    s0, sx, sy, sz = pauli("0"), pauli("x"), pauli("y"), pauli("z")
+    s0, sx, sz = pauli("0"), pauli("x"), pauli("z")
     ab = np.zeros((2, 2), complex)
     ab[0, 1] = t1  # <A, 0|H|B, R> for R = -a_1, -a_2 (R = 0 is in onsite)
     terms = [((-1, 0), ab), ((0, -1), ab)]

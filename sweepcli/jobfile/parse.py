@@ -1,33 +1,26 @@
-"""Job files: TOML parsing, validation against the registries, normalisation and hashing.
-
-A job file has the tables ``[job]``, ``[model]``, ``[params]``, ``[sweep]``, ``[drive]``,
-``[measure]`` and ``[output]`` (see README.md). :func:`load_job` checks the whole file once and
-returns a frozen :class:`Job`; every error names the file, the table and key, what was expected
-and what was given. Job files are data: expressions are parsed by :mod:`sweepcli.expressions`.
-"""
+"""Parsing a job file into a :class:`~sweepcli.jobfile.spec.Job`: one pass over every table,
+each bad value a :class:`~sweepcli.errors.JobError` naming the file, the table and key."""
 
 from __future__ import annotations
 
-import hashlib
 import itertools
 import math
 import re
 import tomllib
-from collections.abc import Mapping
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import tomli_w
 
-from .errors import JobError, shown, suggest
-from .expressions import Expression, ExpressionError, parse
-from .physics.lattice import TightBinding, assemble, pauli
-from .physics.measurements import MEASUREMENTS, quantities_of
-from .physics.models import MODELS
-from .physics.point import Point, Quantity
-from .physics.registry import Param
+from ..errors import JobError, suggest
+from ..expressions import Expression, ExpressionError, parse
+from ..physics.measurements import MEASUREMENTS, quantities_of
+from ..physics.models import MODELS
+from ..physics.registry import Param
+from .checker import Checker
+from .checks import check_values
+from .spec import Axis, CustomModel, DriveSpec, Job, Refine
 
 TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "predict", "output")
 LATTICES = {
@@ -40,331 +33,6 @@ MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
     Param("gap_tol", default=1e-6, low=0, open_low=True, doc="gaps below this count as closed"),
 )
-SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
-DRIVE_BUILDS = 20  # of which the drive is built at the first few
-
-
-@dataclass(frozen=True)
-class Axis:
-    """One swept parameter: its name, the values in order and how they were declared."""
-
-    name: str
-    values: tuple[float, ...]
-    spacing: str  # "linear", "log" or "list"
-
-
-@dataclass(frozen=True)
-class Refine:
-    """Adaptive refinement: the grid of ``[sweep]`` is the coarse base; cells whose corners
-    disagree in ``by`` (or where ``gap_var`` falls below ``gap_below``) are halved, ``depth``
-    times at most. Points live on the finest grid, ``2**depth`` times denser than the base."""
-
-    by: str
-    depth: int
-    gap_below: float | None
-    gap_var: str
-
-    @property
-    def stride(self) -> int:
-        return 2 ** self.depth
-
-
-@dataclass(frozen=True)
-class CustomModel:
-    """A model declared in the job file: matrices with coefficient expressions."""
-
-    lattice: tuple[tuple[float, ...], ...]
-    positions: tuple[tuple[float, ...], ...]
-    onsite: tuple[tuple[np.ndarray, Expression], ...]
-    hoppings: tuple[tuple[tuple[int, ...], np.ndarray, Expression], ...]
-    operators: tuple[tuple[str, np.ndarray], ...]
-
-    @property
-    def names(self) -> frozenset[str]:
-        exprs = [e for _, e in self.onsite] + [e for _, _, e in self.hoppings]
-        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
-
-    def build(self, values: Mapping[str, complex]) -> TightBinding:
-        n = len(self.positions)
-        onsite = np.zeros((n, n), complex)
-        for matrix, coeff in self.onsite:
-            onsite = onsite + coeff(values) * matrix
-        terms = [(d, coeff(values) * matrix) for d, matrix, coeff in self.hoppings]
-        return assemble(np.array(self.lattice), np.array(self.positions), onsite, terms,
-                        dict(self.operators))
-
-
-@dataclass(frozen=True)
-class DriveSpec:
-    """The ``[drive]`` table: the period (or angular frequency) and the protocol.
-
-    ``steps``: ``(span, overrides)`` with the span a fraction of the period; ``terms``
-    (harmonic): ``(parameter, amplitude, harmonic n, phase)`` adding
-    ``amplitude * cos(n omega t + phase)`` to the parameter; ``kicks``: ``(time, strength,
-    overrides)`` with the time a fraction of the period and the kick ``exp(-i strength H)``, H the
-    model at the overridden parameters. All entries are expressions of the job's parameters.
-    """
-
-    kind: str = "static"
-    period: Expression | None = None
-    omega: Expression | None = None
-    steps: tuple = ()
-    terms: tuple = ()
-    kicks: tuple = ()
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
-    source: tuple = ()  # the table as given, for normalisation
-
-    @property
-    def names(self) -> frozenset[str]:
-        exprs = [e for e in (self.period, self.omega) if e is not None]
-        for span, over in self.steps:
-            exprs += [span, *(e for _, e in over)]
-        for _, amp, _, phase in self.terms:
-            exprs += [amp, phase]
-        for time, strength, over in self.kicks:
-            exprs += [time, strength, *(e for _, e in over)]
-        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
-
-    def normalised(self) -> dict:
-        return dict(self.source) if self.kind != "static" else {"kind": "static"}
-
-    @property
-    def always_set(self) -> frozenset[str]:
-        """Model parameters that every step sets (they need no value of their own)."""
-        if self.kind != "steps":
-            return frozenset()
-        return frozenset.intersection(*(frozenset(k for k, _ in over) for _, over in self.steps))
-
-    def period_at(self, values: Mapping[str, complex]) -> float:
-        if self.period is not None:
-            return _real(self.period(values))
-        omega = _real(self.omega(values))
-        return 2 * math.pi / omega if omega != 0 else math.inf
-
-    def compile(self, values: Mapping[str, complex], build):
-        """The drive at one grid point, as the physics core's drive object."""
-        from .physics import drive as dr
-
-        period = self.period_at(values)
-
-        def at(overrides) -> TightBinding:
-            return build({**values, **{k: e(values) for k, e in overrides}})
-
-        if self.kind == "steps":
-            return dr.StepDrive(period, tuple((_real(span(values)) * period, at(over))
-                                              for span, over in self.steps))
-        if self.kind == "kicks":
-            kicks = tuple((_real(time(values)) * period,
-                           dr.combine([(_real(strength(values)), at(over))]))
-                          for time, strength, over in self.kicks)
-            return dr.KickDrive(period, build(values), kicks)
-        omega = 2 * math.pi / period
-        terms = [(p, _real(a(values)), n, _real(ph(values))) for p, a, n, ph in self.terms]
-
-        def hamiltonian_at(t: float) -> TightBinding:
-            shifted = dict(values)
-            for p, amp, n, phase in terms:
-                shifted[p] = _real(shifted[p]) + amp * math.cos(n * omega * t + phase)
-            return build(shifted)
-
-        return dr.HarmonicDrive(period, hamiltonian_at, tol=self.tol, max_slices=self.max_slices,
-                                scheme=self.scheme)
-
-
-@dataclass(frozen=True, eq=False)
-class Job:
-    """A validated, normalised job. Derived things (grids, k-meshes) are computed, never stored."""
-
-    path: str
-    text: str
-    name: str
-    title: str
-    model: str
-    custom: CustomModel | None
-    model_params: tuple[str, ...]
-    fixed: tuple[tuple[str, float], ...]
-    derived: tuple[tuple[str, Expression], ...]  # in evaluation order
-    axes: tuple[Axis, ...]
-    drive: DriveSpec
-    measurements: tuple[tuple[str, tuple[tuple[str, Any], ...]], ...]
-    filling: int | None
-    gap_tol: float
-    output: str
-    normalised: str
-    dim: int
-    norb: int
-    refine: Refine | None = None
-    predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
-
-    @property
-    def shape(self) -> tuple[int, ...]:
-        return tuple(len(a.values) for a in self.axes)
-
-    @property
-    def size(self) -> int:
-        return int(np.prod(self.shape, dtype=np.int64))
-
-    @property
-    def sha256(self) -> str:
-        return hashlib.sha256(self.normalised.encode()).hexdigest()
-
-    def quantities(self) -> list[tuple[str, tuple[Quantity, ...]]]:
-        """``(measurement, its quantities)`` in job order."""
-        driven = self.drive.kind != "static"
-        return [(name, quantities_of(name, self.dim, driven)) for name, _ in self.measurements]
-
-    def consistency_rules(self) -> list:
-        """Bulk-boundary rules that apply to the quantities this job stores."""
-        from .run.consistency import rules_for
-
-        return rules_for({q.name for _, qs in self.quantities() for q in qs})
-
-    def values_at(self, index: int, overrides: Mapping[str, float] | None = None
-                  ) -> dict[str, complex]:
-        """All parameter values (fixed, swept, derived) at flat grid index ``index``; swept
-        parameters in ``overrides`` take the given (off-grid) values instead."""
-        multi = np.unravel_index(index, self.shape) if self.axes else ()
-        values: dict[str, complex] = dict(self.fixed)
-        for axis, i in zip(self.axes, multi):
-            values[axis.name] = axis.values[i]
-        values.update(overrides or {})
-        for name, expr in self.derived:
-            values[name] = expr(values)
-        return values
-
-    def build_model(self, values: Mapping[str, complex]) -> TightBinding:
-        if self.custom is not None:
-            return self.custom.build(values)
-        factory = MODELS[self.model].func
-        return factory(**{p: _real(values[p]) for p in self.model_params})
-
-    def point(self, index: int, overrides: Mapping[str, float] | None = None) -> Point:
-        values = self.values_at(index, overrides)
-        drive = self.drive.compile(values, self.build_model) if self.drive.kind != "static" else None
-        if self.drive.always_set:
-            # Parameters that only the steps set: the static model is that of the first step.
-            values.update({k: e(values) for k, e in self.drive.steps[0][1] if k not in values})
-        return Point(params=values, build=self.build_model, drive=drive,
-                     filling=self.filling, gap_tol=self.gap_tol)
-
-
-def _real(value: complex) -> float:
-    return float(value.real) if isinstance(value, complex) else float(value)
-
-
-class _Checker:
-    """Collects the helpers that turn a bad value into one clear :class:`JobError`."""
-
-    def __init__(self, path: str) -> None:
-        self.path = path
-
-    def fail(self, table: str, key: str, expected: str, got: object, hint: str = "") -> JobError:
-        where = f"[{table}] {key}" if key else f"[{table}]"
-        return JobError(f"{self.path}: {where} must be {expected}; got {shown(got)}.{hint}")
-
-    def unknown(self, table: str, key: str, allowed: list[str], what: str = "key") -> JobError:
-        listed = ", ".join(allowed) if allowed else "none"
-        return JobError(f"{self.path}: [{table}] has an unknown {what} {key!r} "
-                        f"(allowed: {listed}).{suggest(key, allowed)}")
-
-    def only(self, table: str, given: Mapping, allowed: list[str]) -> None:
-        """Refuse a key of ``given`` that is not in ``allowed``, suggesting the closest."""
-        for key in given:
-            if key not in allowed:
-                raise self.unknown(table, key, list(allowed))
-
-    def table(self, doc: Mapping, name: str) -> dict:
-        value = doc.get(name, {})
-        if not isinstance(value, dict):
-            raise self.fail(name, "", "a table", value)
-        return value
-
-    def number(self, table: str, key: str, value: object, param: Param) -> float:
-        """Apply the int/float policy: int accepted for reals, float refused for counts."""
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise self.fail(table, key, param.expectation(), value)
-        if param.kind == "int" and not isinstance(value, int):
-            raise self.fail(table, key, param.expectation(), value)
-        if not param.admits(float(value)):
-            raise self.fail(table, key, param.expectation(), value)
-        return value
-
-    def option(self, table: str, key: str, value: object, param: Param) -> Any:
-        if param.kind in ("real", "int"):
-            if value is None and param.default is None:
-                return None
-            return self.number(table, key, value, param)
-        if param.kind == "bool":
-            if not isinstance(value, bool):
-                raise self.fail(table, key, param.expectation(), value)
-            return value
-        if param.kind == "choice":
-            if value not in param.choices:
-                raise self.fail(table, key, param.expectation(), value,
-                                suggest(str(value), [str(c) for c in param.choices]))
-            return value
-        if param.kind == "str":
-            if not isinstance(value, str):
-                raise self.fail(table, key, param.expectation(), value)
-            return value
-        if param.kind == "vector":
-            if not (isinstance(value, list) and value and all(
-                    isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
-                raise self.fail(table, key, param.expectation(), value)
-            return [float(v) for v in value]
-        if param.kind == "matrix":
-            self.matrix(table, key, value)
-            return value
-        raise AssertionError(f"undeclared parameter kind {param.kind!r}")
-
-    def constant(self, table: str, key: str, value: object) -> object:
-        """A number, or a string holding an expression of constants only (``"-pi"``)."""
-        if not isinstance(value, str):
-            return value
-        try:
-            result = _constant(value)
-        except (ValueError, ExpressionError, ArithmeticError):
-            raise self.fail(table, key, "a number or an expression of constants such as "
-                            "\"pi/2\"", value) from None
-        if isinstance(result, complex):
-            raise self.fail(table, key, "a real number", value)
-        return float(result)
-
-    def matrix(self, table: str, key: str, value: object, size: int | None = None) -> np.ndarray:
-        """A Pauli word (``"zx"``) or a square list of numbers / constant expressions."""
-        expected = ("a Pauli word such as \"zx\" or a square matrix of numbers"
-                    + (f" of size {size}" if size else ""))
-        if isinstance(value, str):
-            if not value or set(value) - set("0xyz"):
-                raise self.fail(table, key, expected, value)
-            m = pauli(value)
-        elif isinstance(value, list) and value and all(isinstance(r, list) for r in value):
-            try:
-                m = np.array([[_constant(x) for x in row] for row in value], dtype=complex)
-            except (ValueError, ExpressionError):
-                raise self.fail(table, key, expected, value) from None
-            if m.ndim != 2 or m.shape[0] != m.shape[1]:
-                raise self.fail(table, key, expected, value)
-        else:
-            raise self.fail(table, key, expected, value)
-        if size is not None and m.shape[0] != size:
-            raise self.fail(table, key, expected, f"a matrix of size {m.shape[0]}")
-        return m
-
-
-def _constant(x: object) -> complex:
-    if isinstance(x, bool):
-        raise ValueError("boolean")
-    if isinstance(x, (int, float)):
-        return x
-    if isinstance(x, str):
-        expr = parse(x)
-        if expr.names:
-            raise ValueError("names")
-        return expr({})
-    raise ValueError("not a number")
 
 
 def read_toml(path: str | Path) -> tuple[str, dict]:
@@ -400,7 +68,7 @@ def load_job(path: str | Path) -> Job:
 
 
 def build_job(doc: dict, *, text: str, path: str) -> Job:
-    ck = _Checker(path)
+    ck = Checker(path)
     for key in doc:
         if key not in TABLES:
             raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
@@ -548,11 +216,11 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
               dim=dim, norb=norb, refine=refine, predict=predict)
-    _check_values(ck, job, declared, exprs)
+    check_values(ck, job, declared, exprs)
     return job
 
 
-def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple,
+def _refine(ck: Checker, t: dict, measurements: list, dim: int, axes: tuple,
             driven: bool) -> Refine | None:
     if not t:
         return None
@@ -581,7 +249,7 @@ def _refine(ck: _Checker, t: dict, measurements: list, dim: int, axes: tuple,
     return Refine(by, depth, gap_below, gap_var)
 
 
-def _predict(ck: _Checker, t: dict, dim: int, given: bool) -> tuple | None:
+def _predict(ck: Checker, t: dict, dim: int, given: bool) -> tuple | None:
     """Momenta (reduced, rad) at which transitions are predicted; default all of {0, pi}^dim."""
     if not given:
         return None
@@ -618,7 +286,7 @@ def _finer(axis: Axis, depth: int) -> Axis:
     return Axis(axis.name, tuple(float(v) for v in vals), axis.spacing)
 
 
-def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
+def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
     kind = t.get("kind", "static")
     if kind not in DRIVE_KINDS:
         raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
@@ -715,95 +383,11 @@ def _drive(ck: _Checker, t: dict, known: set[str], model_params: set[str]) -> Dr
     return DriveSpec(**spec, source=tuple(t.items()))
 
 
-def _check_drive(ck: _Checker, job: Job, values: Mapping[str, complex], index: int,
-                 build: bool) -> None:
-    """Period, spans and kick times at one grid point; the drive must compile there."""
-    d = job.drive
-    where = f" at grid point {index}"
-    period = d.period_at(values)
-    key = "period" if d.period is not None else "omega"
-    if not (math.isfinite(period) and period > 0):
-        raise JobError(f"{ck.path}: [drive] {key} must give a positive, finite period; it gives "
-                       f"{period:g}{where}.")
-    if d.kind == "steps":
-        spans = [_real(span(values)) for span, _ in d.steps]
-        for i, sp in enumerate(spans):
-            if not sp >= 0:
-                raise JobError(f"{ck.path}: [drive.step.{i}] span must be a non-negative "
-                               f"fraction of the period; it is {sp:g}{where}.")
-        if abs(sum(spans) - 1) > 1e-9:
-            raise JobError(f"{ck.path}: [[drive.step]] spans must add up to one period (1); "
-                           f"they add up to {sum(spans):.12g}{where}.")
-    if d.kind == "kicks":
-        for i, (time, _, _) in enumerate(d.kicks):
-            tv = _real(time(values))
-            if not 0 <= tv < 1:
-                raise JobError(f"{ck.path}: [drive.kick.{i}] time must be a fraction of the "
-                               f"period in [0, 1); it is {tv:g}{where}.")
-    try:
-        if build:
-            d.compile(values, job.build_model)
-    except ValueError as exc:
-        raise JobError(f"{ck.path}: [drive] cannot be built{where}: {exc}.") from None
-
-
-def _check_line_operator(ck: _Checker, job: Job, point: Point) -> None:
-    """A line_winding operator must commute with H(k) of every part of the drive on the line."""
-    for name, options in job.measurements:
-        if name != "line_winding":
-            continue
-        opts = dict(options)
-        op = opts["operator"]
-        s = point.tb.operators[op] if isinstance(op, str) else op
-        direction = np.asarray(opts["direction"], float)
-        if direction.shape != (job.dim,):
-            raise ck.fail(f"measure.{name}", "direction", f"a list of {job.dim} integers",
-                          opts["direction"])
-        origin = np.zeros(job.dim) if opts.get("origin") is None else np.asarray(opts["origin"])
-        k = origin + np.linspace(0, 2 * np.pi, 7, endpoint=False)[:, None] * direction
-        parts = [tb for _, tb in point.drive.factors()] if point.drive is not None else [point.tb]
-        for tb in parts:
-            h = tb.bloch(k)
-            err = float(np.max(np.abs(s @ h - h @ s)))
-            if err > 1e-8 * max(1.0, float(np.max(np.abs(h)))):
-                raise JobError(f"{ck.path}: [measure.{name}] operator must commute with H(k) on "
-                               f"the line k = origin + s * {list(opts['direction'])}; it does not "
-                               f"(largest commutator entry {err:.3g} at the first grid point).")
-
-
 def _plain(value: Any) -> Any:
     """A TOML-writable form: complex matrices become nested lists of numbers or "a+bj" strings."""
     if isinstance(value, np.ndarray):
         return [[(float(x.real) if x.imag == 0 else repr(complex(x))) for x in row] for row in value]
     return value
-
-
-SAMPLE_SHAPES = {"end_modes": ("cells", "end_size", 1), "corner_modes": ("size", "corner_size", 2)}
-
-
-def _check_samples(ck: _Checker, job: Job, point: Point) -> None:
-    """Open samples must be large enough for their end/corner regions and fit in memory;
-    both are known before any work starts."""
-    from .physics import boundary, samples
-
-    for name, options in job.measurements:
-        if name not in SAMPLE_SHAPES:
-            continue
-        size_key, region_key, dims = SAMPLE_SHAPES[name]
-        opts = dict(options)
-        shape = (opts[size_key],) * dims
-        tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
-        try:
-            boundary.check_region_size(shape, opts[region_key])
-        except ValueError as exc:
-            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} is too "
-                           f"small: {exc}.") from None
-        try:
-            samples.choose_method(tb, shape, opts.get("method", "auto"),
-                                  driven=point.drive is not None)
-        except ValueError as exc:
-            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} needs "
-                           f"more memory than this machine has: {exc}.") from None
 
 
 def _normalised_model(model: str, model_t: dict) -> dict:
@@ -812,7 +396,7 @@ def _normalised_model(model: str, model_t: dict) -> dict:
     return {k: v for k, v in model_t.items()}
 
 
-def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
+def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
     param = param or Param(key)
     if param is not None and not param.sweepable:
         raise JobError(f"{ck.path}: [sweep] {key} cannot be swept.")
@@ -856,7 +440,7 @@ def _axis(ck: _Checker, key: str, value: object, param: Param | None) -> Axis:
     return Axis(key, tuple(float(v) for v in vals), spacing)
 
 
-def _order_expressions(ck: _Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:
+def _order_expressions(ck: Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:
     for key, expr in exprs.items():
         for n in sorted(expr.names):
             if n not in known:
@@ -877,7 +461,7 @@ def _order_expressions(ck: _Checker, exprs: dict[str, Expression], known: set[st
     return tuple(ordered)
 
 
-def _custom_model(ck: _Checker, t: dict) -> CustomModel:
+def _custom_model(ck: Checker, t: dict) -> CustomModel:
     allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators"]
     ck.only("model", t, allowed)
     lat = t.get("lattice")
@@ -949,7 +533,7 @@ def _custom_model(ck: _Checker, t: dict) -> CustomModel:
                        tuple(hoppings), operators)
 
 
-def _coeff(ck: _Checker, where: str, value: object) -> Expression:
+def _coeff(ck: Checker, where: str, value: object) -> Expression:
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise ck.fail(where, "coeff", "a number or an arithmetic expression", value)
     try:
@@ -959,7 +543,7 @@ def _coeff(ck: _Checker, where: str, value: object) -> Expression:
                       f" {exc}.") from None
 
 
-def _measurement(ck: _Checker, name: str, options: dict, dim: int, norb: int,
+def _measurement(ck: Checker, name: str, options: dict, dim: int, norb: int,
                  custom: CustomModel | None, model: str, driven: bool) -> tuple:
     if name not in MEASUREMENTS:
         raise ck.unknown("measure", name, MEASUREMENTS.names(), what="measurement")
@@ -1018,40 +602,3 @@ def _sample_value(p: Param) -> float:
     if hi is not None:
         return hi - 1
     return 0.5
-
-
-def _check_values(ck: _Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:
-    """Check derived values and Hermiticity at a sample of grid points (all when few)."""
-    size = job.size
-    idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
-    for i in idx:
-        try:
-            values = job.values_at(int(i))
-        except (ArithmeticError, ValueError, TypeError) as exc:
-            raise JobError(f"{ck.path}: [params] an expression cannot be evaluated at grid point "
-                           f"{int(i)} ({exc}).") from None
-        for key in exprs:
-            v = values[key]
-            param = declared.get(key)
-            if param is None or job.custom is not None:
-                continue
-            if isinstance(v, complex) and abs(v.imag) > 1e-12 * max(1.0, abs(v)):
-                raise ck.fail("params", key, f"an expression with a real value ({param.expectation()})",
-                              exprs[key].text, f" It evaluates to {v} at grid point {int(i)}.")
-            if not param.admits(_real(v)):
-                raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
-                              exprs[key].text, f" It evaluates to {_real(v):g} at grid point {int(i)}.")
-        if job.drive.kind != "static":
-            _check_drive(ck, job, values, int(i), build=i in idx[:DRIVE_BUILDS])
-        if i == idx[0]:
-            first = job.point(int(i))
-            _check_line_operator(ck, job, first)
-            _check_samples(ck, job, first)
-        if job.custom is not None:
-            tb = job.build_model(values)
-            err = tb.hermiticity_error()
-            if err > 1e-10:
-                raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "
-                               f"matrix; at grid point {int(i)} they deviate by {err:.3g} "
-                               "(use real coefficients for Hermitian matrices, or pair a term "
-                               "with its conjugate).")

@@ -1,0 +1,139 @@
+"""Checks of a parsed job at sample grid points: values, drives, operators and sample sizes,
+all before any work starts."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+import numpy as np
+
+from ..errors import JobError
+from ..physics.point import Point
+from ..physics.registry import Param
+from .checker import Checker
+from .spec import Job, real
+
+SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
+DRIVE_BUILDS = 20  # of which the drive is built at the first few
+
+
+def _check_drive(ck: Checker, job: Job, values: Mapping[str, complex], index: int,
+                 build: bool) -> None:
+    """Period, spans and kick times at one grid point; the drive must compile there."""
+    d = job.drive
+    where = f" at grid point {index}"
+    period = d.period_at(values)
+    key = "period" if d.period is not None else "omega"
+    if not (math.isfinite(period) and period > 0):
+        raise JobError(f"{ck.path}: [drive] {key} must give a positive, finite period; it gives "
+                       f"{period:g}{where}.")
+    if d.kind == "steps":
+        spans = [real(span(values)) for span, _ in d.steps]
+        for i, sp in enumerate(spans):
+            if not sp >= 0:
+                raise JobError(f"{ck.path}: [drive.step.{i}] span must be a non-negative "
+                               f"fraction of the period; it is {sp:g}{where}.")
+        if abs(sum(spans) - 1) > 1e-9:
+            raise JobError(f"{ck.path}: [[drive.step]] spans must add up to one period (1); "
+                           f"they add up to {sum(spans):.12g}{where}.")
+    if d.kind == "kicks":
+        for i, (time, _, _) in enumerate(d.kicks):
+            tv = real(time(values))
+            if not 0 <= tv < 1:
+                raise JobError(f"{ck.path}: [drive.kick.{i}] time must be a fraction of the "
+                               f"period in [0, 1); it is {tv:g}{where}.")
+    try:
+        if build:
+            d.compile(values, job.build_model)
+    except ValueError as exc:
+        raise JobError(f"{ck.path}: [drive] cannot be built{where}: {exc}.") from None
+
+
+def _check_line_operator(ck: Checker, job: Job, point: Point) -> None:
+    """A line_winding operator must commute with H(k) of every part of the drive on the line."""
+    for name, options in job.measurements:
+        if name != "line_winding":
+            continue
+        opts = dict(options)
+        op = opts["operator"]
+        s = point.tb.operators[op] if isinstance(op, str) else op
+        direction = np.asarray(opts["direction"], float)
+        if direction.shape != (job.dim,):
+            raise ck.fail(f"measure.{name}", "direction", f"a list of {job.dim} integers",
+                          opts["direction"])
+        origin = np.zeros(job.dim) if opts.get("origin") is None else np.asarray(opts["origin"])
+        k = origin + np.linspace(0, 2 * np.pi, 7, endpoint=False)[:, None] * direction
+        parts = [tb for _, tb in point.drive.factors()] if point.drive is not None else [point.tb]
+        for tb in parts:
+            h = tb.bloch(k)
+            err = float(np.max(np.abs(s @ h - h @ s)))
+            if err > 1e-8 * max(1.0, float(np.max(np.abs(h)))):
+                raise JobError(f"{ck.path}: [measure.{name}] operator must commute with H(k) on "
+                               f"the line k = origin + s * {list(opts['direction'])}; it does not "
+                               f"(largest commutator entry {err:.3g} at the first grid point).")
+
+
+SAMPLE_SHAPES = {"end_modes": ("cells", "end_size", 1), "corner_modes": ("size", "corner_size", 2)}
+
+
+def _check_samples(ck: Checker, job: Job, point: Point) -> None:
+    """Open samples must be large enough for their end/corner regions and fit in memory;
+    both are known before any work starts."""
+    from ..physics import boundary, samples
+
+    for name, options in job.measurements:
+        if name not in SAMPLE_SHAPES:
+            continue
+        size_key, region_key, dims = SAMPLE_SHAPES[name]
+        opts = dict(options)
+        shape = (opts[size_key],) * dims
+        tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
+        try:
+            boundary.check_region_size(shape, opts[region_key])
+        except ValueError as exc:
+            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} is too "
+                           f"small: {exc}.") from None
+        try:
+            samples.choose_method(tb, shape, opts.get("method", "auto"),
+                                  driven=point.drive is not None)
+        except ValueError as exc:
+            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} needs "
+                           f"more memory than this machine has: {exc}.") from None
+
+
+def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:
+    """Check derived values and Hermiticity at a sample of grid points (all when few)."""
+    size = job.size
+    idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
+    for i in idx:
+        try:
+            values = job.values_at(int(i))
+        except (ArithmeticError, ValueError, TypeError) as exc:
+            raise JobError(f"{ck.path}: [params] an expression cannot be evaluated at grid point "
+                           f"{int(i)} ({exc}).") from None
+        for key in exprs:
+            v = values[key]
+            param = declared.get(key)
+            if param is None or job.custom is not None:
+                continue
+            if isinstance(v, complex) and abs(v.imag) > 1e-12 * max(1.0, abs(v)):
+                raise ck.fail("params", key, f"an expression with a real value ({param.expectation()})",
+                              exprs[key].text, f" It evaluates to {v} at grid point {int(i)}.")
+            if not param.admits(real(v)):
+                raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
+                              exprs[key].text, f" It evaluates to {real(v):g} at grid point {int(i)}.")
+        if job.drive.kind != "static":
+            _check_drive(ck, job, values, int(i), build=i in idx[:DRIVE_BUILDS])
+        if i == idx[0]:
+            first = job.point(int(i))
+            _check_line_operator(ck, job, first)
+            _check_samples(ck, job, first)
+        if job.custom is not None:
+            tb = job.build_model(values)
+            err = tb.hermiticity_error()
+            if err > 1e-10:
+                raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "
+                               f"matrix; at grid point {int(i)} they deviate by {err:.3g} "
+                               "(use real coefficients for Hermitian matrices, or pair a term "
+                               "with its conjugate).")

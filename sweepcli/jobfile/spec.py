@@ -1,0 +1,227 @@
+"""The validated job: frozen specs of the job file's tables and what is derived from them."""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..expressions import Expression
+from ..physics.lattice import TightBinding, assemble
+from ..physics.measurements import quantities_of
+from ..physics.models import MODELS
+from ..physics.point import Point, Quantity
+
+
+@dataclass(frozen=True)
+class Axis:
+    """One swept parameter: its name, the values in order and how they were declared."""
+
+    name: str
+    values: tuple[float, ...]
+    spacing: str  # "linear", "log" or "list"
+
+
+@dataclass(frozen=True)
+class Refine:
+    """Adaptive refinement: the grid of ``[sweep]`` is the coarse base; cells whose corners
+    disagree in ``by`` (or where ``gap_var`` falls below ``gap_below``) are halved, ``depth``
+    times at most. Points live on the finest grid, ``2**depth`` times denser than the base."""
+
+    by: str
+    depth: int
+    gap_below: float | None
+    gap_var: str
+
+    @property
+    def stride(self) -> int:
+        return 2 ** self.depth
+
+
+@dataclass(frozen=True)
+class CustomModel:
+    """A model declared in the job file: matrices with coefficient expressions."""
+
+    lattice: tuple[tuple[float, ...], ...]
+    positions: tuple[tuple[float, ...], ...]
+    onsite: tuple[tuple[np.ndarray, Expression], ...]
+    hoppings: tuple[tuple[tuple[int, ...], np.ndarray, Expression], ...]
+    operators: tuple[tuple[str, np.ndarray], ...]
+
+    @property
+    def names(self) -> frozenset[str]:
+        exprs = [e for _, e in self.onsite] + [e for _, _, e in self.hoppings]
+        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
+
+    def build(self, values: Mapping[str, complex]) -> TightBinding:
+        n = len(self.positions)
+        onsite = np.zeros((n, n), complex)
+        for matrix, coeff in self.onsite:
+            onsite = onsite + coeff(values) * matrix
+        terms = [(d, coeff(values) * matrix) for d, matrix, coeff in self.hoppings]
+        return assemble(np.array(self.lattice), np.array(self.positions), onsite, terms,
+                        dict(self.operators))
+
+
+@dataclass(frozen=True)
+class DriveSpec:
+    """The ``[drive]`` table: the period (or angular frequency) and the protocol.
+
+    ``steps``: ``(span, overrides)`` with the span a fraction of the period; ``terms``
+    (harmonic): ``(parameter, amplitude, harmonic n, phase)`` adding
+    ``amplitude * cos(n omega t + phase)`` to the parameter; ``kicks``: ``(time, strength,
+    overrides)`` with the time a fraction of the period and the kick ``exp(-i strength H)``, H the
+    model at the overridden parameters. All entries are expressions of the job's parameters.
+    """
+
+    kind: str = "static"
+    period: Expression | None = None
+    omega: Expression | None = None
+    steps: tuple = ()
+    terms: tuple = ()
+    kicks: tuple = ()
+    tol: float = 1e-8
+    max_slices: int = 4096
+    scheme: str = "magnus4"
+    source: tuple = ()  # the table as given, for normalisation
+
+    @property
+    def names(self) -> frozenset[str]:
+        exprs = [e for e in (self.period, self.omega) if e is not None]
+        for span, over in self.steps:
+            exprs += [span, *(e for _, e in over)]
+        for _, amp, _, phase in self.terms:
+            exprs += [amp, phase]
+        for time, strength, over in self.kicks:
+            exprs += [time, strength, *(e for _, e in over)]
+        return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
+
+    def normalised(self) -> dict:
+        return dict(self.source) if self.kind != "static" else {"kind": "static"}
+
+    @property
+    def always_set(self) -> frozenset[str]:
+        """Model parameters that every step sets (they need no value of their own)."""
+        if self.kind != "steps":
+            return frozenset()
+        return frozenset.intersection(*(frozenset(k for k, _ in over) for _, over in self.steps))
+
+    def period_at(self, values: Mapping[str, complex]) -> float:
+        if self.period is not None:
+            return real(self.period(values))
+        omega = real(self.omega(values))
+        return 2 * math.pi / omega if omega != 0 else math.inf
+
+    def compile(self, values: Mapping[str, complex], build):
+        """The drive at one grid point, as the physics core's drive object."""
+        from ..physics import drive as dr
+
+        period = self.period_at(values)
+
+        def at(overrides) -> TightBinding:
+            return build({**values, **{k: e(values) for k, e in overrides}})
+
+        if self.kind == "steps":
+            return dr.StepDrive(period, tuple((real(span(values)) * period, at(over))
+                                              for span, over in self.steps))
+        if self.kind == "kicks":
+            kicks = tuple((real(time(values)) * period,
+                           dr.combine([(real(strength(values)), at(over))]))
+                          for time, strength, over in self.kicks)
+            return dr.KickDrive(period, build(values), kicks)
+        omega = 2 * math.pi / period
+        terms = [(p, real(a(values)), n, real(ph(values))) for p, a, n, ph in self.terms]
+
+        def hamiltonian_at(t: float) -> TightBinding:
+            shifted = dict(values)
+            for p, amp, n, phase in terms:
+                shifted[p] = real(shifted[p]) + amp * math.cos(n * omega * t + phase)
+            return build(shifted)
+
+        return dr.HarmonicDrive(period, hamiltonian_at, tol=self.tol, max_slices=self.max_slices,
+                                scheme=self.scheme)
+
+
+@dataclass(frozen=True, eq=False)
+class Job:
+    """A validated, normalised job. Derived things (grids, k-meshes) are computed, never stored."""
+
+    path: str
+    text: str
+    name: str
+    title: str
+    model: str
+    custom: CustomModel | None
+    model_params: tuple[str, ...]
+    fixed: tuple[tuple[str, float], ...]
+    derived: tuple[tuple[str, Expression], ...]  # in evaluation order
+    axes: tuple[Axis, ...]
+    drive: DriveSpec
+    measurements: tuple[tuple[str, tuple[tuple[str, Any], ...]], ...]
+    filling: int | None
+    gap_tol: float
+    output: str
+    normalised: str
+    dim: int
+    norb: int
+    refine: Refine | None = None
+    predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return tuple(len(a.values) for a in self.axes)
+
+    @property
+    def size(self) -> int:
+        return int(np.prod(self.shape, dtype=np.int64))
+
+    @property
+    def sha256(self) -> str:
+        return hashlib.sha256(self.normalised.encode()).hexdigest()
+
+    def quantities(self) -> list[tuple[str, tuple[Quantity, ...]]]:
+        """``(measurement, its quantities)`` in job order."""
+        driven = self.drive.kind != "static"
+        return [(name, quantities_of(name, self.dim, driven)) for name, _ in self.measurements]
+
+    def consistency_rules(self) -> list:
+        """Bulk-boundary rules that apply to the quantities this job stores."""
+        from ..run.consistency import rules_for
+
+        return rules_for({q.name for _, qs in self.quantities() for q in qs})
+
+    def values_at(self, index: int, overrides: Mapping[str, float] | None = None
+                  ) -> dict[str, complex]:
+        """All parameter values (fixed, swept, derived) at flat grid index ``index``; swept
+        parameters in ``overrides`` take the given (off-grid) values instead."""
+        multi = np.unravel_index(index, self.shape) if self.axes else ()
+        values: dict[str, complex] = dict(self.fixed)
+        for axis, i in zip(self.axes, multi):
+            values[axis.name] = axis.values[i]
+        values.update(overrides or {})
+        for name, expr in self.derived:
+            values[name] = expr(values)
+        return values
+
+    def build_model(self, values: Mapping[str, complex]) -> TightBinding:
+        if self.custom is not None:
+            return self.custom.build(values)
+        factory = MODELS[self.model].func
+        return factory(**{p: real(values[p]) for p in self.model_params})
+
+    def point(self, index: int, overrides: Mapping[str, float] | None = None) -> Point:
+        values = self.values_at(index, overrides)
+        drive = self.drive.compile(values, self.build_model) if self.drive.kind != "static" else None
+        if self.drive.always_set:
+            # Parameters that only the steps set: the static model is that of the first step.
+            values.update({k: e(values) for k, e in self.drive.steps[0][1] if k not in values})
+        return Point(params=values, build=self.build_model, drive=drive,
+                     filling=self.filling, gap_tol=self.gap_tol)
+
+
+def real(value: complex) -> float:
+    return float(value.real) if isinstance(value, complex) else float(value)
