@@ -186,7 +186,9 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
         ax.plot(x, values, "o-" if not is_int else "o", ms=3, drawstyle="steps-mid" if is_int else "default",
                 label=var)
         if missing.any():
-            ax.plot(x[missing], np.zeros(missing.sum()), "x", color="crimson",
+            # On the bottom edge of the axes, so that no value is suggested.
+            ax.plot(x[missing], np.full(missing.sum(), 0.02), "x", color="crimson",
+                    transform=ax.get_xaxis_transform(), clip_on=False,
                     label="missing (see *_reason)")
         if axis.spacing == "log":
             ax.set_xscale("log")
