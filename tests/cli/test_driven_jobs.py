@@ -201,3 +201,14 @@ path = "{tmp_path / 'l.h5'}"
                      for row in mirror)
     job.write_text(job.read_text().replace('operator = "z0"', f"operator = [{rows}]"))
     assert load_job(job).measurements[0][0] == "line_winding"
+
+
+def test_harmonic_drive_identical_for_one_and_two_workers(tmp_path):
+    job = tmp_path / "h.toml"
+    job.write_text(HARMONIC.replace("OUT", str(tmp_path / "h.h5")).replace('"mm"', '"m"')
+                   .replace("A = [0.1, 0.2]", "A = [0.1, 0.5, 1.0]"))
+    for workers, out in (("1", "one.h5"), ("2", "two.h5")):
+        result = invoke("run", job, "-o", tmp_path / out, "-w", workers, "--chunk-size", "1",
+                        "--no-progress")
+        assert result.exit_code == 0, result.output
+    assert_same_content(tmp_path / "one.h5", tmp_path / "two.h5")
