@@ -38,7 +38,7 @@ def _version(value: bool) -> None:
 
 @app.callback()
 def main(ctx: typer.Context,
-         verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say more.")] = False,
+         verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
          debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks of errors.")] = False,
          version: Annotated[Optional[bool], typer.Option("--version", callback=_version,
                                                          is_eager=True, help="Print the version.")] = None,
@@ -125,6 +125,14 @@ def run(ctx: typer.Context,
             executor = DaskExecutor(client)
         out.parent.mkdir(parents=True, exist_ok=True)
         results.write(out)
+        if ctx.obj is not None and ctx.obj.verbose:
+            todo = results.size - results.n_done
+            typer.echo(f"{job.path}: {job.title}; {results.n_done} of {results.size} points "
+                       f"done, {todo} to go"
+                       + (f" (shard {part.label()})" if part else "")
+                       + f"; {executor.workers if executor else workers} worker(s); "
+                       f"measurements: {', '.join(n for n, _ in job.measurements)}; -> {out}",
+                       err=True)
         summary = run_job(job, results, workers=workers, chunk_size=chunk_size,
                             checkpoint=lambda r: r.write(out), checkpoint_every=checkpoint_every,
                             progress=progress, executor=executor,
@@ -197,8 +205,7 @@ def check(ctx: typer.Context,
           job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
           time_one: Annotated[bool, typer.Option("--time-one", help="Also evaluate the middle grid point once and report its time (this runs one point).")] = False,
           ) -> None:
-    """Validate JOB and print its grid, measurements and a cost estimate; runs nothing unless
-    --time-one is given."""
+    """Validate JOB and print its grid, measurements and a cost estimate (runs nothing)."""
     from .jobfile import load_job
     from .run.cost import estimate, time_one_point
 
@@ -374,10 +381,15 @@ def models(ctx: typer.Context) -> None:
         typer.echo(f"      source: {e.source}")
     typer.echo("measurements:")
     for e in MEASUREMENTS:
-        typer.echo(f"  {e.name}: {e.description}")
+        applies = {None: "static and driven jobs", True: "driven jobs", False: "static jobs"}
+        dims = "/".join(f"{d}D" for d in e.extra.get("dims", (1, 2)))
+        needs = ", needs a " + " and ".join(repr(o) for o in e.extra["operators"]) + " operator" \
+            if e.extra.get("operators") else ""
+        typer.echo(f"  {e.name}: {e.description} ({dims}, {applies[e.extra.get('driven')]}{needs})")
         for p in e.params:
             default = "" if p.required else f" = {p.default}"
             typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")
+        typer.echo(f"      source: {e.source}")
 
 
 # --- report commands (diff, terminal maps, export) below this line ---

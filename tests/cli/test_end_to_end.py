@@ -166,3 +166,9 @@ def test_version_and_models_listing():
     listing = runner.invoke(app, ["models"]).stdout
     for name in ("ssh", "qwz", "haldane", "bhz", "bbh", "chern", "gap"):
         assert name in listing
+
+
+def test_verbose_run_says_what_it_will_compute(small_quickstart, tmp_path):
+    result = CliRunner().invoke(app, ["--verbose", "run", str(small_quickstart), "--no-progress"])
+    assert result.exit_code == 0, result.output
+    assert "0 of 21 points done, 21 to go; 1 worker(s); measurements: gap, chern" in result.stderr
