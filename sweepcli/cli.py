@@ -240,6 +240,7 @@ def batch(ctx: typer.Context,
           directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
           force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
           seconds_per_point: Annotated[Optional[float], typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`).")] = None,
+          time_one: Annotated[bool, typer.Option("--time-one", help="Size the wall time by evaluating the middle grid point once here.")] = False,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from .jobfile import load_job
@@ -249,6 +250,10 @@ def batch(ctx: typer.Context,
         job = load_job(job_file)
         if tasks > job.size:
             raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
+        if time_one and seconds_per_point is None:
+            from .run.cost import time_one_point
+
+            seconds_per_point = time_one_point(job)
         p = plan(job, tasks, workers, seconds_per_point)
         texts = scripts(job, str(job_file), p)
         directory.mkdir(parents=True, exist_ok=True)

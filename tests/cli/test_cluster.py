@@ -151,6 +151,9 @@ def test_check_can_time_one_point_and_batch_can_use_it(job, tmp_path):
     # 9 points per task x 600 s x safety 2 + 10 min margin = 3 h 10 min.
     assert "#SBATCH --time=03:10:00" in (tmp_path / "b" / "shardy.slurm.sh").read_text()
     assert "#PBS -l walltime=03:10:00" in (tmp_path / "b" / "shardy.pbs.sh").read_text()
+    result = invoke("batch", job, "--tasks", "3", "--time-one", "--dir", tmp_path / "c")
+    assert result.exit_code == 0, result.output
+    assert "#SBATCH --time=00:1" in (tmp_path / "c" / "shardy.slurm.sh").read_text()  # ~10 min
 
 
 FAKE_SBATCH = """#!/bin/bash
