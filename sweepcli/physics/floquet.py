@@ -858,7 +858,8 @@ def transition_points(u_of: Callable[[float], np.ndarray], grid: Sequence[float]
     ``scipy.optimize.brentq`` then finds the root of that branch's phase (phase minus pi),
     the branch being followed at each trial value by maximal overlap with its left-end
     eigenvector. A root is kept only if ``U`` really has an eigenphase within ``check_tol`` of
-    0 (pi) there.
+    0 (pi) there. A grid value where ``U`` already has such an eigenphase is a transition at
+    that value.
     """
     grid = [float(x) for x in grid]
     if any(b <= a for a, b in zip(grid, grid[1:])):
@@ -871,9 +872,22 @@ def transition_points(u_of: Callable[[float], np.ndarray], grid: Sequence[float]
         return ph, v
 
     found: list[Transition] = []
+
+    def on_grid(p: float, ph: np.ndarray) -> None:
+        # A closing that falls on a grid value itself: no sign change brackets it, and the
+        # branches touching 0 (pi) there may be degenerate, so record it directly.
+        for m in range(ph.shape[0]):
+            for kind, dist in (("0", np.min(np.abs(ph[m]))),
+                               ("pi", np.min(np.pi - np.abs(ph[m])))):
+                if dist < check_tol and not any(abs(t.value - p) < 1e3 * xtol and t.gap == kind
+                                                and t.index == m for t in found):
+                    found.append(Transition(p, kind, m))
+
     prev = eig(grid[0])
+    on_grid(grid[0], prev[0])
     for a, b in zip(grid, grid[1:]):
         cur = eig(b)
+        on_grid(b, cur[0])
         (pa, va), (pb, vb) = prev, cur
         for m in range(pa.shape[0]):
             overlap = np.abs(np.conj(va[m].T) @ vb[m]) ** 2

@@ -81,9 +81,10 @@ def _transition_rows(results: Results, index: tuple) -> list[dict]:
             keep &= np.isclose(table[a.name], a.values[i], rtol=0, atol=1e-12 * (1 + abs(a.values[i])))
     cols = list(table)
     rows = [{c: table[c][j] for c in cols} for j in np.flatnonzero(keep)]
+    names = [a.name for a in results.axes]
     seen, out = set(), []
-    for r in rows:  # one legend entry per gap in 1D
-        key = (r["gap"], round(float(next(r[c] for c in cols if c == r["axis"])), 12))
+    for r in rows:  # a crossing found along two axes (or at a grid value) is drawn once
+        key = (r["gap"], *(round(float(r[n]), 12) for n in names))
         if key not in seen:
             seen.add(key)
             out.append(r)

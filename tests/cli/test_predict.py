@@ -68,3 +68,27 @@ def test_merged_shards_get_the_predicted_transitions_of_a_full_run(tmp_path):
     a = Results.read(tmp_path / "merged.h5").tables["transitions"]
     b = Results.read(tmp_path / "full.h5").tables["transitions"]
     assert a.keys() == b.keys() and all(np.array_equal(a[c], b[c]) for c in a)
+
+
+def test_static_qwz_predicted_closings_at_the_published_masses(tmp_path):
+    # Qi, Wu and Zhang, PRB 74, 085308 (2006); Asboth et al. (2016), ch. 6: H(k) has a zero
+    # eigenvalue at Gamma for m = -2t, at X and Y for m = 0, at M for m = +2t. Grid values chosen
+    # so that m = 0 lies on the grid and +-2 between grid values.
+    job = tmp_path / "qwz.toml"
+    out = tmp_path / "q.h5"
+    job.write_text(f"""
+[model]
+name = "qwz"
+[sweep]
+m = [-2.9, -2.3, -1.7, -0.4, 0.0, 0.6, 1.9, 2.2, 2.8]
+[measure.gap]
+[predict]
+[output]
+path = "{out}"
+""")
+    assert CliRunner().invoke(app, ["run", str(job), "--no-progress"]).exit_code == 0
+    t = Results.read(out).tables["transitions"]
+    found = sorted({(round(float(m), 9), round(float(k1), 3), round(float(k2), 3))
+                    for m, k1, k2 in zip(t["m"], t["k1"], t["k2"])})
+    assert found == [(-2.0, 0.0, 0.0), (0.0, 0.0, 0.5), (0.0, 0.5, 0.0), (2.0, 0.5, 0.5)]
+    assert set(t["gap"]) == {"0"}
