@@ -52,19 +52,6 @@ DENSE_LIMIT = 2000
 # Helpers on TightBinding objects
 
 
-def _canonical_hoppings(tb: TightBinding) -> dict[tuple[int, ...], np.ndarray]:
-    """Hoppings keyed by the representative of ``R, -R`` whose first nonzero entry is positive."""
-    out: dict[tuple[int, ...], np.ndarray] = {}
-    for r, t in tb.hoppings.items():
-        first = next(x for x in r if x != 0)
-        if first > 0:
-            out[r] = out.get(r, 0) + t
-        else:
-            neg = tuple(-x for x in r)
-            out[neg] = out.get(neg, 0) + t.conj().T
-    return out
-
-
 def combine(terms: Sequence[tuple[float, TightBinding]]) -> TightBinding:
     """The linear combination ``sum_i w_i tb_i`` of models on the same lattice (real weights).
 
@@ -74,7 +61,7 @@ def combine(terms: Sequence[tuple[float, TightBinding]]) -> TightBinding:
     onsite = sum(w * tb.onsite for w, tb in terms)
     hops: dict[tuple[int, ...], np.ndarray] = {}
     for w, tb in terms:
-        for r, t in _canonical_hoppings(tb).items():
+        for r, t in tb.hoppings.items():
             hops[r] = hops.get(r, 0) + w * t
     return TightBinding(first.lattice_vectors, first.orbital_positions, onsite, hops,
                         first.operators)
@@ -82,7 +69,7 @@ def combine(terms: Sequence[tuple[float, TightBinding]]) -> TightBinding:
 
 def _related(a: TightBinding, b: TightBinding, chiral: np.ndarray | None, atol: float) -> bool:
     """``a == b`` (``chiral is None``) or ``chiral a chiral == -b`` entry by entry."""
-    ha, hb = _canonical_hoppings(a), _canonical_hoppings(b)
+    ha, hb = a.hoppings, b.hoppings
     keys = set(ha) | set(hb)
     n = a.norb
     zero = np.zeros((n, n), complex)
@@ -505,8 +492,7 @@ class FactorStack:
         if not factors:
             raise ValueError("no factors to stack")
         self.durations = np.array([d for d, _ in factors], dtype=float)
-        canon = [_canonical_hoppings(tb) for _, tb in factors]
-        keys = sorted(set().union(*canon))
+        keys = sorted(set().union(*(tb.hoppings for _, tb in factors)))
         n = factors[0][1].norb
         dim = factors[0][1].dim
         self.onsite = np.stack([tb.onsite for _, tb in factors])

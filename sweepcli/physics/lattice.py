@@ -120,14 +120,16 @@ class TightBinding:
 
 
 def _merge_opposite(hops: dict[tuple[int, ...], np.ndarray]) -> dict[tuple[int, ...], np.ndarray]:
-    """Keep one representative of each ``R, -R`` pair (``T_{-R}`` contributes ``T_{-R}^dagger`` to ``+R``)."""
+    """One canonical representative of each ``R, -R`` pair: the one whose first nonzero entry is
+    positive (``T_{-R}`` contributes ``T_{-R}^dagger`` to ``+R``). Canonical keys let models on
+    the same lattice be compared and combined term by term."""
     merged: dict[tuple[int, ...], np.ndarray] = {}
     for r, t in hops.items():
-        neg = tuple(-x for x in r)
-        if neg in merged:
-            merged[neg] = merged[neg] + t.conj().T
-        else:
+        if next(x for x in r if x != 0) > 0:
             merged[r] = merged.get(r, 0) + t
+        else:
+            neg = tuple(-x for x in r)
+            merged[neg] = merged.get(neg, 0) + t.conj().T
     return merged
 
 
