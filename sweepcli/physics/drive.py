@@ -498,7 +498,7 @@ class FactorStack:
         self.onsite = np.stack([tb.onsite for _, tb in factors])
         self.disp = np.array(keys, dtype=float).reshape(len(keys), dim)
         zero = np.zeros((n, n), complex)
-        self.hops = np.array([[c.get(r, zero) for r in keys] for c in canon],
+        self.hops = np.array([[tb.hoppings.get(r, zero) for r in keys] for _, tb in factors],
                              dtype=complex).reshape(len(factors), len(keys), n, n)
 
     def bloch(self, k: np.ndarray) -> np.ndarray:
