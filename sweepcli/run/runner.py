@@ -20,6 +20,7 @@ from ..jobfile import Job
 from ..store import Results
 from .executors import make_executor
 from .progress import Progress
+from .refine import base_indices, level_indices
 from .worker import evaluate_chunk
 
 
@@ -121,8 +122,6 @@ def run_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
     """Run a job: the whole grid (or ``selection``), or, with ``[refine]``, level by level."""
     if job.refine is None:
         return run_sweep(job, results, selection=selection, **options)
-    from .refine import base_indices, level_indices
-
     if selection is not None:
         raise SweepError("a job with [refine] cannot be sharded: which points a level needs "
                          "depends on the previous level's results.")
@@ -137,9 +136,10 @@ def run_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
         summary = run_sweep(job, results, selection=wanted, **options)
         if summary.interrupted:
             break
-    done = int(results.done.sum())
-    return RunSummary(done=done, total=done if not (summary and summary.interrupted) else
-                      done + (summary.total - summary.done),
+    # A refined sweep has no total known in advance: what is done, plus what an interrupted
+    # level still wanted.
+    interrupted = summary is not None and summary.interrupted
+    done = results.n_done
+    return RunSummary(done=done, total=done + (summary.total - summary.done if interrupted else 0),
                       failed=int(np.count_nonzero(results.failure.ravel() != "")),
-                      interrupted=bool(summary and summary.interrupted),
-                      seconds=time.monotonic() - start)
+                      interrupted=interrupted, seconds=time.monotonic() - start)
