@@ -74,31 +74,33 @@ def _check_line_operator(ck: Checker, job: Job, point: Point) -> None:
                                f"(largest commutator entry {err:.3g} at the first grid point).")
 
 
-SAMPLE_SHAPES = {"end_modes": ("cells", "end_size", 1), "corner_modes": ("size", "corner_size", 2)}
+SAMPLE_SHAPES = {"end_modes": ("cells", "max_cells", 1), "corner_modes": ("size", "max_size", 2)}
 
 
 def _check_samples(ck: Checker, job: Job, point: Point) -> None:
-    """Open samples must be large enough for their end/corner regions and fit in memory;
-    both are known before any work starts."""
+    """Open samples must be large enough to hold bound modes, and the largest sample a count may
+    be doubled to must fit in memory; both are known before any work starts."""
     from ..physics import boundary, samples
 
     for name, options in job.measurements:
         if name not in SAMPLE_SHAPES:
             continue
-        size_key, region_key, dims = SAMPLE_SHAPES[name]
+        size_key, max_key, dims = SAMPLE_SHAPES[name]
         opts = dict(options)
         shape = (opts[size_key],) * dims
         tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
         try:
-            boundary.check_region_size(shape, opts[region_key])
+            boundary.check_sample_side(shape)
         except ValueError as exc:
             raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} is too "
                            f"small: {exc}.") from None
+        # The count may double the sample up to max_key (never below the first size).
+        key = max_key if opts[max_key] > opts[size_key] else size_key
         try:
-            samples.choose_method(tb, shape, opts.get("method", "auto"),
+            samples.choose_method(tb, (opts[key],) * dims, opts.get("method", "auto"),
                                   driven=point.drive is not None)
         except ValueError as exc:
-            raise JobError(f"{ck.path}: [measure.{name}] {size_key} = {opts[size_key]} needs "
+            raise JobError(f"{ck.path}: [measure.{name}] {key} = {opts[key]} needs "
                            f"more memory than this machine has: {exc}.") from None
 
 

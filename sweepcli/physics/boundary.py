@@ -18,31 +18,16 @@ counted, while modes bound to the boundary, which sit near the gap centre, are).
 A gap at or below ``gap_tol`` means the window cannot be set: the counts are missing with
 :attr:`~sweepcli.physics.point.Reason.GAP_CLOSED`.
 
-Classification
---------------
-Cells of a box sample (chain or flake) within ``corner_size = r`` cells of a face in direction
-``i`` (``c_i < r`` or ``c_i >= L_i - r``) are *near* that face. A cell near faces in all ``d``
-directions is in a *corner region* (an end region for a chain; ``r x r`` cells at each corner of
-a flake), one near some but not all is in an *edge* region, the rest is *bulk*. Corners are
-numbered ``sum_i b_i 2^i`` with ``b_i = 1`` at the high end of direction ``i``: for a chain
-0 = left (cell 0), 1 = right; for a flake 0 = (low a_1, low a_2), 1 = (high, low), 2 = (low,
-high), 3 = (high, high). Every side must have at least ``4 r`` cells, so that an edge state
-spread evenly along an edge puts at most ``2 r / L <= 1/2`` of its weight into corner regions
-(and a bulk state of a chain at most 1/2 into its end regions).
-
-In-gap levels are grouped into near-degenerate clusters (consecutive levels closer than
-``DEGENERACY * half-width``, 0.1). For a cluster with orthonormal basis ``Q`` (``m`` states)
-and projector ``P = Q Q^dagger``, the cluster is a corner (end) cluster if
-``tr(P Pi_corners) / m > CORNER_WEIGHT`` (0.6), an edge cluster if
-``tr(P (Pi_corners + Pi_edges)) / m > CORNER_WEIGHT``, bulk otherwise (``Pi_X`` projects on
-the orbitals of region X). With ``P_c`` the projector on all corner clusters (``M`` states)
-and ``w_c = tr(P_c Pi_c)`` the weight in corner ``c``, corner ``c`` is credited
-``round(M w_c / sum_c' w_c')`` modes: the rounded trace of the projector restricted to that
-corner, normalised by the mean corner weight so that the tails of a mode outside its ``r x r``
-region do not make it count less than one. All of these are traces of projectors on whole
-clusters, hence independent of the basis chosen inside a degenerate subspace; pooling the
-clusters keeps a pair of modes split by tunnelling between corners (at ``+-delta``) together
-even when ``2 delta`` exceeds the degeneracy tolerance.
+Counting
+--------
+Which in-window states are bound to which corner (end), and whether the count can be trusted,
+is decided in :mod:`sweepcli.physics.boundary_counts`: the sample must be large against the
+decay length set by the gap, every in-window state must be bound to a corner region of at most
+a quarter of a side (the region chosen from the measured decay), and the per-corner credits must
+be integers; otherwise the count is missing (``FINITE_SIZE``). :func:`count_boxes` doubles the
+box up to ``max_side`` until the count is settled. Corner windows are narrowed to the edge gap
+of ribbons of the flake's width (:func:`edge_window`), since corner modes of a second-order
+phase live in the edge gap.
 
 Ribbons
 -------
@@ -83,6 +68,7 @@ import scipy.sparse as sp
 from scipy.optimize import minimize, minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh, splu
 
+from . import boundary_counts as counts
 from . import samples
 from .drive import evolve
 from .lattice import TightBinding, kmesh
@@ -90,11 +76,8 @@ from .point import Reason
 from .spectrum import band_gap, energies
 
 WINDOW_FRACTION = 0.5
-CORNER_SIZE = 3
-CORNER_WEIGHT = 0.6
-DEGENERACY = 0.1
-#: Each side of a box sample must be at least this many corner sizes.
-MIN_SIDE = 4
+#: Step in k (rad) of the central difference for the curvature of a gap at its minimum.
+DECAY_STEP = 1e-2
 #: Fixed seed of the Lanczos start vector, so that sparse results are reproducible.
 V0_SEED = 20240601
 #: Shift of the shift-invert point off the gap centre, in units of the window half-width:
@@ -104,7 +87,6 @@ SIGMA_OFFSET = 1e-3 * (math.sqrt(5) - 1)
 #: Offset of the ribbon k grid, in grid steps: irrational, so that high-symmetry momenta, where
 #: branches of opposite edges cross the gap centre together, are never grid points.
 K_OFFSET = (math.sqrt(5) - 1) / 2
-KIND_NAMES = ("bulk", "edge", "corner")
 
 
 # ----------------------------------------------------------------------------------------------
@@ -139,7 +121,8 @@ class ModeCount:
     Attributes
     ----------
     per_corner : (2**d,) int, or ``None`` when missing
-        Modes credited to each corner (each end of a chain), numbered as in the module docstring.
+        Modes credited to each corner (each end of a chain), numbered as in
+        :mod:`sweepcli.physics.boundary_counts`.
     total : ``per_corner.sum()``, or ``None``.
     levels : (m,) float
         In-window levels relative to the window centre (energy), ascending.
@@ -148,6 +131,13 @@ class ModeCount:
     method : ``"dense"`` or ``"sparse"`` (``""`` if nothing was computed).
     window : the window used.
     reason : :class:`Reason`.
+    states : number of in-window states of the sample used (``None`` if none was diagonalised).
+    weight : smallest weight inside the corner regions among the counted clusters (``nan`` if
+        nothing was counted).
+    region : corner-region radius finally used, cells.
+    shape : the box actually diagonalised (the last one tried), cells.
+    vectors : (N, m) orthonormal eigenvectors of the in-window levels of that box (for
+        pictures; ``None`` when nothing was diagonalised).
     """
 
     per_corner: np.ndarray | None
@@ -157,7 +147,11 @@ class ModeCount:
     method: str = ""
     window: Window | None = None
     reason: Reason = Reason.OK
-
+    states: int | None = None
+    weight: float = float("nan")
+    region: int = 0
+    shape: tuple[int, ...] = ()
+    vectors: np.ndarray | None = None
 
 @dataclass(frozen=True)
 class EdgeModes:
@@ -278,94 +272,142 @@ def floquet_windows(factors: Sequence[tuple[float, TightBinding]],
 
 
 # ----------------------------------------------------------------------------------------------
-# Regions and classification
+# Sample sizes and edge gaps
 # ----------------------------------------------------------------------------------------------
 
-def check_region_size(shape: Sequence[int], corner_size: int) -> None:
-    """Raise ``ValueError`` unless every side has at least ``MIN_SIDE * corner_size`` cells."""
+def check_sample_side(shape: Sequence[int]) -> None:
+    """Raise ``ValueError`` unless every side has at least ``MIN_SIDE`` cells."""
     shape = tuple(int(x) for x in shape)
-    r = int(corner_size)
-    if r < 1:
-        raise ValueError(f"corner_size must be at least 1 cell; got {r}")
-    if min(shape) < MIN_SIDE * r:
-        raise ValueError(
-            f"sample of {' x '.join(map(str, shape))} cells is too small for corner regions of "
-            f"{r} cells: each side needs at least {MIN_SIDE * r} cells ({MIN_SIDE} x corner_size), "
-            f"so that an edge or bulk state cannot put more than half its weight into them")
+    if min(shape) < counts.MIN_SIDE:
+        raise ValueError(f"sample of {' x '.join(map(str, shape))} cells is too small: each side "
+                         f"needs at least {counts.MIN_SIDE} cells, so that corner regions of "
+                         f"up to a quarter of a side can hold a bound mode")
 
 
-def regions(cells: np.ndarray, shape: Sequence[int], corner_size: int = CORNER_SIZE
-            ) -> tuple[np.ndarray, np.ndarray]:
-    """Region of every orbital of a box sample.
+def box_sizes(side: int, max_side: int) -> list[int]:
+    """Sides tried for a box: ``side``, doubled while below ``max_side``, then ``max_side``."""
+    out = [int(side)]
+    while out[-1] < max_side:
+        out.append(min(2 * out[-1], int(max_side)))
+    return out
 
-    Parameters
-    ----------
-    cells : (N, d) int, from :func:`sweepcli.physics.samples.sample_sites`.
-    shape : (d,) box size in cells.
-    corner_size : ``r``, cells counted from each face (module docstring).
 
-    Returns
-    -------
-    kind : (N,) int -- 0 bulk, 1 edge, 2 corner (end).
-    corner : (N,) int -- corner number ``sum_i b_i 2^i`` in a corner region, else -1.
-
-    Raises
-    ------
-    ValueError (:func:`check_region_size`) if the sample is too small for the regions.
-    """
-    check_region_size(shape, corner_size)
+def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float
+                  ) -> tuple[list[tuple[int, ...]], tuple[int, ...]]:
+    """Boxes large enough for the decay length ``xi``; and the largest allowed box."""
     shape = tuple(int(x) for x in shape)
-    r = int(corner_size)
-    cells = np.asarray(cells)
-    high = cells >= np.asarray(shape) - r
-    near = (cells < r) | high
-    nnear = near.sum(axis=1)
-    d = len(shape)
-    kind = np.where(nnear == d, 2, np.where(nnear > 0, 1, 0))
-    corner = np.where(nnear == d, (high * (2 ** np.arange(d))).sum(axis=1), -1)
-    return kind, corner
+    largest = max(shape) if max_side is None else max(int(max_side), max(shape))
+    need = counts.required_side(xi)
+    boxes = []
+    for side in box_sizes(min(shape), largest):
+        box = tuple(max(side, x) for x in shape)
+        if min(box) >= need:
+            boxes.append(box)
+    return boxes, tuple(max(largest, x) for x in shape)
 
 
-def classify(levels: np.ndarray, vectors: np.ndarray, kind: np.ndarray, corner: np.ndarray,
-             ncorner: int, halfwidth: float) -> tuple[np.ndarray, np.ndarray]:
-    """Credit in-window levels to corners (module docstring).
+def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = None,
+                        nk: int = 64) -> tuple[float, float]:
+    """Gap around ``centre`` that confines boundary modes, and their decay length (cells).
 
-    Parameters
-    ----------
-    levels : (m,) in-window levels relative to the window centre.
-    vectors : (N, m) their eigenvectors (columns; orthonormalised here within each cluster).
-    kind, corner : from :func:`regions`.
-    ncorner : number of corners, ``2**d``.
-    halfwidth : window half-width (sets the degeneracy tolerance).
-
-    Returns
-    -------
-    per_corner : (ncorner,) int
-    kinds : (m,) int, class of each level's cluster, in the order of ``levels``.
+    1D model: the bulk levels against ``k``. 2D model: ribbons of ``width`` cells cut along
+    ``a_1`` and along ``a_2``, their levels against ``k_par`` (edge and projected bulk states;
+    a corner mode of a second-order phase lives in the edge gap). Returns the smallest gap and
+    the longest decay length over the geometries (:func:`gap_and_decay`).
     """
-    order = np.argsort(levels, kind="stable")
-    kinds = np.zeros(levels.size, dtype=int)
-    if levels.size == 0:
-        return np.zeros(ncorner, dtype=int), kinds
-    breaks = np.flatnonzero(np.diff(levels[order]) > DEGENERACY * halfwidth) + 1
-    in_corner = kind == 2
-    near_face = kind >= 1
-    weight = np.zeros(ncorner)  # tr(P_corner Pi_c), P_corner = all corner clusters
-    states = 0
-    for members in np.split(order, breaks):
-        q, _ = np.linalg.qr(vectors[:, members])
-        w = np.sum(np.abs(q) ** 2, axis=1)  # diagonal of the cluster projector
-        m = members.size
-        if w[in_corner].sum() / m > CORNER_WEIGHT:
-            kinds[members] = 2
-            weight += np.bincount(corner[in_corner], weights=w[in_corner], minlength=ncorner)
-            states += m
-        elif w[near_face].sum() / m > CORNER_WEIGHT:
-            kinds[members] = 1
-    if states == 0:
-        return np.zeros(ncorner, dtype=int), kinds
-    return np.rint(states * weight / weight.sum()).astype(int), kinds
+    def dist(h: TightBinding, k: np.ndarray) -> np.ndarray:
+        return np.min(np.abs(np.linalg.eigvalsh(h.bloch(k[:, None])) - centre), axis=-1)
 
+    found = [gap_and_decay(lambda k, h=h: dist(h, k), nk) for h in _geometries(tb, width)]
+    return min(g for g, _ in found), max(x for _, x in found)
+
+
+def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: float,
+                         centre: float, width: int | None = None,
+                         nk: int = 64) -> tuple[float, float]:
+    """:func:`static_boundary_gap` of a drive, around quasienergy ``centre`` (0 or ``pi/T``)."""
+    def dist(parts: list, k: np.ndarray) -> np.ndarray:
+        u = evolve([(t, h.bloch(k[:, None])) for t, h in parts])
+        eps = -np.angle(np.linalg.eigvals(u)) / period
+        return np.min(np.abs(_wrap(eps - centre, period)), axis=-1)
+
+    per_step = [_geometries(f, width) for _, f in factors]
+    found = [gap_and_decay(lambda k, j=j: dist([(t, g[j]) for (t, _), g in
+                                                zip(factors, per_step)], k), nk)
+             for j in range(len(per_step[0]))]
+    return min(g for g, _ in found), max(x for _, x in found)
+
+
+def _geometries(tb: TightBinding, width: int | None) -> list[TightBinding]:
+    if tb.dim == 1:
+        return [tb]
+    return [samples.ribbon(tb, int(width), axis) for axis in (0, 1)]
+
+
+def gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], nk: int) -> tuple[float, float]:
+    """Gap ``2 min_k d(k)`` of a 1D spectrum and the decay length of a state at its centre.
+
+    ``d(k)`` (batched over ``k``) is the distance of the nearest level from the gap centre.
+    Near its minimum ``d_0`` at ``k_0`` a massive Dirac branch ``sqrt(d_0^2 + v^2 q^2)`` has
+    ``d'' = v^2 / d_0`` and an in-gap state decays as ``exp(-x d_0 / v)``, so
+    ``xi = sqrt(d'' / d_0)`` (cells); a parabolic band edge gives ``sqrt(d'' / (2 d_0))``, so
+    this is the longer of the two. ``d''`` by central differences at the polished minimum.
+    Returns ``(gap, xi)``; ``xi`` is ``inf`` for a closed gap.
+    """
+    k = ribbon_kgrid(nk)
+    d = dist(k)
+    j = int(np.argmin(d))
+    step = 2 * np.pi / nk
+    res = minimize_scalar(lambda x: float(dist(np.array([x]))[0]),
+                          bounds=(k[j] - step, k[j] + step), method="bounded",
+                          options={"xatol": 1e-10})
+    k0, d0 = (float(res.x), float(res.fun)) if res.fun < d[j] else (float(k[j]), float(d[j]))
+    if not d0 > 0:
+        return 0.0, math.inf
+    h = DECAY_STEP
+    dm, dc, dp = dist(np.array([k0 - h, k0, k0 + h]))
+    curvature = max((dm - 2 * dc + dp) / h**2, 0.0)
+    return 2 * d0, math.sqrt(curvature / d0)
+
+
+def edge_window(window: Window, edge_gap: float) -> Window:
+    """The corner-mode window: ``window`` narrowed in proportion to the smaller of the bulk and
+    edge gaps (same fraction of the gap)."""
+    gap = min(window.gap, edge_gap)
+    hw = window.halfwidth * gap / window.gap if gap > 0 else float("nan")
+    return Window(window.centre, hw, gap, window.period)
+
+
+def count_boxes(shape: Sequence[int], window: Window, xi: float,
+                levels_of: Callable[[tuple[int, ...], str], tuple[np.ndarray, np.ndarray]],
+                method_of: Callable[[tuple[int, ...]], str],
+                cells_of: Callable[[tuple[int, ...]], np.ndarray], *,
+                max_side: int | None = None, chiral: np.ndarray | None = None,
+                gap_tol: float = 1e-6) -> ModeCount:
+    """Count boundary modes on the smallest box that settles the count (static or driven).
+
+    Boxes are ``shape``, doubled up to ``max_side`` (:func:`box_sizes`); those smaller than
+    :func:`~sweepcli.physics.boundary_counts.required_side` of the decay length ``xi`` (cells)
+    are skipped, and a box whose count is ``FINITE_SIZE`` is followed
+    by the next. ``levels_of(box, method)`` returns the in-window levels and vectors.
+    """
+    if window.closed(gap_tol):
+        return ModeCount(None, None, window=window, reason=Reason.GAP_CLOSED)
+    boxes, largest = _sizes_to_try(shape, max_side, xi)
+    result = ModeCount(None, None, window=window, reason=Reason.FINITE_SIZE, shape=largest)
+    for box in boxes:
+        method = method_of(box)
+        try:
+            levels, vectors = levels_of(box, method)
+        except ArpackNoConvergence:
+            return ModeCount(None, None, method=method, window=window,
+                             reason=Reason.NOT_CONVERGED, shape=box)
+        c = counts.count(levels, vectors, cells_of(box), box, window.halfwidth, chiral=chiral)
+        result = ModeCount(c.per_corner, c.total, levels, c.kinds, method, window, c.reason,
+                           c.states, c.weight, c.region, box, vectors)
+        if c.reason != Reason.FINITE_SIZE:
+            break
+    return result
 
 # ----------------------------------------------------------------------------------------------
 # Static samples
@@ -374,6 +416,21 @@ def classify(levels: np.ndarray, vectors: np.ndarray, kind: np.ndarray, corner: 
 def _v0(n: int) -> np.ndarray:
     rng = np.random.default_rng(V0_SEED)
     return rng.standard_normal(n) + 1j * rng.standard_normal(n)
+
+
+def _ritz(h: sp.spmatrix, vectors: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Orthonormal eigenpairs on the span of ``vectors`` (Rayleigh-Ritz).
+
+    Shift-invert Lanczos returns the vectors of an exactly degenerate pair as eigenvectors that
+    are not orthogonal to each other (measured: overlaps up to 0.16 on a 12 x 12 flake of
+    bhz_corner); densities and projectors need orthonormal columns.
+    """
+    if vectors.shape[1] == 0:
+        return np.zeros(0), vectors
+    q, _ = np.linalg.qr(vectors)
+    small = q.conj().T @ (h @ q)
+    e, z = np.linalg.eigh(0.5 * (small + small.conj().T))
+    return e, q @ z
 
 
 def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarray, np.ndarray]:
@@ -405,7 +462,7 @@ def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarr
             if not inside.all() or nev >= n - 2:
                 break
             nev *= 2
-        e, v = e[inside], v[:, inside]
+        e, v = _ritz(h, v[:, inside])
     else:
         # Only the in-window eigenvectors are computed (MRRR), 3-4x faster than all of them.
         e, v = sla.eigh(h.toarray(), subset_by_value=(c - hw, c + hw), driver="evr")
@@ -415,36 +472,37 @@ def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarr
 
 
 def box_modes(tb: TightBinding, shape: Sequence[int], window: Window, *,
-              corner_size: int = CORNER_SIZE, method: str = "auto",
-              memory_limit: float | None = None, gap_tol: float = 1e-6) -> ModeCount:
+              xi: float | None = None,
+              max_side: int | None = None, chiral: np.ndarray | None = None,
+              method: str = "auto", memory_limit: float | None = None,
+              gap_tol: float = 1e-6) -> ModeCount:
     """End (chain) or corner (flake) modes of a static open box sample in ``window``.
 
     Parameters
     ----------
-    tb : the model; shape : box size in cells, one entry per lattice direction.
-    window : from :func:`static_window`.
-    corner_size, method, memory_limit : see module docstring and
-        :func:`sweepcli.physics.samples.choose_method`.
+    tb : the model; shape : first box size in cells, one entry per lattice direction.
+    window : from :func:`static_window` (narrowed by :func:`edge_window` for corners).
+    xi : decay length of a bound state in cells (default from :func:`static_boundary_gap` with
+        ribbons as wide as the box).
+    max_side : largest side the box may be doubled to (default: no doubling).
+    chiral : cell-local chiral operator; chains are then counted by chiral charge.
+    method, memory_limit : see :func:`sweepcli.physics.samples.choose_method`.
     gap_tol : a bulk gap at or below this leaves the result missing (``GAP_CLOSED``).
 
     Raises
     ------
-    ValueError for a sample too small for the corner regions or too large for memory, before
-    any matrix is built.
+    ValueError for a sample too small or too large for memory, before any matrix is built.
     """
-    shape = tuple(int(x) for x in shape)
-    check_region_size(shape, corner_size)
-    method = samples.choose_method(tb, shape, method, limit=memory_limit)
-    kind, corner = regions(samples.sample_sites(tb, shape)[0], shape, corner_size)
-    if window.closed(gap_tol):
-        return ModeCount(None, None, method=method, window=window, reason=Reason.GAP_CLOSED)
-    h = samples.open_hamiltonian(tb, shape)
-    try:
-        levels, vectors = static_levels(h, window, method)
-    except ArpackNoConvergence:
-        return ModeCount(None, None, method=method, window=window, reason=Reason.NOT_CONVERGED)
-    per_corner, kinds = classify(levels, vectors, kind, corner, 2 ** len(shape), window.halfwidth)
-    return ModeCount(per_corner, int(per_corner.sum()), levels, kinds, method, window)
+    check_sample_side(shape)
+    samples.choose_method(tb, shape, method, limit=memory_limit)  # fails before any work
+    if xi is None and not window.closed(gap_tol):
+        xi = static_boundary_gap(tb, window.centre, int(shape[0]))[1]
+    return count_boxes(
+        shape, window, xi,
+        lambda box, m: static_levels(samples.open_hamiltonian(tb, box), window, m),
+        lambda box: samples.choose_method(tb, box, method, limit=memory_limit),
+        lambda box: samples.sample_sites(tb, box)[0],
+        max_side=max_side, chiral=chiral, gap_tol=gap_tol)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -532,37 +590,37 @@ def sample_steps(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[
 
 
 def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[int],
-                      windows: dict[str, Window], *, corner_size: int = CORNER_SIZE,
+                      windows: dict[str, Window], *, xi: dict[str, float] | None = None,
+                      max_side: int | None = None, chiral: np.ndarray | None = None,
                       method: str = "auto", memory_limit: float | None = None,
                       gap_tol: float = 1e-6) -> dict[str, ModeCount]:
     """End or corner modes of a driven open box sample at quasienergy 0 and ``pi/T``.
 
     Parameters as :func:`box_modes`; ``factors`` are ``(duration, TightBinding)`` steps in time
-    order and ``windows`` come from :func:`floquet_windows`. Returns ``{"0": ..., "pi": ...}``.
+    order (starting at a chiral-symmetric time when ``chiral`` is given), ``windows`` come from
+    :func:`floquet_windows`, ``xi`` (per gap) from :func:`floquet_boundary_gap`. Returns
+    ``{"0": ..., "pi": ...}``.
     """
     tb0 = factors[0][1]
-    shape = tuple(int(x) for x in shape)
-    check_region_size(shape, corner_size)
-    method = samples.choose_method(tb0, shape, method, driven=True, limit=memory_limit)
-    kind, corner = regions(samples.sample_sites(tb0, shape)[0], shape, corner_size)
-    steps = None
-    out = {}
-    for name, window in windows.items():
-        if window.closed(gap_tol):
-            out[name] = ModeCount(None, None, method=method, window=window,
-                                  reason=Reason.GAP_CLOSED)
-            continue
-        steps = sample_steps(factors, shape) if steps is None else steps
-        try:
-            levels, vectors = floquet_levels(steps, window, method)
-        except ArpackNoConvergence:
-            out[name] = ModeCount(None, None, method=method, window=window,
-                                  reason=Reason.NOT_CONVERGED)
-            continue
-        per_corner, kinds = classify(levels, vectors, kind, corner, 2 ** len(shape),
-                                     window.halfwidth)
-        out[name] = ModeCount(per_corner, int(per_corner.sum()), levels, kinds, method, window)
-    return out
+    check_sample_side(shape)
+    samples.choose_method(tb0, shape, method, driven=True, limit=memory_limit)
+    if xi is None:
+        xi = {g: floquet_boundary_gap(factors, w.period, w.centre, int(shape[0]))[1]
+              if not w.closed(gap_tol) else math.inf for g, w in windows.items()}
+    steps: dict[tuple[int, ...], list] = {}
+
+    def levels_of(window: Window) -> Callable:
+        def solve(box: tuple[int, ...], m: str) -> tuple[np.ndarray, np.ndarray]:
+            if box not in steps:
+                steps[box] = sample_steps(factors, box)
+            return floquet_levels(steps[box], window, m)
+        return solve
+
+    return {name: count_boxes(
+        shape, window, xi[name], levels_of(window),
+        lambda box: samples.choose_method(tb0, box, method, driven=True, limit=memory_limit),
+        lambda box: samples.sample_sites(tb0, box)[0],
+        max_side=max_side, chiral=chiral, gap_tol=gap_tol) for name, window in windows.items()}
 
 
 # ----------------------------------------------------------------------------------------------

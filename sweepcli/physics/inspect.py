@@ -1,14 +1,11 @@
-"""The states behind a boundary-mode count: eigenvectors, densities and whole spectra of samples.
+"""What a picture of one boundary-mode count needs beyond the count itself.
 
-:mod:`sweepcli.physics.boundary` counts modes and keeps only the levels; a picture of one grid
-point also needs the in-gap eigenvectors (where the modes sit), the whole spectrum of the
-sample (where the window lies in it) and the ribbon bands with their weight on the low edge.
-Everything here is composed from the functions that produce the counts --
-:func:`~sweepcli.physics.samples.open_hamiltonian`,
-:func:`~sweepcli.physics.boundary.static_levels`,
-:func:`~sweepcli.physics.boundary.floquet_levels`, :func:`~sweepcli.physics.boundary.classify`,
-:func:`~sweepcli.physics.samples.ribbon`, :func:`~sweepcli.physics.drive.evolve` -- with the same
-arguments, so a count found here is the count a run stores (no second model or solver).
+The count and its in-window eigenvectors come from the measurement's own
+:class:`~sweepcli.physics.boundary.ModeCount` (no second solver); a picture also needs the
+densities of those states, the whole spectrum of the sample (where the window lies in it) and
+the ribbon bands with their weight on the low edge, composed here from
+:func:`~sweepcli.physics.samples.open_hamiltonian`, :func:`~sweepcli.physics.samples.ribbon` and
+:func:`~sweepcli.physics.drive.evolve`.
 
 Conventions are those of :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.samples`:
 sample orbital ``I = c * n + o`` (C order over cells), levels relative to the window centre,
@@ -18,140 +15,14 @@ quasienergies ``eps = -arg(lambda) / T``, reduced momentum ``k_par = k . a_p`` i
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse.linalg import ArpackNoConvergence
 
 from . import boundary as bd
 from . import samples
 from .drive import evolve
 from .lattice import TightBinding
-from .point import Reason
-
-
-@dataclass(frozen=True)
-class BoxStates:
-    """In-window states of a box sample (chain or flake) at one gap.
-
-    Attributes
-    ----------
-    levels : (m,) float
-        In-window levels relative to the window centre (energy), ascending.
-    vectors : (N, m) complex
-        Their eigenvectors (columns, sample orbital order), orthonormal: for a static sample
-        the Rayleigh-Ritz vectors of the solver's span (see :func:`box_states`).
-    kinds : (m,) int
-        Class of each level's cluster: 0 bulk, 1 edge, 2 corner (end).
-    per_corner : (2**d,) int or ``None``
-        Modes credited to each corner (end), numbered as in :mod:`sweepcli.physics.boundary`.
-    total : ``per_corner.sum()`` or ``None``.
-    window : the window; method : ``"dense"`` or ``"sparse"``; reason : why counts are missing.
-    """
-
-    levels: np.ndarray
-    vectors: np.ndarray
-    kinds: np.ndarray
-    per_corner: np.ndarray | None
-    total: int | None
-    window: bd.Window
-    method: str
-    reason: Reason = Reason.OK
-
-    @classmethod
-    def missing(cls, n: int, window: bd.Window, method: str, reason: Reason) -> BoxStates:
-        return cls(np.zeros(0), np.zeros((n, 0), complex), np.zeros(0, int), None, None,
-                   window, method, reason)
-
-
-def _classified(levels: np.ndarray, vectors: np.ndarray, kind: np.ndarray, corner: np.ndarray,
-                ncorner: int, window: bd.Window, method: str) -> BoxStates:
-    per_corner, kinds = bd.classify(levels, vectors, kind, corner, ncorner, window.halfwidth)
-    return BoxStates(levels, vectors, kinds, per_corner, int(per_corner.sum()), window, method)
-
-
-def box_states(tb: TightBinding, shape: Sequence[int], window: bd.Window, *,
-               corner_size: int = bd.CORNER_SIZE, method: str = "auto",
-               gap_tol: float = 1e-6) -> BoxStates:
-    """:func:`~sweepcli.physics.boundary.box_modes` keeping the in-window eigenvectors.
-
-    Parameters
-    ----------
-    tb : the static model; shape : box size in cells, one entry per lattice direction.
-    window : from :func:`~sweepcli.physics.boundary.static_window`.
-    corner_size, method, gap_tol : as for :func:`~sweepcli.physics.boundary.box_modes`.
-
-    Returns
-    -------
-    BoxStates; ``levels``, ``kinds``, ``per_corner`` and ``total`` are those of ``box_modes``
-    with the same arguments (computed from the solver's vectors); ``vectors`` are orthonormal
-    eigenvectors of the same span, ascending with ``levels``.
-
-    Raises
-    ------
-    ValueError for a sample too small for its corner regions or too large for memory.
-    """
-    shape = tuple(int(x) for x in shape)
-    bd.check_region_size(shape, corner_size)
-    method = samples.choose_method(tb, shape, method)
-    kind, corner = bd.regions(samples.sample_sites(tb, shape)[0], shape, corner_size)
-    n = kind.size
-    if window.closed(gap_tol):
-        return BoxStates.missing(n, window, method, Reason.GAP_CLOSED)
-    h = samples.open_hamiltonian(tb, shape)
-    try:
-        levels, vectors = bd.static_levels(h, window, method)
-    except ArpackNoConvergence:
-        return BoxStates.missing(n, window, method, Reason.NOT_CONVERGED)
-    # Counted from the solver's own vectors, exactly as box_modes counts them.
-    out = _classified(levels, vectors, kind, corner, 2 ** len(shape), window, method)
-    return replace(out, vectors=_ritz_vectors(h, vectors))
-
-
-def _ritz_vectors(h, vectors: np.ndarray) -> np.ndarray:
-    """Orthonormal eigenvectors spanning the same space (Rayleigh-Ritz), ascending in energy.
-
-    Shift-invert Lanczos returns the vectors of an exactly degenerate pair as eigenvectors that
-    are not orthogonal to each other (measured: overlaps up to 0.16 on a 12 x 12 flake of
-    bhz_corner); :func:`~sweepcli.physics.boundary.classify` orthonormalises inside each cluster
-    and is unaffected, but a density ``sum |psi|^2`` needs orthonormal columns.
-    """
-    if vectors.shape[1] == 0:
-        return vectors
-    q, _ = np.linalg.qr(vectors)
-    small = q.conj().T @ (h @ q)
-    _, z = np.linalg.eigh(0.5 * (small + small.conj().T))
-    return q @ z
-
-
-def floquet_box_states(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[int],
-                       windows: dict[str, bd.Window], *, corner_size: int = bd.CORNER_SIZE,
-                       method: str = "auto", gap_tol: float = 1e-6) -> dict[str, BoxStates]:
-    """:func:`~sweepcli.physics.boundary.floquet_box_modes` keeping the in-window eigenvectors.
-
-    ``factors`` are ``(duration, TightBinding)`` steps in time order, ``windows`` from
-    :func:`~sweepcli.physics.boundary.floquet_windows`; returns ``{"0": ..., "pi": ...}`` with
-    levels relative to each window's centre (``0`` or ``pi/T``), wrapped to ``[-pi/T, pi/T)``.
-    """
-    tb0 = factors[0][1]
-    shape = tuple(int(x) for x in shape)
-    bd.check_region_size(shape, corner_size)
-    method = samples.choose_method(tb0, shape, method, driven=True)
-    kind, corner = bd.regions(samples.sample_sites(tb0, shape)[0], shape, corner_size)
-    steps = None
-    out = {}
-    for name, window in windows.items():
-        if window.closed(gap_tol):
-            out[name] = BoxStates.missing(kind.size, window, method, Reason.GAP_CLOSED)
-            continue
-        steps = bd.sample_steps(factors, shape) if steps is None else steps
-        try:
-            levels, vectors = bd.floquet_levels(steps, window, method)
-        except ArpackNoConvergence:
-            out[name] = BoxStates.missing(kind.size, window, method, Reason.NOT_CONVERGED)
-            continue
-        out[name] = _classified(levels, vectors, kind, corner, 2 ** len(shape), window, method)
-    return out
 
 
 def cell_density(vectors: np.ndarray, norb: int) -> np.ndarray:

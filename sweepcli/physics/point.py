@@ -26,6 +26,8 @@ class Reason(IntEnum):
     SECTOR_GAP_CLOSED = 3  # an auxiliary spectrum (spin, symmetry sector) is gapless
     FAILED = 4  # the evaluation raised; the message is in the point's failure record
     NOT_COMPUTED = 5  # the point was not (yet) evaluated
+    FINITE_SIZE = 6  # a boundary count the largest allowed open sample cannot settle
+    EDGE_GAP_CLOSED = 7  # the edges of the sample are gapless, so corner modes are not defined
 
 
 @dataclass(frozen=True)

@@ -58,7 +58,7 @@ class SampleDrawing:
     kind : ``"flake"``, ``"chain"`` or ``"ribbon"``; shape : cells (``(L, L)``, ``(L,)`` or
         ``(W,)`` across a ribbon); gap : the chosen gap, ``"0"`` or ``"pi"``.
     index : grid index (one entry per axis) of the point; params : its swept values.
-    options : the sample options used (size, window, corner_size / end_size, method, ...).
+    options : the sample options used (size, max size, window, method, ...).
     levels : chain/flake: ``(n,)`` levels drawn, ascending (energy; quasienergy in
         ``[-pi/T, pi/T]``), the whole spectrum when ``full_spectrum``; ribbon: ``(nk, M)``.
     window_indices : indices into ``levels`` (flat indices for a ribbon) of the states inside
@@ -74,6 +74,7 @@ class SampleDrawing:
     corner_weight : chain/flake: ``(2**d,)`` density inside each corner (end) region.
     reasons : gap -> reason name of missing counts (``"ok"`` otherwise).
     full_spectrum : whether ``levels`` is the whole spectrum.
+    region : chain/flake: radius in cells of the end (corner) regions the count settled on.
     """
 
     kind: str
@@ -91,6 +92,7 @@ class SampleDrawing:
     corner_weight: np.ndarray | None = None
     reasons: dict[str, str] = field(default_factory=dict)
     full_spectrum: bool = True
+    region: int = 0
 
     def describe(self) -> str:
         """One line: the sample and the counts of the chosen gap."""
@@ -187,39 +189,36 @@ def _match(full: np.ndarray, targets: np.ndarray, period: float | None) -> np.nd
 
 
 def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) -> dict:
+    from ..physics import boundary_counts
     from ..physics import inspect as ins
     from ..physics import samples
-    from ..physics.boundary import regions
+    from ..physics.measurements import boundary as mb
 
-    region = options["corner_size"] if kind == "flake" else options["end_size"]
-    side = options["size"] if kind == "flake" else options["cells"]
-    shape = (side,) * KIND_DIM[kind]
     driven = factors is not None
     tb = factors[0][1] if driven else point.tb
     try:
-        if driven:
-            states = ins.floquet_box_states(factors, shape, windows, corner_size=region,
-                                            method=options["method"], gap_tol=point.gap_tol)
-        else:
-            states = {"0": ins.box_states(tb, shape, windows["0"], corner_size=region,
-                                          method=options["method"], gap_tol=point.gap_tol)}
+        states = mb.box_counts(point, KINDS[kind][0], options)
     except ValueError as exc:
         raise SweepError(f"cannot build the {kind}: {exc}.") from None
+    chosen = states[gap]
+    shape = chosen.shape
+    region = chosen.region
     period = windows["0"].period
     n = math.prod(shape) * tb.norb
     absolute = {g: (s.levels + s.window.centre if not driven else
                     (s.levels + s.window.centre + np.pi / period) % (2 * np.pi / period)
-                    - np.pi / period) for g, s in states.items()}
+                    - np.pi / period) for g, s in states.items() if s.shape == shape}
     full = n <= (FULL_SPECTRUM_MAX_DRIVEN if driven else FULL_SPECTRUM_MAX)
     if full:
         levels = ins.floquet_box_spectrum(factors, shape) if driven else ins.box_spectrum(tb, shape)
     else:
         levels = np.sort(np.concatenate(list(absolute.values())))
-    at = {g: _match(levels, absolute[g], period) for g in states}
-    kinds = {g: states[g].kinds for g in states}
-    density = ins.cell_density(states[gap].vectors, tb.norb)
+    at = {g: _match(levels, absolute[g], period) for g in absolute}
+    kinds = {g: states[g].kinds for g in absolute}
+    vectors = chosen.vectors if chosen.vectors is not None else np.zeros((n, 0), complex)
+    density = ins.cell_density(vectors, tb.norb)
     cells = samples.sample_sites(tb, shape)[0][:: tb.norb]
-    _, corner = regions(cells, shape, region)
+    corner = boundary_counts.corner_regions(cells, shape, region)
     corner_weight = np.bincount(corner[corner >= 0], weights=density[corner >= 0],
                                 minlength=2 ** len(shape))
     counts = {}
@@ -307,7 +306,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
                                 np.sort(at_gap), np.sort(at_gap[raw["kinds"][gap] == 2]),
                                 raw["counts"], density=raw["density"],
                                 corner_weight=raw["corner_weight"], reasons=raw["reasons"],
-                                full_spectrum=raw["full"])
+                                full_spectrum=raw["full"], region=raw["region"])
     if as_measured:
         drawing = replace(drawing, stored=_stored(results, kind, index, driven))
     raw.update(job=job, point=point, windows=windows, driven=driven)
@@ -352,8 +351,7 @@ def _title(job, drawing: SampleDrawing, options: dict) -> str:
         lines.append(f"{_sample_name(drawing.kind, drawing.shape)}, open along "
                      f"a{options['open_axis'] + 1}")
     else:
-        key = "corner_size" if drawing.kind == "flake" else "end_size"
-        n_reg = options[key]
+        n_reg = drawing.region
         reg = f"{n_reg} x {n_reg}" if drawing.kind == "flake" else f"{n_reg}"
         lines.append(f"{_sample_name(drawing.kind, drawing.shape)}, "
                      f"{'corner' if drawing.kind == 'flake' else 'end'} regions {reg} cells, "

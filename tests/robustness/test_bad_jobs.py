@@ -176,14 +176,22 @@ def test_custom_model_matrix_of_the_wrong_size(tmp_path):
                    "matrix of numbers of size 2; got 'a matrix of size 4'.")
 
 
-def test_flake_too_small_for_its_corner_regions(tmp_path):
+def test_flake_too_small_for_corner_regions(tmp_path):
     text = GOOD.replace('name = "qwz"', 'name = "bhz_corner"').replace("t = 1.0", "delta2 = 0.5")
-    text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 8\ncorner_size = 3")
+    text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 6")
     msg = run_bad(tmp_path, text)
-    assert msg == ("JOB: [measure.corner_modes] size = 8 is too small: sample of 8 x 8 cells is too "
-                   "small for corner regions of 3 cells: each side needs at least 12 cells (4 x "
-                   "corner_size), so that an edge or bulk state cannot put more than half its "
-                   "weight into them.")
+    assert msg == ("JOB: [measure.corner_modes] size = 6 is too small: sample of 6 x 6 cells is too "
+                   "small: each side needs at least 8 cells, so that corner regions of up to a "
+                   "quarter of a side can hold a bound mode.")
+
+
+def test_largest_doubled_flake_too_large_for_the_machine(tmp_path):
+    text = GOOD.replace('name = "qwz"', 'name = "bhz_corner"').replace("t = 1.0", "delta2 = 0.5")
+    text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 16\nmax_size = 4000\n"
+                                         "method = \"dense\"")
+    msg = run_bad(tmp_path, text)
+    assert msg.startswith("JOB: [measure.corner_modes] max_size = 4000 needs more memory than "
+                          "this machine has: flake of 4000 x 4000 cells x 4 orbitals")
 
 
 def test_flake_too_large_for_the_machine(tmp_path):

@@ -3,18 +3,21 @@
 Static jobs build the samples from ``point.tb``; driven jobs from the steps of
 ``point.drive.factors()`` (``(duration, TightBinding)`` in time order), evolved with
 :func:`sweepcli.physics.drive.evolve`. Conventions, windows and the classification criterion
-are in :mod:`sweepcli.physics.boundary`.
+are in :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.boundary_counts`.
 
 Layout of the stored variables (``g`` is ``0``, plus ``pi`` for driven jobs):
 
 * ``end_modes``: ``end_modes_g`` (both ends), ``end_modes_g_left`` (the end at cell 0),
-  ``end_modes_g_right``, and ``end_modes_method``;
+  ``end_modes_g_right``; ``end_modes_g_states``, ``end_modes_g_weight``,
+  ``end_modes_g_cells`` (what a reader needs to trust the count: in-window states, least
+  bound weight among those counted, chain length used); and ``end_modes_method``;
 * ``edge_modes``: ``chiral_edge_modes_g`` (net chiral modes on the low edge of the ribbon, +1
   per mode moving towards +k_par) and ``edge_gap_g``;
 * ``corner_modes``: ``corner_modes_g`` (all corners) and one variable per corner,
   ``corner_modes_g_00``, ``_10``, ``_01``, ``_11``, the two digits saying whether the corner
-  is at the low (0) or high (1) end of lattice directions a_1 and a_2; and
-  ``corner_modes_method``.
+  is at the low (0) or high (1) end of lattice directions a_1 and a_2;
+  ``corner_modes_g_states``, ``_weight``, ``_size`` as for chains, ``corner_modes_g_edge_gap``
+  (the gap that sets the window); and ``corner_modes_method``.
 
 ``*_method`` is 0 for dense diagonalisation, 1 for Lanczos. The quantities of a driven job are
 ``quantities(dim, driven=True)``. The stored reason is the first non-OK reason of the gaps
@@ -24,11 +27,13 @@ still be filled.
 
 from __future__ import annotations
 
+import math
+from dataclasses import replace
 from typing import Any
 
 from .. import boundary as bd
 from .. import samples
-from ..drive import converged_factors
+from ..drive import StepDrive, converged_factors
 from ..lattice import kmesh
 from ..point import Point, Quantity, Reason
 from ..registry import Param
@@ -92,13 +97,24 @@ def _reason(results: dict[str, Any]) -> Reason:
     return Reason.OK
 
 
+def _trust_quantities(prefix: str, g: str, size: str, size_doc: str) -> list[Quantity]:
+    """What a reader needs to trust a count: in-window states, least bound weight, sample used."""
+    return [Quantity(f"{prefix}_{g}_states", "int32", "1",
+                     f"in-window states of the sample {_AT[g]}"),
+            Quantity(f"{prefix}_{g}_weight", "float64", "1",
+                     f"smallest weight inside the boundary regions among the counted states "
+                     f"{_AT[g]}"),
+            Quantity(f"{prefix}_{g}_{size}", "int32", "1", f"{size_doc} {_AT[g]}")]
+
+
 def _end_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = []
     for g in _GAPS[driven]:
         qs += [Quantity(f"end_modes_{g}", "int32", "1", f"end modes of an open chain {_AT[g]}"),
                Quantity(f"end_modes_{g}_left", "int32", "1", f"end modes {_AT[g]} at cell 0"),
                Quantity(f"end_modes_{g}_right", "int32", "1", f"end modes {_AT[g]} at the last "
-                                                               f"cell")]
+                                                               f"cell"),
+               *_trust_quantities("end_modes", g, "cells", "chain length used, cells")]
     qs.append(Quantity("end_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
     return tuple(qs)
 
@@ -110,44 +126,117 @@ def _end_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
            "(2001); Asboth and Obuse, PRB 88, 121406 (2013) for drives",
     params=(Param("cells", kind="int", default=40, low=4, doc="chain length in cells",
                   sweepable=False),
-            _WINDOW,
-            Param("end_size", kind="int", default=bd.CORNER_SIZE, low=1,
-                  doc="cells counted from each end as its end region (chain length >= 4x)",
+            Param("max_cells", kind="int", default=160, low=8,
+                  doc="longest chain the length may be doubled to until the count is settled",
                   sweepable=False),
+            _WINDOW,
             _METHOD),
     quantities=_end_quantities, dims=(1,), driven=None, operators=(),
 )
-def end_modes(point: Point, *, cells: int = 40, window: float = bd.WINDOW_FRACTION,
-              end_size: int = bd.CORNER_SIZE, method: str = "auto") -> dict[str, Any]:
-    """End modes of a chain of ``cells`` cells: total and per end, at 0 (and pi/T if driven)."""
+def end_modes(point: Point, *, cells: int = 40, max_cells: int = 160,
+              window: float = bd.WINDOW_FRACTION, method: str = "auto") -> dict[str, Any]:
+    """End modes of an open chain: total and per end, at 0 (and pi/T if driven).
+
+    With a chiral operator (the model's ``"chiral"``; for a step drive in its chiral-symmetric
+    frame) each end is credited its chiral charge, so bound pairs at +-E are not zero modes.
+    """
     missing = _unsliced("end_modes", point)
     if missing is not None:
         return missing
-    results = _box(point, (cells,), window, end_size, method)
+    results = box_counts(point, "end_modes", dict(cells=cells, max_cells=max_cells,
+                                                  window=window, method=method))
     out: dict[str, Any] = {}
     for g, r in results.items():
         pc = r.per_corner
         out[f"end_modes_{g}"] = r.total
         out[f"end_modes_{g}_left"] = None if pc is None else int(pc[0])
         out[f"end_modes_{g}_right"] = None if pc is None else int(pc[1])
-    out["end_modes_method"] = METHOD_CODE[next(iter(results.values())).method]
+        out.update(_trust("end_modes", g, "cells", r))
+    out["end_modes_method"] = _method_code(results)
     out["reason"] = _reason(results)
     return out
 
 
-def _box(point: Point, shape: tuple[int, ...], fraction: float, corner_size: int, method: str
-         ) -> dict[str, bd.ModeCount]:
+def _trust(prefix: str, g: str, size: str, r: bd.ModeCount) -> dict[str, Any]:
+    return {f"{prefix}_{g}_states": r.states, f"{prefix}_{g}_weight": r.weight,
+            f"{prefix}_{g}_{size}": int(r.shape[0]) if r.shape else None}
+
+
+def _method_code(results: dict[str, bd.ModeCount]) -> int | None:
+    methods = [r.method for r in results.values() if r.method]
+    return METHOD_CODE[methods[-1]] if methods else None
+
+
+def _chiral_frame(point: Point) -> tuple[list | None, Any]:
+    """Factors in a chiral-symmetric frame and the chiral operator, or ``(None, None)``.
+
+    Static models: the model's own ``"chiral"`` operator. Step drives: the frame starting at
+    the first chiral-symmetric time (Asboth and Obuse, PRB 88, 121406 (2013)), where
+    ``Gamma U Gamma = U^dagger``; other drives are counted without chiral charges.
+    """
+    if point.drive is None:
+        return None, point.tb.operators.get("chiral")
+    chiral = point_factors(point)[0][1].operators.get("chiral")
+    if chiral is None or not isinstance(point.drive, StepDrive):
+        return None, None
+    try:
+        t1, _ = point.drive.symmetric_times(chiral)
+    except ValueError:
+        return None, None
+    return point.drive.factors(start=t1), chiral
+
+
+def box_counts(point: Point, measurement: str, options: dict[str, Any]
+               ) -> dict[str, bd.ModeCount]:
+    """The counts of ``end_modes`` or ``corner_modes`` at a point, with their eigenvectors.
+
+    ``options`` are the measurement's (``cells, max_cells`` or ``size, max_size``, ``window``,
+    ``method``). Returns ``{"0": ModeCount}`` static, ``{"0", "pi"}`` driven. Used by the
+    measurements and by pictures of one point, so both show the same count.
+    """
+    corners = measurement == "corner_modes"
+    if corners:
+        shape, max_side = (options["size"],) * 2, options["max_size"]
+    else:
+        shape, max_side = (options["cells"],), options["max_cells"]
+    results = _box(point, shape, max_side, options["window"], options["method"],
+                   chiral_chain=not corners, corners=corners)
+    if corners:
+        bulk = point_windows(point, options["window"])
+        for g, r in results.items():
+            if r.reason == Reason.GAP_CLOSED and not bulk[g].closed(point.gap_tol):
+                results[g] = replace(r, reason=Reason.EDGE_GAP_CLOSED)
+    return results
+
+
+def _box(point: Point, shape: tuple[int, ...], max_side: int, fraction: float, method: str, *,
+         chiral_chain: bool = False, corners: bool = False) -> dict[str, bd.ModeCount]:
     # Sizes are checked before the bulk window is computed, so a bad sample fails at once.
-    bd.check_region_size(shape, corner_size)
+    bd.check_sample_side(shape)
     driven = point.drive is not None
-    tb0 = point_factors(point)[0][1] if driven else point.tb
+    factors = point_factors(point) if driven else None
+    tb0 = factors[0][1] if driven else point.tb
     samples.choose_method(tb0, shape, method, driven=driven)
     wins = point_windows(point, fraction)
+    xi = {}
+    for g, w in wins.items():
+        if w.closed(point.gap_tol):
+            xi[g] = math.inf
+            continue
+        if driven:
+            gap, xi[g] = bd.floquet_boundary_gap(factors, point.drive.period, w.centre, shape[0])
+        else:
+            gap, xi[g] = bd.static_boundary_gap(point.tb, w.centre, shape[0])
+        if corners:
+            wins[g] = bd.edge_window(w, gap)
+    chiral = None
+    if chiral_chain:
+        frame, chiral = _chiral_frame(point)
+        factors = frame or factors
+    kw = dict(max_side=max_side, chiral=chiral, method=method, gap_tol=point.gap_tol)
     if not driven:
-        return {"0": bd.box_modes(tb0, shape, wins["0"], corner_size=corner_size, method=method,
-                                  gap_tol=point.gap_tol)}
-    return bd.floquet_box_modes(point_factors(point), shape, wins, corner_size=corner_size,
-                                method=method, gap_tol=point.gap_tol)
+        return {"0": bd.box_modes(tb0, shape, wins["0"], xi=xi["0"], **kw)}
+    return bd.floquet_box_modes(factors, shape, wins, xi=xi, **kw)
 
 
 def _edge_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
@@ -207,6 +296,10 @@ def _corner_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
             qs.append(Quantity(f"corner_modes_{g}_{c}", "int32", "1",
                                f"corner modes {_AT[g]} at the corner ({c[0]}, {c[1]}) "
                                f"(0 low, 1 high end of a_1, a_2)"))
+        qs += _trust_quantities("corner_modes", g, "size", "flake side used, cells")
+        qs.append(Quantity(f"corner_modes_{g}_edge_gap", "float64", "energy",
+                           f"gap confining the corner modes {_AT[g]}: the smaller of the bulk "
+                           f"gap and the edge gaps of ribbons as wide as the flake"))
     qs.append(Quantity("corner_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
     return tuple(qs)
 
@@ -218,24 +311,32 @@ def _corner_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
            "Advances 4, eaat0346 (2018)",
     params=(Param("size", kind="int", default=16, low=4, doc="flake side L in cells (L x L)",
                   sweepable=False),
+            Param("max_size", kind="int", default=48, low=8,
+                  doc="largest flake side the size may be doubled to until the count is settled",
+                  sweepable=False),
             _WINDOW,
-            Param("corner_size", kind="int", default=bd.CORNER_SIZE, low=1,
-                  doc="side of the square corner regions in cells (L >= 4x)", sweepable=False),
             _METHOD),
     quantities=_corner_quantities, dims=(2,), driven=None, operators=(),
 )
-def corner_modes(point: Point, *, size: int = 16, window: float = bd.WINDOW_FRACTION,
-                 corner_size: int = bd.CORNER_SIZE, method: str = "auto") -> dict[str, Any]:
-    """Corner modes of an ``size x size`` flake: total and per corner, at 0 (and pi/T)."""
+def corner_modes(point: Point, *, size: int = 16, max_size: int = 48,
+                 window: float = bd.WINDOW_FRACTION, method: str = "auto") -> dict[str, Any]:
+    """Corner modes of a square flake: total and per corner, at 0 (and pi/T).
+
+    The window is narrowed to the edge gap (ribbons of the flake's width, cut along both
+    lattice directions); a gapless edge leaves the counts missing (``EDGE_GAP_CLOSED``).
+    """
     missing = _unsliced("corner_modes", point)
     if missing is not None:
         return missing
-    results = _box(point, (size, size), window, corner_size, method)
+    results = box_counts(point, "corner_modes", dict(size=size, max_size=max_size,
+                                                     window=window, method=method))
     out: dict[str, Any] = {}
     for g, r in results.items():
         out[f"corner_modes_{g}"] = r.total
         for i, c in enumerate(_CORNERS):
             out[f"corner_modes_{g}_{c}"] = None if r.per_corner is None else int(r.per_corner[i])
-    out["corner_modes_method"] = METHOD_CODE[next(iter(results.values())).method]
+        out.update(_trust("corner_modes", g, "size", r))
+        out[f"corner_modes_{g}_edge_gap"] = float("nan") if r.window is None else r.window.gap
+    out["corner_modes_method"] = _method_code(results)
     out["reason"] = _reason(results)
     return out
