@@ -89,7 +89,7 @@ def left_end_chiral_charges(T: float, n: int = 60) -> tuple[int, int]:
         # bands stay > 0.3 rad away from 0 and pi at these periods.
         sel = np.abs(np.angle(lam * target)) < 0.05
         q, _ = np.linalg.qr(vec[:, sel])
-        out.append(int(round(float(np.real(np.einsum("ia,i,ia->", q.conj(), g_left, q))))))
+        out.append(round(float(np.real(np.einsum("ia,i,ia->", q.conj(), g_left, q)))))
     return out[0], out[1]
 
 
@@ -155,11 +155,12 @@ def test_custom_coefficients_set_by_every_step_need_no_static_value(tmp_path):
     # H(k) = v sigma_x + (w e^{ik} |B><A| + h.c.) per step.
     k = np.array([[0.3], [1.7], [-2.4]])
     u = evolve([(d, tb.bloch(k)) for d, tb in loaded.point(1).drive.factors()])
+    def h(v, w, kj):
+        off = v + w * np.exp(-1j * kj)
+        return np.array([[0, off], [np.conj(off), 0]])
+
     for j, kj in enumerate(k[:, 0]):
-        def h(v, w):
-            off = v + w * np.exp(-1j * kj)
-            return np.array([[0, off], [np.conj(off), 0]])
-        ref = expm(-1j * h(-0.8, 1.4) * 7.55 / 2) @ expm(-1j * h(1.0, 0.37) * 7.55 / 2)
+        ref = expm(-1j * h(-0.8, 1.4, kj) * 7.55 / 2) @ expm(-1j * h(1.0, 0.37, kj) * 7.55 / 2)
         assert np.allclose(u[j], ref, atol=1e-10)
     result = invoke("run", job, "--no-progress")
     assert result.exit_code == 0, result.output
