@@ -84,6 +84,28 @@ def _check_frame_times(ck: Checker, job: Job) -> None:
             raise ck.fail(f"measure.{name}", "times", driven.TIMES_EXPECTED, times)
 
 
+def _check_frames_symmetric(ck: Checker, job: Job, point: Point) -> None:
+    """The frames of given ``chiral_windings`` times must be chiral symmetric, G U G = U^+,
+    at the first grid point (checked at a few momenta); otherwise every point would fail."""
+    from ..physics.drive import floquet_evolution
+    from ..physics.floquet import SYMMETRY_TOL
+
+    opts = dict(job.measurements).get("chiral_windings", ())
+    times = dict(opts).get("times")
+    if times is None or point.drive is None:
+        return
+    g = point.tb.operators["chiral"]
+    k = np.array([[0.3], [1.9], [-2.6]])
+    for t in times:
+        u = floquet_evolution(point.drive, k, start=t * point.drive.period).u
+        err = float(np.max(np.abs(g @ u @ g - np.swapaxes(u, -1, -2).conj())))
+        if err > SYMMETRY_TOL * 1e3:  # the tolerance of the measurement's own check
+            raise ck.fail("measure.chiral_windings", "times",
+                          "time-symmetric points of the drive (where G U G = U^dagger)", times,
+                          f" At t = {t:g} T the frame deviates by {err:.2g} at the first grid "
+                          "point; omit times to find them for a step drive.")
+
+
 SAMPLE_SHAPES = {"end_modes": ("cells", "end_size", 1), "corner_modes": ("size", "corner_size", 2)}
 
 
@@ -139,6 +161,7 @@ def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict)
         if i == idx[0]:
             first = job.point(int(i))
             _check_line_operator(ck, job, first)
+            _check_frames_symmetric(ck, job, first)
             _check_samples(ck, job, first)
         if job.custom is not None:
             _check_hermitian(ck, job, values, int(i))

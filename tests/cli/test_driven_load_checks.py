@@ -59,6 +59,15 @@ def test_frame_times_that_are_not_partners_are_refused(tmp_path, times):
                    f"the first (t2 = t1 + 0.5 modulo 1); got {times}.")
 
 
+def test_frame_times_off_the_symmetry_points_are_refused(tmp_path):
+    # The segment boundaries 0 and T/2 of two unequal steps are partners but not mirror points:
+    # H(0 + s) = step 1, H(0 - s) = step 2.
+    msg = refused(tmp_path, CHAIN.replace("TIMES", "times = [0.0, 0.5]"))
+    assert msg.startswith("JOB: [measure.chiral_windings] times must be time-symmetric points of "
+                          "the drive (where G U G = U^dagger); got [0.0, 0.5]. At t = 0 T the "
+                          "frame deviates by ")
+
+
 def ssh_open(n: int, v: float, w: float) -> np.ndarray:
     """Open SSH chain of n cells, sites (A_m, B_m) at 2m, 2m + 1 (Asboth, Oroszlany and Palyi
     2016, ch. 1), written here independently of the project's lattice code."""
