@@ -74,6 +74,38 @@ def _check_line_operator(ck: Checker, job: Job, point: Point) -> None:
                                f"(largest commutator entry {err:.3g} at the first grid point).")
 
 
+def _check_frame_times(ck: Checker, job: Job) -> None:
+    """Given frame times must be one time-symmetric frame and its partner half a period on."""
+    from ..physics.measurements import driven
+
+    for name, options in job.measurements:
+        times = dict(options).get("times")
+        if times is not None and not driven.frame_times_valid(times):
+            raise ck.fail(f"measure.{name}", "times", driven.TIMES_EXPECTED, times)
+
+
+def _check_frames_symmetric(ck: Checker, job: Job, point: Point) -> None:
+    """The frames of given ``chiral_windings`` times must be chiral symmetric, G U G = U^+,
+    at the first grid point (checked at a few momenta); otherwise every point would fail."""
+    from ..physics.drive import floquet_evolution
+    from ..physics.floquet import SYMMETRY_TOL
+
+    opts = dict(job.measurements).get("chiral_windings", ())
+    times = dict(opts).get("times")
+    if times is None or point.drive is None:
+        return
+    g = point.tb.operators["chiral"]
+    k = np.array([[0.3], [1.9], [-2.6]])
+    for t in times:
+        u = floquet_evolution(point.drive, k, start=t * point.drive.period).u
+        err = float(np.max(np.abs(g @ u @ g - np.swapaxes(u, -1, -2).conj())))
+        if err > SYMMETRY_TOL * 1e3:  # the tolerance of the measurement's own check
+            raise ck.fail("measure.chiral_windings", "times",
+                          "time-symmetric points of the drive (where G U G = U^dagger)", times,
+                          f" At t = {t:g} T the frame deviates by {err:.2g} at the first grid "
+                          "point; omit times to find them for a step drive.")
+
+
 SAMPLE_SHAPES = {"end_modes": ("cells", "max_cells", 1), "corner_modes": ("size", "max_size", 2)}
 
 
@@ -106,6 +138,7 @@ def _check_samples(ck: Checker, job: Job, point: Point) -> None:
 
 def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:
     """Check derived values and Hermiticity at a sample of grid points (all when few)."""
+    _check_frame_times(ck, job)
     size = job.size
     idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
     for i in idx:
@@ -130,12 +163,22 @@ def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict)
         if i == idx[0]:
             first = job.point(int(i))
             _check_line_operator(ck, job, first)
+            _check_frames_symmetric(ck, job, first)
             _check_samples(ck, job, first)
         if job.custom is not None:
-            tb = job.build_model(values)
-            err = tb.hermiticity_error()
-            if err > 1e-10:
-                raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "
-                               f"matrix; at grid point {int(i)} they deviate by {err:.3g} "
-                               "(use real coefficients for Hermitian matrices, or pair a term "
-                               "with its conjugate).")
+            _check_hermitian(ck, job, values, int(i))
+
+
+def _check_hermitian(ck: Checker, job: Job, values: Mapping[str, complex], index: int) -> None:
+    """A custom model must be Hermitian wherever it is built: the static model (a coefficient
+    that every step sets needs no value of its own and takes that of the first step, as in
+    :meth:`Job.point`) and the model with the overrides of each step or kick."""
+    d = job.drive
+    static = tuple((k, e) for k, e in d.steps[0][1] if k not in values) if d.always_set else ()
+    for over in [static] + [s[-1] for s in d.steps + d.kicks]:
+        err = job.build_model({**values, **{k: e(values) for k, e in over}}).hermiticity_error()
+        if err > 1e-10:
+            raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "
+                           f"matrix; at grid point {index} they deviate by {err:.3g} "
+                           "(use real coefficients for Hermitian matrices, or pair a term "
+                           "with its conjugate).")

@@ -192,7 +192,8 @@ class Job:
         """Bulk-boundary rules that apply to the quantities this job stores."""
         from ..run.consistency import rules_for
 
-        return rules_for({q.name for _, qs in self.quantities() for q in qs})
+        return rules_for({q.name for _, qs in self.quantities() for q in qs},
+                         {name: dict(opts) for name, opts in self.measurements})
 
     def values_at(self, index: int, overrides: Mapping[str, float] | None = None
                   ) -> dict[str, complex]:

@@ -10,20 +10,33 @@ published literature:
   Oroszlany and Palyi 2016, ch. 1 and 3);
 * ``nu_0_end``, ``nu_pi_end``: a chiral driven chain has |nu_0| modes at quasienergy 0 and
   |nu_pi| at pi/T at each end (Asboth and Obuse, PRB 88, 121406 (2013));
-* ``chern_edge``: a ribbon carries |C| net chiral modes on one edge (Hatsugai, PRL 71, 3697
-  (1993)); compared in absolute value, since the sign depends on which edge and direction;
-* ``w_0_edge``, ``w_pi_edge``: a driven ribbon carries |W| net chiral modes in each gap
-  (Rudner, Lindner, Berg and Levin, PRX 3, 031005 (2013));
+* ``chern_edge``: the low edge of a ribbon carries ``s C`` net chiral modes (Hatsugai, PRL 71,
+  3697 (1993));
+* ``w_0_edge``, ``w_pi_edge``: the low edge of a driven ribbon carries ``s W_g`` net chiral
+  modes in gap ``g`` (Rudner, Lindner, Berg and Levin, PRX 3, 031005 (2013));
+* ``floquet_chern_edge``: a Floquet band group's Chern number is the difference of the
+  windings of the gaps above and below it (same source), so on the low edge
+  ``s C_upper = e_pi - e_0`` and ``s C_lower = e_0 - e_pi`` with ``e_g`` the edge counts;
 * ``line_corner_0``, ``line_corner_pi``: with a two-sector symmetry along the line, each corner
   of a flake holds |w_s1 - w_s2| / 2 modes in that gap, the mirror-graded winding (assumes the
   four corners are related by the model's symmetry, e.g. C4 T, as in the second-order models of
   Schindler et al., Science Advances 4, eaat0346 (2018)).
+
+Chirality sign ``s`` (:func:`edge_sign`): every 2D invariant here (``chern``,
+``floquet_chern_*``, ``w_0``, ``w_pi``) is computed in reduced momenta ``k_i = k . a_i``, and the
+edge count ``chiral_edge_modes_g`` is ``+1`` per mode on the low edge (cell 0 of the cut
+direction) moving towards ``+k_par``. Both therefore depend only on the orbital graph and the
+order of the cell vectors, never on their Cartesian handedness: ``s = +1`` for a ribbon cut
+along ``a_1`` (``open_axis = 0``), ``s = -1`` for one cut along ``a_2`` (``open_axis = 1``), one
+circulation seen from two edges of a sample. For a left-handed cell (``a_1 x a_2 < 0``) the
+invariants are minus their values in the Cartesian orientation and the relation is unchanged.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from typing import Any
 
 from ..physics.point import Quantity
 
@@ -50,10 +63,34 @@ def _ends(inv: str, g: str) -> Rule:
                 f"|{inv}| modes at each end at {g}")
 
 
-def _edge(inv: str, g: str) -> Rule:
+def edge_sign(open_axis: int) -> int:
+    """``s`` in ``chiral_edge_modes_g = s W_g`` (and ``s C`` for a static gap), low edge.
+
+    ``+1`` for a ribbon cut along ``a_1`` (``open_axis = 0``, ``k_par`` along ``a_2``), ``-1`` for
+    one cut along ``a_2`` (``open_axis = 1``, ``k_par`` along ``a_1``); see the module docstring.
+    """
+    return 1 if open_axis == 0 else -1
+
+
+def _edge(inv: str, g: str, sign: int) -> Rule:
     return Rule(f"{inv}_edge", (inv, f"chiral_edge_modes_{g}"),
-                lambda v: abs(v[f"chiral_edge_modes_{g}"]) == abs(v[inv]),
-                f"|{inv}| chiral modes on one edge of a ribbon at {g}")
+                lambda v: v[f"chiral_edge_modes_{g}"] == sign * v[inv],
+                f"s {inv} net chiral modes on the low edge of a ribbon at {g} (s = +1 cut "
+                f"along a1, -1 cut along a2)")
+
+
+def _floquet_chern_edge(sign: int) -> Rule:
+    reads = ("floquet_chern_upper", "floquet_chern_lower", "chiral_edge_modes_0",
+             "chiral_edge_modes_pi")
+
+    def agree(v: Mapping[str, int]) -> bool:
+        flow = v["chiral_edge_modes_pi"] - v["chiral_edge_modes_0"]
+        return sign * v["floquet_chern_upper"] == flow == -sign * v["floquet_chern_lower"]
+
+    return Rule("floquet_chern_edge", reads, agree,
+                "s floquet_chern_upper = chiral_edge_modes_pi - chiral_edge_modes_0 = "
+                "-s floquet_chern_lower on the low edge of a ribbon (s = +1 cut along a1, -1 "
+                "cut along a2)")
 
 
 def _corners(g: str) -> Rule:
@@ -71,14 +108,19 @@ def _corners(g: str) -> Rule:
                 f"|w_s1 - w_s2|/2 modes at each corner of a flake at {g}")
 
 
-RULES = (_ends("winding", "0"), _ends("nu_0", "0"), _ends("nu_pi", "pi"),
-         _edge("chern", "0"), _edge("w_0", "0"), _edge("w_pi", "pi"),
-         _corners("0"), _corners("pi"))
+def rules_for(names: set[str], options: Mapping[str, Mapping[str, Any]] | None = None
+              ) -> list[Rule]:
+    """The rules whose variables a job stores.
 
-
-def rules_for(names: set[str]) -> list[Rule]:
-    """The rules whose variables a job stores."""
-    return [r for r in RULES if set(r.reads) <= names]
+    ``options`` maps a measurement name to its options; the ribbon's ``open_axis`` (of
+    ``edge_modes``, default 1) sets the sign of the edge rules.
+    """
+    axis = dict((options or {}).get("edge_modes", {})).get("open_axis", 1)
+    s = edge_sign(axis)
+    rules = (_ends("winding", "0"), _ends("nu_0", "0"), _ends("nu_pi", "pi"),
+             _edge("chern", "0", s), _edge("w_0", "0", s), _edge("w_pi", "pi", s),
+             _floquet_chern_edge(s), _corners("0"), _corners("pi"))
+    return [r for r in rules if set(r.reads) <= names]
 
 
 def evaluate(rules: list[Rule], values: Mapping[str, object]) -> dict[str, int | None]:

@@ -186,11 +186,40 @@ def _chiral_op(point: Point) -> np.ndarray:
     return ops["chiral"]
 
 
-def _times(times: Any) -> list[float] | None:
+#: Tolerance of "t2 = t1 + 1/2 modulo 1" for frame times given as fractions of the period.
+TIMES_TOL = 1e-9
+#: What the ``times`` option accepts (the job-file check quotes it).
+TIMES_EXPECTED = ("one or two starting times as fractions of the period in [0, 1), the second "
+                  "the time-symmetric partner of the first (t2 = t1 + 0.5 modulo 1)")
+
+
+def frame_times_valid(times: Any) -> bool:
+    """Whether ``times`` are the starting times of the two symmetric frames.
+
+    The reflection ``t -> 2 t* - t`` of a time-symmetric drive has two fixed points on the
+    circle of one period, ``t*`` and ``t* + T/2`` (Asboth and Obuse, PRB 88, 121406 (2013)),
+    and the invariants need one frame at each. Any other pair (one frame twice, say) gives
+    ``nu'`` unrelated to ``nu`` and silently wrong ``nu_0``, ``nu_pi``.
+
+    Parameters
+    ----------
+    times : sequence of 1 or 2 floats, fractions of the period in ``[0, 1)``; one value stands
+        for itself and its partner ``t1 + 1/2`` (mod 1).
+    """
+    t = [float(x) for x in times]
+    if not 1 <= len(t) <= 2 or not all(0 <= x < 1 for x in t):
+        return False
+    return len(t) == 1 or abs((t[1] - t[0]) % 1.0 - 0.5) <= TIMES_TOL
+
+
+def _times(times: Any, period: float) -> list[float] | None:
+    """Fractions of the period (the job-file convention, as for step spans and kick times) to
+    the absolute times of :func:`sweepcli.physics.floquet.frame_times`."""
     if times is None:
         return None
-    t = [float(x) for x in np.atleast_1d(np.asarray(times, dtype=float))]
-    return t or None
+    if not frame_times_valid(times):
+        raise ValueError(f"times must be {TIMES_EXPECTED}; got {list(times)}")
+    return [float(x) * period for x in times]
 
 
 @MEASUREMENTS.register(
@@ -198,9 +227,9 @@ def _times(times: Any) -> list[float] | None:
     description="invariants nu_0, nu_pi of the 0 and pi gaps of a chiral-symmetric driven chain",
     source=_CHIRAL,
     params=(Param("times", kind="vector", default=None,
-                  doc="the two time-reversal-symmetric starting times t1, t2 (or t1 alone, "
-                      "t2 = t1 + T/2); found automatically for step drives", units="time",
-                  sweepable=False),
+                  doc="the two time-symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as "
+                      "fractions of the period (or t1 alone); found automatically for step "
+                      "drives", units="1", sweepable=False),
             Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4,
@@ -225,7 +254,8 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
     """
     _need_drive(point)
-    r = fl.chiral_windings(point.drive, _chiral_op(point), times=_times(times),
+    r = fl.chiral_windings(point.drive, _chiral_op(point),
+                           times=_times(times, point.drive.period),
                            gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
                            phase_tol=phase_tol)
     return {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh, "reason": r.reason}
@@ -273,8 +303,9 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
                   doc="origin of the line in reduced momenta (rad); default the zone centre",
                   sweepable=False),
             Param("times", kind="vector", default=None,
-                  doc="symmetric starting times t1, t2 (found automatically for step drives)",
-                  units="time", sweepable=False),
+                  doc="symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as fractions of the "
+                      "period (found automatically for step drives)", units="1",
+                  sweepable=False),
             Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4, doc="largest k-mesh",
@@ -297,7 +328,9 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
     s = _matrix(operator, n, point.tb.operators)
     org = np.zeros(source.dim) if origin is None else np.asarray(origin, dtype=float)
     sectors = fl.line_sector_windings(source, s, _chiral_op(point), origin=org,
-                                      direction=direction, times=_times(times),
+                                      direction=direction,
+                                      times=None if point.drive is None
+                                      else _times(times, point.drive.period),
                                       gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh)
     if len(sectors) > MAX_SECTORS:
         raise ValueError(f"the operator has {len(sectors)} distinct eigenvalues; at most "
