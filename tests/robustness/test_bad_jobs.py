@@ -4,7 +4,6 @@ and leaves no results file behind."""
 import re
 
 import pytest
-
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
