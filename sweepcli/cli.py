@@ -205,7 +205,7 @@ def check(ctx: typer.Context,
           job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
           time_one: Annotated[bool, typer.Option("--time-one", help="Also evaluate the middle grid point once and report its time (this runs one point).")] = False,
           ) -> None:
-    """Validate JOB and print its grid, measurements and a cost estimate (runs nothing)."""
+    """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
     from .jobfile import load_job
     from .run.cost import estimate, time_one_point
 
@@ -239,22 +239,20 @@ def batch(ctx: typer.Context,
           workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes per task.")] = 1,
           directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
           force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
-          seconds_per_point: Annotated[Optional[float], typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`).")] = None,
-          time_one: Annotated[bool, typer.Option("--time-one", help="Size the wall time by evaluating the middle grid point once here.")] = False,
+          seconds_per_point: Annotated[Optional[float], typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`, or the timed point if longer).")] = None,
+          time_one: Annotated[bool, typer.Option("--time-one/--no-time-one", help="Evaluate the middle grid point once here and size the wall time by the longer of its time and the estimate.")] = True,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from .jobfile import load_job
     from .run.batch import plan, scripts
+    from .run.cost import time_one_point
 
     try:
         job = load_job(job_file)
         if tasks > job.size:
             raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
-        if time_one and seconds_per_point is None:
-            from .run.cost import time_one_point
-
-            seconds_per_point = time_one_point(job)
-        p = plan(job, tasks, workers, seconds_per_point)
+        measured = time_one_point(job) if time_one and seconds_per_point is None else None
+        p = plan(job, tasks, workers, seconds_per_point, measured)
         texts = scripts(job, str(job_file), p)
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:
@@ -266,6 +264,9 @@ def batch(ctx: typer.Context,
     except SweepError as exc:
         _fail(ctx, exc)
         return
+    if measured is not None:
+        typer.echo(f"timed the middle grid point: {measured:.3g} s")
+    typer.echo(f"{p.seconds_per_point:.3g} s per point ({p.basis})")
     typer.echo(f"{tasks} tasks of about {p.points_per_task} points, {p.workers} workers, "
                f"wall time {p.walltime_s // 60} min, memory {p.memory_mb} MiB per task")
     for name in texts:

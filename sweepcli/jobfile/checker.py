@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import JobError, shown, suggest
-from ..expressions import ExpressionError, parse
+from ..expressions import EvaluationError, ExpressionError, parse
 from ..physics.lattice import pauli
 from ..physics.registry import Param
 
@@ -84,7 +84,10 @@ class Checker:
             return value
         try:
             result = constant(value)
-        except (ValueError, ExpressionError, ArithmeticError):
+        except EvaluationError as exc:
+            raise self.fail(table, key, "a number or an expression of constants such as "
+                            "\"pi/2\"", value, f" {exc.detail}.") from None
+        except ValueError:
             raise self.fail(table, key, "a number or an expression of constants such as "
                             "\"pi/2\"", value) from None
         if isinstance(result, complex):

@@ -9,6 +9,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from ..errors import JobError
+from ..expressions import EvaluationError
 from ..physics.point import Point
 from ..physics.registry import Param
 from .checker import Checker
@@ -46,6 +47,8 @@ def _check_drive(ck: Checker, job: Job, values: Mapping[str, complex], index: in
     try:
         if build:
             d.compile(values, job.build_model)
+    except EvaluationError:
+        raise  # reported with its own table and key by check_values
     except ValueError as exc:
         raise JobError(f"{ck.path}: [drive] cannot be built{where}: {exc}.") from None
 
@@ -137,36 +140,47 @@ def _check_samples(ck: Checker, job: Job, point: Point) -> None:
 
 
 def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:
-    """Check derived values and Hermiticity at a sample of grid points (all when few)."""
+    """Check derived values and Hermiticity at a sample of grid points (all when few).
+
+    Every expression of the job (parameters, model coefficients, drive) is evaluated at each
+    sampled point; one without a finite value there (``sqrt(-1)``, ``1/0``) is refused with the
+    table and key where it was written.
+    """
     _check_frame_times(ck, job)
     size = job.size
     idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
     for i in idx:
         try:
-            values = job.values_at(int(i))
-        except (ArithmeticError, ValueError, TypeError) as exc:
-            raise JobError(f"{ck.path}: [params] an expression cannot be evaluated at grid point "
-                           f"{int(i)} ({exc}).") from None
-        for key in exprs:
-            v = values[key]
-            param = declared.get(key)
-            if param is None or job.custom is not None:
-                continue
-            if isinstance(v, complex) and abs(v.imag) > 1e-12 * max(1.0, abs(v)):
-                raise ck.fail("params", key, f"an expression with a real value ({param.expectation()})",
-                              exprs[key].text, f" It evaluates to {v} at grid point {int(i)}.")
-            if not param.admits(real(v)):
-                raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
-                              exprs[key].text, f" It evaluates to {real(v):g} at grid point {int(i)}.")
-        if job.drive.kind != "static":
-            _check_drive(ck, job, values, int(i), build=i in idx[:DRIVE_BUILDS])
-        if i == idx[0]:
-            first = job.point(int(i))
-            _check_line_operator(ck, job, first)
-            _check_frames_symmetric(ck, job, first)
-            _check_samples(ck, job, first)
-        if job.custom is not None:
-            _check_hermitian(ck, job, values, int(i))
+            _check_point(ck, job, declared, exprs, idx, int(i))
+        except EvaluationError as exc:
+            e = exc.expression
+            raise ck.fail(e.table, e.key, "an expression that is defined at every grid point",
+                          e.text, f" At grid point {int(i)}: {exc.detail}.") from None
+
+
+def _check_point(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict,
+                 idx: np.ndarray, i: int) -> None:
+    values = job.values_at(i)
+    for key in exprs:
+        v = values[key]
+        param = declared.get(key)
+        if param is None or job.custom is not None:
+            continue
+        if isinstance(v, complex) and abs(v.imag) > 1e-12 * max(1.0, abs(v)):
+            raise ck.fail("params", key, f"an expression with a real value ({param.expectation()})",
+                          exprs[key].text, f" It evaluates to {v} at grid point {i}.")
+        if not param.admits(real(v)):
+            raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
+                          exprs[key].text, f" It evaluates to {real(v):g} at grid point {i}.")
+    if job.drive.kind != "static":
+        _check_drive(ck, job, values, i, build=i in idx[:DRIVE_BUILDS])
+    if i == idx[0]:
+        first = job.point(i)
+        _check_line_operator(ck, job, first)
+        _check_frames_symmetric(ck, job, first)
+        _check_samples(ck, job, first)
+    if job.custom is not None:
+        _check_hermitian(ck, job, values, i)
 
 
 def _check_hermitian(ck: Checker, job: Job, values: Mapping[str, complex], index: int) -> None:

@@ -124,7 +124,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                            "place only.")
         if isinstance(value, str):
             try:
-                exprs[key] = parse(value)
+                exprs[key] = parse(value, "params", key)
             except ExpressionError as exc:
                 raise ck.fail("params", key, "a number or an arithmetic expression",
                               value, f" {exc}.") from None
@@ -302,7 +302,7 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
         if isinstance(value, bool) or not isinstance(value, (int, float, str)):
             raise ck.fail(table, key, "a number or an arithmetic expression", value)
         try:
-            e = parse(str(value))
+            e = parse(str(value), table, key)
         except ExpressionError as exc:
             raise ck.fail(table, key, "a number or an arithmetic expression", value,
                           f" {exc}.") from None
@@ -537,7 +537,7 @@ def _coeff(ck: Checker, where: str, value: object) -> Expression:
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise ck.fail(where, "coeff", "a number or an arithmetic expression", value)
     try:
-        return parse(str(value))
+        return parse(str(value), where, "coeff")
     except ExpressionError as exc:
         raise ck.fail(where, "coeff", "a number or an arithmetic expression", value,
                       f" {exc}.") from None

@@ -1,4 +1,5 @@
-"""Array-job scripts for Slurm and PBS, sized from the cost estimate. No scheduler is called."""
+"""Array-job scripts for Slurm and PBS, sized from the cost estimate and (by default) the
+measured time of one grid point. No scheduler is called."""
 
 from __future__ import annotations
 
@@ -17,20 +18,43 @@ MARGIN_S = 600
 
 @dataclass(frozen=True)
 class BatchPlan:
+    """An array job's shape and size.
+
+    ``seconds_per_point`` is the time the wall time was sized with and ``basis`` says where it
+    came from (given, estimated, or the larger of the estimate and one timed point).
+    """
+
     tasks: int
     workers: int
     walltime_s: int
     memory_mb: int
     points_per_task: int
+    seconds_per_point: float
+    basis: str
 
 
-def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = None) -> BatchPlan:
+def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = None,
+         measured: float | None = None) -> BatchPlan:
+    """Size an array job of ``tasks`` shards with ``workers`` processes each.
+
+    The per-point time is ``seconds_per_point`` if given; otherwise the estimate
+    (:func:`~sweepcli.run.cost.estimate`), or the larger of the estimate and ``measured`` (the
+    time of one evaluated grid point): one point may be an easy one, and the estimate is for a
+    typical point.
+    """
     cost = estimate(job)
-    per_point = cost.seconds_per_point if seconds_per_point is None else seconds_per_point
+    if seconds_per_point is not None:
+        per_point, basis = seconds_per_point, "given with --seconds-per-point"
+    elif measured is None:
+        per_point, basis = cost.seconds_per_point, "estimated"
+    else:
+        per_point = max(cost.seconds_per_point, measured)
+        basis = (f"the larger of the estimate ({cost.seconds_per_point:.3g} s) and the timed "
+                 f"middle grid point ({measured:.3g} s)")
     per_task = math.ceil(job.size / tasks)
     seconds = SAFETY * per_point * per_task / workers + MARGIN_S
     memory = math.ceil((cost.memory_bytes * workers) / 2**20) + 512
-    return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task)
+    return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task, per_point, basis)
 
 
 def _hms(seconds: int) -> str:
@@ -52,8 +76,9 @@ def scripts(job: Job, job_path: str, p: BatchPlan) -> dict[str, str]:
     merge_line = (f"sweepcli merge {q(job.output)} " + " ".join(q(s) for s in shard_outputs(job, p.tasks)))
     name = job.name
     head = (f"# sweepcli array job for {job_path}: {job.size} grid points in {p.tasks} shards of "
-            f"about {p.points_per_task} points.\n# Wall time and memory come from `sweepcli check`'s "
-            "rough estimate; edit account and partition/queue below.\n")
+            f"about {p.points_per_task} points.\n# Wall time: {SAFETY:g} x {p.seconds_per_point:.3g} s "
+            f"per point ({p.basis}) + {MARGIN_S // 60} min;\n# memory from the estimate. Edit "
+            "account and partition/queue below.\n")
     slurm = f"""#!/bin/bash
 {head}# Submit:  jid=$(sbatch --parsable {name}.slurm.sh) && sbatch --dependency=afterok:$jid {name}.merge.slurm.sh
 #SBATCH --job-name={name}

@@ -156,6 +156,36 @@ def test_check_can_time_one_point_and_batch_can_use_it(job, tmp_path):
     assert "#SBATCH --time=00:1" in (tmp_path / "c" / "shardy.slurm.sh").read_text()  # ~10 min
 
 
+def test_batch_times_one_point_by_default_and_says_so(job, tmp_path):
+    result = invoke("batch", job, "--tasks", "3", "--dir", tmp_path / "a")
+    assert result.exit_code == 0, result.output
+    assert result.stdout.startswith("timed the middle grid point: ")
+    assert "s per point (the larger of the estimate (" in result.stdout
+    slurm = (tmp_path / "a" / "shardy.slurm.sh").read_text()
+    assert "and the timed middle grid point (" in slurm
+    result = invoke("batch", job, "--tasks", "3", "--no-time-one", "--dir", tmp_path / "b")
+    assert result.exit_code == 0, result.output
+    assert "timed" not in result.stdout and "s per point (estimated)" in result.stdout
+
+
+def test_batch_plan_takes_the_longer_of_estimate_and_timed_point(job):
+    from sweepcli.jobfile import load_job
+    from sweepcli.run.batch import MARGIN_S, SAFETY, plan
+
+    j = load_job(job)
+    # A timed point far above any estimate of this small job sizes the wall time: 9 points per
+    # task x 1000 s x safety + margin.
+    p = plan(j, 3, 1, measured=1000.0)
+    assert p.seconds_per_point == 1000.0
+    assert p.walltime_s == SAFETY * 1000 * 9 + MARGIN_S
+    # A given per-point time overrides both.
+    assert plan(j, 3, 1, seconds_per_point=5.0, measured=1000.0).seconds_per_point == 5.0
+    # A fast timed point never lowers the estimate (which is positive).
+    fast = plan(j, 3, 1, measured=0.0)
+    assert fast.seconds_per_point > 0 and fast.basis.startswith("the larger of the estimate")
+    assert plan(j, 3, 1).basis == "estimated"
+
+
 FAKE_SBATCH = """#!/bin/bash
 # Fake sbatch: run the job script in the background on this machine and print a job id.
 script="${@: -1}"

@@ -3,6 +3,7 @@ and leaves no results file behind."""
 
 import re
 
+import pytest
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
@@ -201,3 +202,89 @@ def test_flake_too_large_for_the_machine(tmp_path):
     assert msg.startswith("JOB: [measure.corner_modes] size = 4000 needs more memory than this "
                           "machine has: flake of 4000 x 4000 cells x 4 orbitals")
     assert "GiB" in msg
+
+
+# ---------------------------------------------------------------------------------------------
+# Expressions without a value: refused at load, naming the table and key
+
+
+def check_bad(tmp_path, text):
+    """``sweepcli check`` on a bad job: exit 2 and one line, no traceback."""
+    job = tmp_path / "bad.toml"
+    job.write_text(text.replace("OUT", str(tmp_path / "out.h5")))
+    result = CliRunner().invoke(app, ["check", str(job)])
+    assert result.exit_code == 2, result.output
+    lines = [ln for ln in result.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1 and "Traceback" not in result.output, result.output
+    return lines[0].removeprefix("error: ").replace(str(job), "JOB")
+
+
+def test_function_name_as_a_value_is_refused(tmp_path):
+    text = GOOD.replace("t = 1.0", 't = "sin + 1"')
+    expected = ("JOB: [params] t must be a number or an arithmetic expression; got 'sin + 1'. "
+                "'sin + 1' uses the function 'sin' as a value; call it with one argument, "
+                "e.g. sin(x).")
+    assert check_bad(tmp_path, text) == expected
+    assert run_bad(tmp_path, text) == expected
+
+
+def test_function_with_two_arguments_is_refused(tmp_path):
+    assert check_bad(tmp_path, GOOD.replace("t = 1.0", 't = "sin(1, 2)"')) == (
+        "JOB: [params] t must be a number or an arithmetic expression; got 'sin(1, 2)'. "
+        "'sin(1, 2)': sin takes exactly one argument, e.g. sin(x).")
+
+
+@pytest.mark.parametrize("expr, detail", [
+    ("sqrt(-1)", "sqrt(-1) is not a real number"),
+    ("log(-1)", "log(-1) is not a real number"),
+    ("log(0)", "log(0) is not a finite number"),
+    ("arcsin(2)", "arcsin(2) is not a real number"),
+    ("1/0", "1 / 0 divides by zero"),
+    ("exp(1000)", "exp(1000) is not a finite number"),
+    ("(-8)**(1/3)", "(-8) ** 0.333333 is not a real number"),
+    ("10**10**10", "10 ** 1e+10 overflows"),
+])
+def test_expression_without_a_value_is_refused(tmp_path, expr, detail):
+    # These gave nan or inf silently (or a traceback); numpy's real functions are undefined
+    # there, and the job must say so before any work.
+    text = GOOD.replace("t = 1.0", f't = "{expr}"')
+    expected = (f"JOB: [params] t must be an expression that is defined at every grid point; "
+                f"got '{expr}'. At grid point 0: {detail}.")
+    assert check_bad(tmp_path, text) == expected
+    assert run_bad(tmp_path, text) == expected
+
+
+def test_expression_undefined_at_some_grid_points(tmp_path):
+    # m runs over -1, 0, 1: sqrt(m) is undefined at the first point, 1/m at the middle one.
+    assert check_bad(tmp_path, GOOD.replace("t = 1.0", 't = "1 + sqrt(m)"')) == (
+        "JOB: [params] t must be an expression that is defined at every grid point; "
+        "got '1 + sqrt(m)'. At grid point 0: sqrt(-1) is not a real number.")
+    assert check_bad(tmp_path, GOOD.replace("t = 1.0", 't = "1/m"')) == (
+        "JOB: [params] t must be an expression that is defined at every grid point; "
+        "got '1/m'. At grid point 1: 1 / 0 divides by zero.")
+
+
+def test_undefined_model_coefficient_and_drive_expression(tmp_path):
+    msg = check_bad(tmp_path, CUSTOM.replace('coeff = "1j*v"', 'coeff = "log(v - 0.5)"'))
+    assert msg == ("JOB: [model.onsite.1] coeff must be an expression that is defined at every "
+                   "grid point; got 'log(v - 0.5)'. At grid point 0: log(0) is not a finite "
+                   "number.")
+    driven = GOOD.replace("[measure.gap]", "[measure.quasienergy_gaps]") + (
+        '[drive]\nkind = "steps"\nperiod = "1/arccos(m)"\n[[drive.step]]\nspan = 0.5\n'
+        '[[drive.step]]\nspan = 0.5\n')
+    assert check_bad(tmp_path, driven) == (
+        "JOB: [drive] period must be an expression that is defined at every grid point; "
+        "got '1/arccos(m)'. At grid point 2: 1 / 0 divides by zero.")
+
+
+def test_undefined_constant_is_refused(tmp_path):
+    msg = check_bad(tmp_path, GOOD.replace("start = -1.0", 'start = "-sqrt(-1)"'))
+    assert msg == ("JOB: [sweep.m] start must be a number or an expression of constants such as "
+                   "\"pi/2\"; got '-sqrt(-1)'. sqrt(-1) is not a real number.")
+
+
+def test_complex_literals_keep_complex_functions():
+    # Complex values come only from literals such as 1j; then numpy's principal branches apply.
+    from sweepcli.expressions import parse
+    assert parse("sqrt(-1 + 0j)")({}) == 1j
+    assert parse("exp(1j*pi)")({}) == pytest.approx(-1)

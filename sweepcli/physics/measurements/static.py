@@ -87,7 +87,8 @@ _CHERN_PARAMS = (
     quantities=(Quantity("chern", "int32", "1", "Chern number of the occupied bands"),
                 Quantity("chern_kmesh", "int32", "1", "k-mesh points per direction used"),
                 Quantity("chern_max_flux", "float64", "rad",
-                         "largest plaquette Berry flux on that mesh")),
+                         "largest Berry flux of one cell of that mesh (after local "
+                         "subdivision)")),
     dims=(2,), driven=False, operators=(),
 )
 def chern(point: Point, *, kmesh: int = inv.CHERN_KMESH, max_kmesh: int = inv.CHERN_MAX_KMESH,
