@@ -291,15 +291,15 @@ def show(ctx: typer.Context,
 @app.command("map")
 def map_(ctx: typer.Context,
          results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the first invariant).")] = None,
+         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the job's main invariant).")] = None,
          output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
-         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (nearest grid value).")] = None,
+         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a value off the axis is refused).")] = None,
          terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
          width: Annotated[Optional[int], typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
          mark_disagree: Annotated[bool, typer.Option("--mark-disagree", help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
-    from .report.maps import draw_map
+    from .report.maps import at_notes, draw_map
     from .report.terminal import terminal_map, want_colour
     from .store import Results
 
@@ -307,6 +307,8 @@ def map_(ctx: typer.Context,
         if terminal and output is not None:
             raise SweepError("--terminal prints the map; give it or --output, not both.")
         results = Results.read(results_file)
+        for note in at_notes(results, _parse_at(at or [])):
+            typer.echo(note, err=True)
         if terminal:
             text = terminal_map(results, var, _parse_at(at or []), width, colour=want_colour())
         else:
