@@ -7,6 +7,7 @@ import itertools
 import math
 import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -184,10 +185,11 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         axes = tuple(_finer(a, refine.depth) for a in axes)
 
     output_t = ck.table(doc, "output")
-    ck.only("output", output_t, ["path"])
+    ck.only("output", output_t, ["path", "main"])
     output = output_t.get("path", f"results/{name}.h5")
     if not isinstance(output, str) or not output:
         raise ck.fail("output", "path", "a file path", output)
+    main = output_t.get("main")
 
     axis_names = {a.name for a in axes}
     clash = axis_names & {q.name for m, _ in measurements
@@ -201,7 +203,9 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "model": _normalised_model(model, model_t),
         "params": {k: (v if not isinstance(v, complex) else str(v)) for k, v in sorted(fixed.items())}
                   | {k: e.text for k, e in sorted(exprs.items())},
-        "sweep": {k: v for k, v in sweep_t.items()},
+        # Labels (doc, units) describe an axis and are no part of the job's identity.
+        "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
+                      if isinstance(v, dict) else v) for k, v in sweep_t.items()},
         "drive": drive.normalised(),
         **({"predict": {"momenta": [list(k) for k in predict]}} if predict is not None else {}),
         **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
@@ -215,7 +219,14 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
-              dim=dim, norb=norb, refine=refine, predict=predict)
+              dim=dim, norb=norb, refine=refine, predict=predict, main=main)
+    if main is not None:
+        stored = [q.name for _, qs in job.quantities() for q in qs] + [
+            r.quantity.name for r in job.consistency_rules()]
+        if main not in stored:
+            raise ck.fail("output", "main", "one of the quantities the job measures ("
+                          + ", ".join(stored) + ")", main,
+                          suggest(main, stored) if isinstance(main, str) else "")
     check_values(ck, job, declared, exprs)
     return job
 
@@ -283,7 +294,7 @@ def _finer(axis: Axis, depth: int) -> Axis:
     vals = np.geomspace(lo, hi, m) if axis.spacing == "log" else np.linspace(lo, hi, m)
     # Keep the base values bit for bit, so a refined run and a coarse run share their points.
     vals[:: 2 ** depth] = axis.values
-    return Axis(axis.name, tuple(float(v) for v in vals), axis.spacing)
+    return replace(axis, values=tuple(float(v) for v in vals))
 
 
 def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
@@ -409,7 +420,10 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
         return Axis(key, tuple(float(v) for v in vals), "list")
     if not isinstance(value, dict):
         raise ck.fail("sweep", key, spec_help, value)
-    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing"])
+    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing", "doc", "units"])
+    for k in ("doc", "units"):
+        if not isinstance(value.get(k, ""), str):
+            raise ck.fail(f"sweep.{key}", k, "a string", value[k])
     for k in ("start", "stop", "num"):
         if k not in value:
             raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
@@ -437,7 +451,8 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
         if not param.admits(float(v)):
             raise ck.fail(f"sweep.{key}", "start" if v == vals[0] else "stop",
                           f"such that every value is {param.expectation()}", float(v))
-    return Axis(key, tuple(float(v) for v in vals), spacing)
+    return Axis(key, tuple(float(v) for v in vals), spacing, value.get("doc", ""),
+                value.get("units", ""))
 
 
 def _order_expressions(ck: Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:
