@@ -20,7 +20,10 @@ from .errors import SweepError
 EXIT_ERROR = 2
 EXIT_INTERRUPTED = 3
 
+# Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
+# and read "[output]" in a help text as markup.
 app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+                  rich_markup_mode=None,
                   help="Phase-diagram sweeps of static and periodically driven lattice models.")
 
 
@@ -74,11 +77,12 @@ def run(ctx: typer.Context,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
         resume: Annotated[bool, typer.Option("--resume", help="Continue the results file if it exists (same job only); start it otherwise.")] = False,
         shard: Annotated[Optional[str], typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
-        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, help="Grid points per task.")] = None,
+        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each", help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
         scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
         dask_cluster: Annotated[Optional[str], typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
+        verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
     from .jobfile import load_job
@@ -125,7 +129,7 @@ def run(ctx: typer.Context,
             executor = DaskExecutor(client)
         out.parent.mkdir(parents=True, exist_ok=True)
         results.write(out)
-        if ctx.obj is not None and ctx.obj.verbose:
+        if verbose or (ctx.obj is not None and ctx.obj.verbose):
             todo = results.size - results.n_done
             typer.echo(f"{job.path}: {job.title}; {results.n_done} of {results.size} points "
                        f"done, {todo} to go"
@@ -415,6 +419,7 @@ def diff_(ctx: typer.Context,
           common: Annotated[bool, typer.Option("--common", help="Judge only the common grid points: a subset or refinement is then no difference.")] = False,
           top: Annotated[int, typer.Option("--top", min=0, help="Largest deviations listed per variable.")] = 5,
           as_json: Annotated[bool, typer.Option("--json", help="Machine-readable output.")] = False,
+          maps: Annotated[bool, typer.Option("--maps", help="Also draw, per differing variable, a character map of where it differs.")] = False,
           ) -> None:
     """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
@@ -433,7 +438,7 @@ def diff_(ctx: typer.Context,
     if as_json:
         typer.echo(json.dumps(diff_as_dict(d), indent=2))
     else:
-        typer.echo(format_diff(d, width=terminal_width(), colour=want_colour()))
+        typer.echo(format_diff(d, width=terminal_width(), colour=want_colour(), maps=maps))
     if not d.agree:
         raise typer.Exit(EXIT_DIFFER)
 
