@@ -357,7 +357,7 @@ def boundaries(ctx: typer.Context,
 def sample(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
            at: Annotated[Optional[list[str]], typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
-           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement).")] = None,
+           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement, else what its invariants predict: ribbon for Chern-type, flake for line windings, chain in 1D).")] = None,
            size: Annotated[Optional[int], typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
            gap: Annotated[str, typer.Option("--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
            output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
@@ -374,6 +374,8 @@ def sample(ctx: typer.Context,
     except SweepError as exc:
         _fail(ctx, exc)
         return
+    if drawn.chosen:
+        typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")
 
 
