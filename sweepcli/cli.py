@@ -450,13 +450,18 @@ def export(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
            var: Annotated[Optional[list[str]], typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
            output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+           table_name: Annotated[Optional[str], typer.Option("--table", help="Write a table stored beside the grid instead, one row per entry: transitions (the predicted gap closings).")] = None,
            ) -> None:
     """Write variables of RESULTS as CSV, one row per grid point (missing values empty)."""
-    from .report.export import export_table, write_csv
+    from .report.export import export_table, table_export, write_csv
     from .store import Results
 
     try:
-        table = export_table(Results.read(results_file), var)
+        if table_name is not None and var:
+            raise SweepError("--table writes a stored table; give it or --var, not both.")
+        results = Results.read(results_file)
+        table = (table_export(results, table_name) if table_name is not None
+                 else export_table(results, var))
         if output is None:
             write_csv(table, sys.stdout)
             return

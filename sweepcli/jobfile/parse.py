@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import tomli_w
 
-from ..errors import JobError, suggest
+from ..errors import JobError, sentence, suggest
 from ..expressions import Expression, ExpressionError, parse
 from ..physics.measurements import MEASUREMENTS, quantities_of
 from ..physics.models import MODELS
@@ -30,6 +30,7 @@ LATTICES = {
     "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
 }
 DRIVE_KINDS = ("static", "steps", "harmonic", "kicks")
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
 MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
     Param("gap_tol", default=1e-6, low=0, open_low=True, doc="gaps below this count as closed"),
@@ -40,10 +41,17 @@ def read_toml(path: str | Path) -> tuple[str, dict]:
     """Read and parse a TOML file; syntax errors become ``FILE:LINE:COL: message``."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        raw = path.read_bytes()
     except FileNotFoundError:
         raise JobError(f"{path}: no such job file.") from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except OSError as exc:
+        raise JobError(f"{path}: cannot read the job file ({exc}).") from None
+    if raw.startswith(HDF5_SIGNATURE):
+        raise JobError(f"{path}: is an HDF5 file (a results file?), not a TOML job file; "
+                       f"`sweepcli show {path}` describes a results file.")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
         raise JobError(f"{path}: cannot read the job file ({exc}).") from None
     try:
         return text, tomllib.loads(text)
@@ -128,7 +136,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                 exprs[key] = parse(value)
             except ExpressionError as exc:
                 raise ck.fail("params", key, "a number or an arithmetic expression",
-                              value, f" {exc}.") from None
+                              value, " " + sentence(exc)) from None
         else:
             param = declared.get(key, Param(key))
             fixed[key] = ck.number("params", key, value, param)
@@ -316,7 +324,7 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
             e = parse(str(value))
         except ExpressionError as exc:
             raise ck.fail(table, key, "a number or an arithmetic expression", value,
-                          f" {exc}.") from None
+                          " " + sentence(exc)) from None
         for n in sorted(e.names):
             if n not in known:
                 raise ck.fail(table, key, "an expression of defined parameters", value,
@@ -555,7 +563,7 @@ def _coeff(ck: Checker, where: str, value: object) -> Expression:
         return parse(str(value))
     except ExpressionError as exc:
         raise ck.fail(where, "coeff", "a number or an arithmetic expression", value,
-                      f" {exc}.") from None
+                      " " + sentence(exc)) from None
 
 
 def _measurement(ck: Checker, name: str, options: dict, dim: int, norb: int,
