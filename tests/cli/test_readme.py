@@ -63,3 +63,11 @@ def test_readme_drive_examples_validate(tmp_path):
         result = CliRunner().invoke(app, ["check", str(job)])
         assert result.exit_code == 0, result.output
         assert grid in result.stdout
+
+
+def test_readme_shows_the_quickstart_map():
+    text = (ROOT / "README.md").read_text()
+    images = re.findall(r"!\[[^\]]*\]\(([^)]+)\)", text)
+    assert images == ["docs/quickstart-map.png"]
+    png = ROOT / images[0]
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size < 200_000
