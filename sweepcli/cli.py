@@ -20,7 +20,10 @@ from .errors import SweepError
 EXIT_ERROR = 2
 EXIT_INTERRUPTED = 3
 
+# Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
+# and read "[output]" in a help text as markup.
 app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+                  rich_markup_mode=None,
                   help="Phase-diagram sweeps of static and periodically driven lattice models.")
 
 
@@ -74,11 +77,12 @@ def run(ctx: typer.Context,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
         resume: Annotated[bool, typer.Option("--resume", help="Continue the results file if it exists (same job only); start it otherwise.")] = False,
         shard: Annotated[Optional[str], typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
-        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, help="Grid points per task.")] = None,
+        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each", help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
         scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
         dask_cluster: Annotated[Optional[str], typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
+        verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
     from .jobfile import load_job
@@ -125,7 +129,7 @@ def run(ctx: typer.Context,
             executor = DaskExecutor(client)
         out.parent.mkdir(parents=True, exist_ok=True)
         results.write(out)
-        if ctx.obj is not None and ctx.obj.verbose:
+        if verbose or (ctx.obj is not None and ctx.obj.verbose):
             todo = results.size - results.n_done
             typer.echo(f"{job.path}: {job.title}; {results.n_done} of {results.size} points "
                        f"done, {todo} to go"
@@ -292,15 +296,15 @@ def show(ctx: typer.Context,
 @app.command("map")
 def map_(ctx: typer.Context,
          results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the first invariant).")] = None,
+         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the job's main invariant).")] = None,
          output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
-         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (nearest grid value).")] = None,
+         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a value off the axis is refused).")] = None,
          terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
          width: Annotated[Optional[int], typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
          mark_disagree: Annotated[bool, typer.Option("--mark-disagree", help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
-    from .report.maps import draw_map
+    from .report.maps import at_notes, draw_map
     from .report.terminal import terminal_map, want_colour
     from .store import Results
 
@@ -308,6 +312,8 @@ def map_(ctx: typer.Context,
         if terminal and output is not None:
             raise SweepError("--terminal prints the map; give it or --output, not both.")
         results = Results.read(results_file)
+        for note in at_notes(results, _parse_at(at or [])):
+            typer.echo(note, err=True)
         if terminal:
             text = terminal_map(results, var, _parse_at(at or []), width, colour=want_colour())
         else:
@@ -352,7 +358,7 @@ def boundaries(ctx: typer.Context,
 def sample(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
            at: Annotated[Optional[list[str]], typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
-           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement).")] = None,
+           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement, else what its invariants predict: ribbon for Chern-type, flake for line windings, chain in 1D).")] = None,
            size: Annotated[Optional[int], typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
            gap: Annotated[str, typer.Option("--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
            output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
@@ -369,6 +375,8 @@ def sample(ctx: typer.Context,
     except SweepError as exc:
         _fail(ctx, exc)
         return
+    if drawn.chosen:
+        typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")
 
 
@@ -414,6 +422,7 @@ def diff_(ctx: typer.Context,
           common: Annotated[bool, typer.Option("--common", help="Judge only the common grid points: a subset or refinement is then no difference.")] = False,
           top: Annotated[int, typer.Option("--top", min=0, help="Largest deviations listed per variable.")] = 5,
           as_json: Annotated[bool, typer.Option("--json", help="Machine-readable output.")] = False,
+          maps: Annotated[bool, typer.Option("--maps", help="Also draw, per differing variable, a character map of where it differs.")] = False,
           ) -> None:
     """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
@@ -432,7 +441,7 @@ def diff_(ctx: typer.Context,
     if as_json:
         typer.echo(json.dumps(diff_as_dict(d), indent=2))
     else:
-        typer.echo(format_diff(d, width=terminal_width(), colour=want_colour()))
+        typer.echo(format_diff(d, width=terminal_width(), colour=want_colour(), maps=maps))
     if not d.agree:
         raise typer.Exit(EXIT_DIFFER)
 
@@ -442,13 +451,18 @@ def export(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
            var: Annotated[Optional[list[str]], typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
            output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+           table_name: Annotated[Optional[str], typer.Option("--table", help="Write a table stored beside the grid instead, one row per entry: transitions (the predicted gap closings).")] = None,
            ) -> None:
     """Write variables of RESULTS as CSV, one row per grid point (missing values empty)."""
-    from .report.export import export_table, write_csv
+    from .report.export import export_table, table_export, write_csv
     from .store import Results
 
     try:
-        table = export_table(Results.read(results_file), var)
+        if table_name is not None and var:
+            raise SweepError("--table writes a stored table; give it or --var, not both.")
+        results = Results.read(results_file)
+        table = (table_export(results, table_name) if table_name is not None
+                 else export_table(results, var))
         if output is None:
             write_csv(table, sys.stdout)
             return

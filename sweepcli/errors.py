@@ -24,6 +24,12 @@ def suggest(word: str, candidates: Iterable[str]) -> str:
     return f" Did you mean {close[0]!r}?" if close else ""
 
 
+def sentence(text: object) -> str:
+    """``text`` ending in one full stop (none added after ``.``, ``?`` or ``!``)."""
+    text = str(text).rstrip()
+    return text if text.endswith((".", "?", "!")) else text + "."
+
+
 def shown(value: object) -> str:
     """A value as it should appear after ``got`` in an error message."""
     if isinstance(value, bool):

@@ -7,13 +7,14 @@ import itertools
 import math
 import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import tomli_w
 
-from ..errors import JobError, suggest
+from ..errors import JobError, sentence, suggest
 from ..expressions import Expression, ExpressionError, parse
 from ..physics.measurements import MEASUREMENTS, quantities_of
 from ..physics.models import MODELS
@@ -29,6 +30,7 @@ LATTICES = {
     "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
 }
 DRIVE_KINDS = ("static", "steps", "harmonic", "kicks")
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
 MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
     Param("gap_tol", default=1e-6, low=0, open_low=True, doc="gaps below this count as closed"),
@@ -39,10 +41,17 @@ def read_toml(path: str | Path) -> tuple[str, dict]:
     """Read and parse a TOML file; syntax errors become ``FILE:LINE:COL: message``."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        raw = path.read_bytes()
     except FileNotFoundError:
         raise JobError(f"{path}: no such job file.") from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except OSError as exc:
+        raise JobError(f"{path}: cannot read the job file ({exc}).") from None
+    if raw.startswith(HDF5_SIGNATURE):
+        raise JobError(f"{path}: is an HDF5 file (a results file?), not a TOML job file; "
+                       f"`sweepcli show {path}` describes a results file.")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
         raise JobError(f"{path}: cannot read the job file ({exc}).") from None
     try:
         return text, tomllib.loads(text)
@@ -127,7 +136,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                 exprs[key] = parse(value, "params", key)
             except ExpressionError as exc:
                 raise ck.fail("params", key, "a number or an arithmetic expression",
-                              value, f" {exc}.") from None
+                              value, " " + sentence(exc)) from None
         else:
             param = declared.get(key, Param(key))
             fixed[key] = ck.number("params", key, value, param)
@@ -184,10 +193,11 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         axes = tuple(_finer(a, refine.depth) for a in axes)
 
     output_t = ck.table(doc, "output")
-    ck.only("output", output_t, ["path"])
+    ck.only("output", output_t, ["path", "main"])
     output = output_t.get("path", f"results/{name}.h5")
     if not isinstance(output, str) or not output:
         raise ck.fail("output", "path", "a file path", output)
+    main = output_t.get("main")
 
     axis_names = {a.name for a in axes}
     clash = axis_names & {q.name for m, _ in measurements
@@ -201,7 +211,9 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "model": _normalised_model(model, model_t),
         "params": {k: (v if not isinstance(v, complex) else str(v)) for k, v in sorted(fixed.items())}
                   | {k: e.text for k, e in sorted(exprs.items())},
-        "sweep": {k: v for k, v in sweep_t.items()},
+        # Labels (doc, units) describe an axis and are no part of the job's identity.
+        "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
+                      if isinstance(v, dict) else v) for k, v in sweep_t.items()},
         "drive": drive.normalised(),
         **({"predict": {"momenta": [list(k) for k in predict]}} if predict is not None else {}),
         **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
@@ -215,7 +227,14 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
-              dim=dim, norb=norb, refine=refine, predict=predict)
+              dim=dim, norb=norb, refine=refine, predict=predict, main=main)
+    if main is not None:
+        stored = [q.name for _, qs in job.quantities() for q in qs] + [
+            r.quantity.name for r in job.consistency_rules()]
+        if main not in stored:
+            raise ck.fail("output", "main", "one of the quantities the job measures ("
+                          + ", ".join(stored) + ")", main,
+                          suggest(main, stored) if isinstance(main, str) else "")
     check_values(ck, job, declared, exprs)
     return job
 
@@ -283,7 +302,7 @@ def _finer(axis: Axis, depth: int) -> Axis:
     vals = np.geomspace(lo, hi, m) if axis.spacing == "log" else np.linspace(lo, hi, m)
     # Keep the base values bit for bit, so a refined run and a coarse run share their points.
     vals[:: 2 ** depth] = axis.values
-    return Axis(axis.name, tuple(float(v) for v in vals), axis.spacing)
+    return replace(axis, values=tuple(float(v) for v in vals))
 
 
 def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
@@ -305,7 +324,7 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
             e = parse(str(value), table, key)
         except ExpressionError as exc:
             raise ck.fail(table, key, "a number or an arithmetic expression", value,
-                          f" {exc}.") from None
+                          " " + sentence(exc)) from None
         for n in sorted(e.names):
             if n not in known:
                 raise ck.fail(table, key, "an expression of defined parameters", value,
@@ -409,7 +428,10 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
         return Axis(key, tuple(float(v) for v in vals), "list")
     if not isinstance(value, dict):
         raise ck.fail("sweep", key, spec_help, value)
-    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing"])
+    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing", "doc", "units"])
+    for k in ("doc", "units"):
+        if not isinstance(value.get(k, ""), str):
+            raise ck.fail(f"sweep.{key}", k, "a string", value[k])
     for k in ("start", "stop", "num"):
         if k not in value:
             raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
@@ -437,7 +459,8 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
         if not param.admits(float(v)):
             raise ck.fail(f"sweep.{key}", "start" if v == vals[0] else "stop",
                           f"such that every value is {param.expectation()}", float(v))
-    return Axis(key, tuple(float(v) for v in vals), spacing)
+    return Axis(key, tuple(float(v) for v in vals), spacing, value.get("doc", ""),
+                value.get("units", ""))
 
 
 def _order_expressions(ck: Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:
@@ -540,7 +563,7 @@ def _coeff(ck: Checker, where: str, value: object) -> Expression:
         return parse(str(value), where, "coeff")
     except ExpressionError as exc:
         raise ck.fail(where, "coeff", "a number or an arithmetic expression", value,
-                      f" {exc}.") from None
+                      " " + sentence(exc)) from None
 
 
 def _measurement(ck: Checker, name: str, options: dict, dim: int, norb: int,

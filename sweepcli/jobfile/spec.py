@@ -24,6 +24,8 @@ class Axis:
     name: str
     values: tuple[float, ...]
     spacing: str  # "linear", "log" or "list"
+    doc: str = ""  # description for axis labels ([sweep] NAME.doc; else the model's Param.doc)
+    units: str = ""  # units for axis labels ([sweep] NAME.units; else the model's Param.units)
 
 
 @dataclass(frozen=True)
@@ -170,6 +172,7 @@ class Job:
     norb: int
     refine: Refine | None = None
     predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
+    main: str | None = None  # [output] main: the quantity `sweepcli map` draws by default
 
     @property
     def shape(self) -> tuple[int, ...]:

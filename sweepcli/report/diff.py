@@ -445,8 +445,10 @@ def _value(x: Any, note: str) -> str:
     return str(x)
 
 
-def format_diff(d: ResultsDiff, width: int = 80, colour: bool = False) -> str:
-    """The report the CLI prints."""
+def format_diff(d: ResultsDiff, width: int = 80, colour: bool = False,
+                maps: bool = False) -> str:
+    """The report the CLI prints: what differs, at how many points, the largest differences
+    and where; with ``maps`` also a character picture per differing variable of where."""
     p = d.provenance
     lines = [f"A: {d.a}", f"B: {d.b}", ""]
     if p.same_job:
@@ -493,12 +495,12 @@ def format_diff(d: ResultsDiff, width: int = 80, colour: bool = False) -> str:
                              f"B {_value(dev.b, dev.b_note)}{size}")
             if v.n_differ > len(v.worst):
                 lines.append(f"      ... and {v.n_differ - len(v.worst)} more")
-            pic = difference_picture(d, v, width - 6, colour)
+            pic = difference_picture(d, v, width - 6, colour) if maps else []
             if pic:
                 lines.append("")
                 lines += ["      " + s for s in pic]
                 lines.append("")
-            elif sum(m.n_common > 1 for m in g.axes) > 2:
+            elif maps and sum(m.n_common > 1 for m in g.axes) > 2:
                 lines.append("      (a picture is drawn for 1D and 2D grids only)")
     for label, names in ((d.a, d.only_a), (d.b, d.only_b)):
         if names:

@@ -18,6 +18,7 @@ import numpy as np
 from ..errors import ResultsError, suggest
 from ..physics.point import Reason
 from ..store import FILL_INT, Results
+from .summary import empty_slots
 
 EXTRA_COLUMNS = ("done", "failure")
 
@@ -57,14 +58,19 @@ def _column(results: Results, name: str) -> list[Any]:
 
 def export_table(results: Results, variables: Sequence[str] | None = None) -> ExportTable:
     """The long-format table of ``variables`` (default: every data variable, reason codes
-    included, in file order).
+    included, in file order, except the slots this job never fills, see
+    :func:`~sweepcli.report.summary.empty_slots`).
 
     Raises
     ------
     ResultsError
         A name that is neither a variable nor ``done``/``failure``.
     """
-    names = list(variables) if variables else list(results.variables)
+    if variables:
+        names = list(variables)
+    else:
+        empty = set(empty_slots(results))
+        names = [n for n in results.variables if n not in empty]
     known = list(results.variables) + list(EXTRA_COLUMNS)
     for n in names:
         if n not in known:
@@ -79,6 +85,27 @@ def export_table(results: Results, variables: Sequence[str] | None = None) -> Ex
     columns = params + [_column(results, n) for n in names]
     return ExportTable([a.name for a in results.axes], names, results.size,
                        (list(row) for row in zip(*columns)))
+
+
+def table_export(results: Results, name: str) -> ExportTable:
+    """A table stored beside the grid (``transitions``: the predicted gap closings, see
+    results-schema.md), one row per entry.
+
+    Raises
+    ------
+    ResultsError
+        The file holds no table of that name.
+    """
+    if name not in results.tables:
+        have = ", ".join(results.tables) or "none"
+        raise ResultsError(f"no table {name!r} in the results file (tables: {have}; a job with "
+                           f"[predict] writes 'transitions').{suggest(name, list(results.tables))}")
+    cols = results.tables[name]
+    columns = list(cols)
+    n = len(cols[columns[0]]) if columns else 0
+    values = [[x if isinstance(x, str) else x.item() if hasattr(x, "item") else x
+               for x in cols[c]] for c in columns]
+    return ExportTable([], columns, n, (list(row) for row in zip(*values)))
 
 
 def write_csv(table: ExportTable, stream: IO[str]) -> int:

@@ -1,23 +1,82 @@
 """``sweepcli map``: phase maps drawn with matplotlib from a results file.
 
-Integer invariants get discrete colours with a legend, gaps a continuous scale; the contour where
-the bulk gap falls to a small fraction of its range is drawn over every 2D map so that phase
-changes can be compared with gap closings. A 1D sweep draws a line plot.
+Integer invariants (and half-integer ones such as the spin Chern number) get discrete colours
+tied to their values, the same in every map of every file: 0 neutral, positive values red and
+negative values blue, deeper with magnitude (:func:`value_colour`), with a colour bar that has
+one tick per value. Gaps get a continuous scale. Points where a quantity is ill-defined are grey;
+points not computed yet (an unfinished run) are hatched white, and the title counts them. Grid
+nodes next to a bulk-gap closing and predicted closings are marked over every 2D map so that
+phase changes can be compared with gap closings. A 1D sweep draws a line plot with the same
+colours.
 """
 
 from __future__ import annotations
 
+import textwrap
+from collections import Counter
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import ResultsError, SweepError, suggest
+from ..physics.point import Reason
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 
 FORMATS = (".png", ".svg", ".pdf")
-MISSING_COLOUR = "#bbbbbb"
+MISSING_COLOUR = "#9a9a9a"  # ill-defined: gap closed, not converged, failed
+NOT_COMPUTED_FACE = "#ffffff"  # not evaluated (yet): white, hatched
+NOT_COMPUTED_HATCH = "////"
+HATCH_COLOUR = "#8c8c8c"
+ZERO_COLOUR = "#e9e4d4"  # the trivial phase: a neutral that is neither grey nor white
 GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
+#: |value| -> distance from the centre of the diverging red-blue scale (0.5 = its darkest end).
+#: Fixed, so that a value has one colour in every map; |value| >= 4 share the darkest shade.
+_STRENGTH = ((0.5, 1.0, 2.0, 3.0, 4.0), (0.17, 0.25, 0.36, 0.44, 0.5))
+#: Largest number of distinct half-integer values for which a float variable is drawn discretely.
+MAX_DISCRETE = 24
+
+
+def value_colour(value: float) -> tuple[float, float, float, float]:
+    """The RGBA colour of an integer or half-integer ``value`` in every map.
+
+    0 is :data:`ZERO_COLOUR`; positive values take reds and negative values blues of the
+    ColorBrewer red-blue scale (matplotlib's ``RdBu_r``), deeper with ``|value|``.
+    """
+    import matplotlib
+    from matplotlib.colors import to_rgba
+
+    if value == 0:
+        return to_rgba(ZERO_COLOUR)
+    offset = float(np.interp(abs(value), *_STRENGTH))
+    return tuple(float(c) for c in matplotlib.colormaps["RdBu_r"](0.5 + np.copysign(offset, value)))
+
+
+def discrete_levels(dtype: str, values: np.ndarray, units: str = "1") -> list[float] | None:
+    """Sorted distinct values when ``values`` are to be drawn discretely, else ``None``.
+
+    Integer variables always; a dimensionless float variable (``units`` "1" or "", so never a
+    gap that happens to be 0 or 2) whose finite values are all integers or half-integers
+    (within 1e-6), with at most :data:`MAX_DISCRETE` distinct values: a spin Chern number.
+    """
+    finite = np.asarray(values, float)
+    finite = finite[np.isfinite(finite)]
+    if dtype in ("int32", "uint8"):
+        return sorted(float(v) for v in np.unique(finite))
+    if not finite.size or units not in ("", "1"):
+        return None
+    twice = np.round(2 * finite)
+    if np.max(np.abs(2 * finite - twice)) > 2e-6 or len(np.unique(twice)) > MAX_DISCRETE:
+        return None
+    return sorted(float(v) / 2 for v in np.unique(twice))
+
+
+def level_text(value: float) -> str:
+    """A level as printed on ticks and legends: ``1``, ``-1/2``, ``3/2``."""
+    if value == int(value):
+        return str(int(value))
+    return f"{int(round(2 * value))}/2"
 
 
 def gap_variable_for(results: Results, var: str) -> str | None:
@@ -28,14 +87,27 @@ def gap_variable_for(results: Results, var: str) -> str | None:
 
 
 def default_variable(results: Results) -> str:
-    """The first integer invariant, else the first float variable."""
+    """The variable ``map`` draws by default: the job's main invariant.
+
+    The one the job names (``[output] main``, stored as the root attribute ``main_variable``);
+    else the first integer invariant that takes more than one value on the computed points
+    (diagnostics such as ``*_kmesh``, ``*_method`` and the ``agree_*`` flags are skipped), else
+    the first integer invariant, else the first variable.
+    """
+    main = results.attrs.get("main_variable", "")
+    if main in results.variables:
+        return main
     plain = [v for v in results.variables.values() if not v.is_reason]
-    for v in plain:
-        if v.dtype == "int32" and not v.name.endswith("_kmesh"):
-            return v.name
     if not plain:
         raise ResultsError("the results file holds no variables to draw.")
-    return plain[0].name
+    ints = [v.name for v in plain if v.dtype == "int32" and not v.name.startswith("agree_")
+            and not v.name.endswith(("_kmesh", "_method"))]
+    done = results.done.astype(bool)
+    for name in ints:
+        vals = results.data[name][done]
+        if len(np.unique(vals[vals != FILL_INT])) > 1:
+            return name
+    return ints[0] if ints else plain[0].name
 
 
 def check_variable(results: Results, var: str | None) -> str:
@@ -48,13 +120,48 @@ def check_variable(results: Results, var: str | None) -> str:
     return var
 
 
+def axis_index(axis, value: float) -> int:
+    """Index of the grid value of ``axis`` nearest to ``value``.
+
+    Raises
+    ------
+    ResultsError
+        ``value`` lies off the axis: beyond its first or last value by more than half a step.
+    """
+    v = np.asarray(axis.values, float)
+    i = int(np.argmin(np.abs(v - value)))
+    tol = 1e-9 * (1 + abs(value))
+    if len(v) > 1:
+        steps = np.abs(np.diff(np.sort(v)))
+        lo, hi = v.min() - steps[0] / 2, v.max() + steps[-1] / 2
+    else:
+        lo = hi = v[0]
+    if not lo - tol <= value <= hi + tol:
+        raise ResultsError(f"--at {axis.name}={value:g} is off the swept axis of {axis.name} "
+                           f"({len(v)} value{'s' if len(v) != 1 else ''} from {v.min():g} to "
+                           f"{v.max():g}); give a value on it.")
+    return i
+
+
+def at_notes(results: Results, at: dict[str, float]) -> list[str]:
+    """One line per ``--at`` value that is not a grid value, naming the grid value used."""
+    notes = []
+    for a in results.axes:
+        if a.name in at:
+            used = float(a.values[axis_index(a, at[a.name])])
+            if not np.isclose(used, at[a.name], rtol=1e-9, atol=1e-12):
+                notes.append(f"--at {a.name}={at[a.name]:g} is not a grid value; drawn at the "
+                             f"nearest, {a.name}={used:g}.")
+    return notes
+
+
 def select(results: Results, at: dict[str, float]) -> tuple[list[int], tuple]:
     """Indices of the axes to draw (at most two, longer than 1 and not fixed by ``at``) and the
-    index tuple that selects them, other axes fixed at the value nearest to ``at[name]`` (or
-    their first value)."""
+    index tuple that selects them, other axes fixed at the grid value nearest to ``at[name]``
+    (refused when off the axis, see :func:`axis_index`) or at their first value."""
+    names = [a.name for a in results.axes]
     for name in at:
-        if name not in [a.name for a in results.axes]:
-            names = [a.name for a in results.axes]
+        if name not in names:
             raise ResultsError(f"--at names {name!r}, which is not a swept parameter (swept: "
                                f"{', '.join(names)}).{suggest(name, names)}")
     free = [i for i, a in enumerate(results.axes) if a.name not in at and len(a.values) > 1][:2]
@@ -65,8 +172,7 @@ def select(results: Results, at: dict[str, float]) -> tuple[list[int], tuple]:
         if i in free:
             index.append(slice(None))
         else:
-            target = at.get(a.name, a.values[0])
-            index.append(int(np.argmin(np.abs(a.values - target))))
+            index.append(axis_index(a, at[a.name]) if a.name in at else 0)
     return free, tuple(index)
 
 
@@ -152,13 +258,106 @@ def disagreement(results: Results) -> np.ndarray:
     return mask
 
 
-def draw_map(results: Results, out: str | Path, var: str | None = None,
-             at: dict[str, float] | None = None, mark_disagree: bool = False) -> Path:
-    """Draw ``var`` (default: the first integer invariant) to ``out``; format from the suffix."""
-    out = Path(out)
-    if out.suffix.lower() not in FORMATS:
-        raise SweepError(f"{out}: the picture format follows the suffix, which must be one of "
-                         f"{', '.join(FORMATS)}; got {out.suffix or 'none'!r}.")
+def missing_reasons(results: Results, var: str, index: tuple, mask: np.ndarray) -> Counter:
+    """Reason names (``"gap_closed"``, ...) of the points of ``mask`` (on the drawn slice) where
+    ``var`` is missing although evaluated, counted; ``{"missing": n}`` without a reason variable."""
+    meta = results.variables[var]
+    rname = f"{meta.measurement}_reason"
+    if rname not in results.variables or rname == var:
+        return Counter({"missing": int(mask.sum())})
+    reasons = display_values(results, rname)[0][index][mask]
+    return Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
+
+
+def missing_text(counts: Counter) -> str:
+    """``missing: gap closed (12)`` or ``missing: gap closed 10, not converged 2``."""
+    words = {k.replace("_", " "): v for k, v in sorted(counts.items())}
+    if len(words) == 1:
+        (name, n), = words.items()
+        return f"missing: {name} ({n})" if name != "missing" else f"missing ({n})"
+    return "missing: " + ", ".join(f"{k} {v}" for k, v in words.items())
+
+
+@dataclass
+class Slice:
+    """What a map draws: ``values`` of ``var`` on the drawn axes (NaN where missing),
+    ``not_computed`` (not evaluated yet) and ``ill`` (evaluated but missing) masks, ``levels``
+    (the discrete values, ``None`` for a continuous scale) and the counts for the title."""
+
+    var: str
+    values: np.ndarray
+    not_computed: np.ndarray
+    ill: np.ndarray
+    levels: list[float] | None
+    n_known: int
+    n_total: int
+
+
+def map_slice(results: Results, var: str, index: tuple) -> Slice:
+    meta = results.variables[var]
+    data, known = display_values(results, var)
+    n_known = int(known.sum())
+    data, known = data[index], known[index].astype(bool)
+    values = data.astype(float)
+    bad = (data == FILL_INT) if meta.dtype == "int32" else ~np.isfinite(values)
+    values[bad | ~known] = np.nan
+    return Slice(var, values, ~known, known & bad, discrete_levels(meta.dtype, values, meta.units),
+                 n_known, results.size)
+
+
+def _title(results: Results, s: Slice, index: tuple) -> str:
+    meta = results.variables[s.var]
+    fixed = [f"{a.name}={a.values[i]:g}" for a, i in zip(results.axes, index) if isinstance(i, int)
+             and len(a.values) > 1]
+    lines = [results.attrs.get("title", "")] if results.attrs.get("title") else []
+    lines.append(f"{s.var}: {meta.long_name}" + (f" at {', '.join(fixed)}" if fixed else ""))
+    if s.n_known < s.n_total:
+        lines.append(f"unfinished run: {s.n_known} of {s.n_total} points computed")
+    return "\n".join(textwrap.fill(line, 80) for line in lines)
+
+
+def _value_label(var: str, meta) -> str:
+    return var + (f" [{meta.units}]" if meta.units not in ("", "1") else "")
+
+
+def _hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray) -> None:
+    """White hatched rectangles over the cells of ``mask`` (shape (nx, ny)): not computed."""
+    from matplotlib.collections import PatchCollection
+    from matplotlib.patches import Rectangle
+
+    rects = [Rectangle((xe[i], ye[j]), xe[i + 1] - xe[i], ye[j + 1] - ye[j])
+             for i, j in np.argwhere(mask)]
+    ax.add_collection(PatchCollection(rects, facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
+                                      linewidth=0, hatch=NOT_COMPUTED_HATCH, zorder=1.5))
+
+
+def _missing_handles(results: Results, s: Slice, index: tuple, one_d: bool) -> list:
+    """Legend entries of the missing and not-computed points of the slice."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    out = []
+    if s.ill.any():
+        text = missing_text(missing_reasons(results, s.var, index, s.ill))
+        out.append(Line2D([], [], ls="", marker="x", color="crimson", label=text) if one_d
+                   else Patch(facecolor=MISSING_COLOUR, label=text))
+    if s.not_computed.any():
+        text = f"not computed yet ({int(s.not_computed.sum())})"
+        out.append(Line2D([], [], ls="", marker="s", mfc="none", mec=HATCH_COLOUR, label=text)
+                   if one_d else Patch(facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
+                                       hatch=NOT_COMPUTED_HATCH, label=text))
+    return out
+
+
+def map_figure(results: Results, var: str | None = None, at: dict[str, float] | None = None,
+               mark_disagree: bool = False):
+    """The matplotlib figure of ``var`` (default :func:`default_variable`).
+
+    Two free axes give a phase map with a colour bar (discrete, a tick per value, for integer
+    and half-integer variables) and a legend below the axes for the marks: missing points by
+    reason, points not computed yet, gap closings, predicted closings, bulk-boundary
+    disagreements. One free axis gives a line plot with the gap on a second y axis.
+    """
     var = check_variable(results, var)
     free, index = select(results, at or {})
     import matplotlib
@@ -166,81 +365,90 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     from matplotlib.colors import BoundaryNorm, ListedColormap
-    from matplotlib.patches import Patch
+    from matplotlib.lines import Line2D
 
     meta = results.variables[var]
-    data, done = display_values(results, var)
-    data, done = data[index], done[index].astype(bool)
-    is_int = meta.dtype in ("int32", "uint8")
-    values = data.astype(float)
-    missing = ~done | ((data == FILL_INT) if meta.dtype == "int32" else ~np.isfinite(values))
-    values[missing] = np.nan
-    title = results.attrs.get("title", "")
-    fixed = [f"{a.name}={a.values[i]:g}" for a, i in zip(results.axes, index) if isinstance(i, int)
-             and len(a.values) > 1]
-    subtitle = meta.long_name + (f" at {', '.join(fixed)}" if fixed else "")
-
-    fig, ax = plt.subplots(figsize=(7, 5.2), constrained_layout=True)
+    s = map_slice(results, var, index)
+    values = s.values
+    fig, ax = plt.subplots(figsize=(7, 5.6), layout="constrained")
+    handles: list = []
+    gap_name = gap_variable_for(results, var)
     if len(free) == 1:
         axis = results.axes[free[0]]
-        x = axis.values
-        ax.plot(x, values, "o-" if not is_int else "o", ms=3, drawstyle="steps-mid" if is_int else "default",
-                label=var)
-        if missing.any():
-            # On the bottom edge of the axes, so that no value is suggested.
-            ax.plot(x[missing], np.full(missing.sum(), 0.02), "x", color="crimson",
-                    transform=ax.get_xaxis_transform(), clip_on=False,
-                    label="missing (see *_reason)")
+        x = np.asarray(axis.values, float)
+        if s.levels is not None:
+            ax.plot(x, values, "-", color="0.7", lw=1, drawstyle="steps-mid", zorder=1)
+            for lv in s.levels:
+                sel = np.isclose(values, lv)
+                ax.plot(x[sel], values[sel], ls="", marker="o", ms=5, mfc=value_colour(lv),
+                        mec="0.25", mew=0.5, zorder=2)
+            if s.levels:
+                ax.set_yticks(s.levels, [level_text(v) for v in s.levels])
+                # Room below the lowest level, so that the marks of missing points at the bottom
+                # are never read as a value.
+                ax.set_ylim(min(s.levels) - 0.8, max(s.levels) + 0.5)
+        else:
+            ax.plot(x, values, "o-", ms=3, color="tab:blue")
+        # Missing points on the bottom edge of the axes, apart from every value level.
+        for mask, style in ((s.ill, dict(marker="x", color="crimson")),
+                            (s.not_computed, dict(marker="s", mfc="none", mec=HATCH_COLOUR))):
+            if mask.any():
+                ax.plot(x[mask], np.full(int(mask.sum()), 0.04), ls="", ms=5, clip_on=False,
+                        transform=ax.get_xaxis_transform(), **style)
+        handles += _missing_handles(results, s, index, one_d=True)
         if axis.spacing == "log":
             ax.set_xscale("log")
         ax.set_xlabel(_label(axis))
-        ax.set_ylabel(f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
-        gap_name = gap_variable_for(results, var)
+        ax.set_ylabel(_value_label(var, meta))
         if gap_name is not None:
             twin = ax.twinx()
-            gap = results.data[gap_name][index].astype(float)
-            twin.plot(x, gap, "-", color="grey", lw=1, alpha=0.7, label=gap_name)
-            twin.set_ylabel(f"{gap_name} [{results.variables[gap_name].units}]", color="grey")
+            gap = np.where(~s.not_computed, results.data[gap_name][index].astype(float), np.nan)
+            twin.plot(x, gap, "-", color="0.45", lw=1)
+            twin.set_ylabel(_value_label(gap_name, results.variables[gap_name]), color="0.45")
             twin.set_ylim(bottom=0)
-        if is_int and np.isfinite(values).any():
-            lo, hi = int(np.nanmin(values)), int(np.nanmax(values))
-            ax.set_yticks(range(lo, hi + 1))
+            handles.append(Line2D([], [], color="0.45", lw=1,
+                                  label=f"{gap_name} ({results.variables[gap_name].long_name}; "
+                                        "right axis)"))
         if mark_disagree:
             bad = disagreement(results)[index]
             if bad.any():
                 ax.plot(x[bad], np.nan_to_num(values[bad]), ls="", marker="o", mfc="none",
-                        mec="crimson", ms=8, label="bulk and boundary disagree")
+                        mec="crimson", ms=9)
+                handles.append(Line2D([], [], ls="", marker="o", mfc="none", mec="crimson",
+                                      label="bulk and boundary disagree"))
+        drawn = set()
         for row in _transition_rows(results, index):
-            ax.axvline(row[axis.name], color="k" if row["gap"] == "pi" else "tab:red", lw=0.8,
-                       ls=":" if row["gap"] == "pi" else "--",
-                       label=f"predicted closing at {row['gap']}")
-        ax.legend(loc="best", fontsize=8)
+            style = dict(color="k", ls=":") if row["gap"] == "pi" else dict(color="tab:red", ls="--")
+            ax.axvline(row[axis.name], lw=0.8, **style)
+            if row["gap"] not in drawn:  # one legend entry per gap
+                drawn.add(row["gap"])
+                handles.append(Line2D([], [], lw=0.8, label=f"predicted closing at {row['gap']}",
+                                      **style))
     else:
         xa, ya = results.axes[free[0]], results.axes[free[1]]
         grid = values.T  # pcolormesh wants rows along y (the second free axis)
         xe, ye = _edges(xa.values, xa.spacing == "log"), _edges(ya.values, ya.spacing == "log")
-        handles = []
-        if is_int:
-            levels = sorted(set(int(v) for v in values[np.isfinite(values)]))
-            colours = list(plt.get_cmap("tab10").colors) + list(plt.get_cmap("Set3").colors)
-            if not levels:
-                levels = [0]
-            cmap = ListedColormap([colours[i % len(colours)] for i in range(len(levels))]
-                                  ).with_extremes(bad=MISSING_COLOUR)
+        if s.levels is not None:
+            levels = s.levels or [0.0]
+            cmap = ListedColormap([value_colour(lv) for lv in levels]).with_extremes(
+                bad=MISSING_COLOUR)
             coded = np.full(grid.shape, np.nan)
             for i, lv in enumerate(levels):
-                coded[grid == lv] = i
+                coded[np.isclose(grid, lv)] = i
             norm = BoundaryNorm(np.arange(len(levels) + 1) - 0.5, len(levels))
-            ax.pcolormesh(xe, ye, np.ma.masked_invalid(coded), cmap=cmap, norm=norm,
-                          shading="flat")
-            handles = [Patch(color=cmap(i), label=f"{var} = {lv}") for i, lv in enumerate(levels)]
-            if np.isnan(grid).any():
-                handles.append(Patch(color=MISSING_COLOUR, label="missing (see *_reason)"))
+            mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(coded), cmap=cmap, norm=norm,
+                                 shading="flat")
+            bar = fig.colorbar(mesh, ax=ax, ticks=range(len(levels)), pad=0.02, aspect=30)
+            bar.ax.set_yticklabels([level_text(v) for v in levels])
+            bar.ax.tick_params(length=0)
         else:
-            cmap = plt.get_cmap("viridis").with_extremes(bad=MISSING_COLOUR)
+            cmap = matplotlib.colormaps["viridis"].with_extremes(bad=MISSING_COLOUR)
             mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")
-            fig.colorbar(mesh, ax=ax, label=f"{var}" + (f" [{meta.units}]" if meta.units not in ("", "1") else ""))
-        gap_name = gap_variable_for(results, var)
+            bar = fig.colorbar(mesh, ax=ax, pad=0.02, aspect=30)
+        bar.set_label(_value_label(var, meta))
+        if s.not_computed.any():
+            _hatch_cells(ax, xe, ye, s.not_computed)
+        handles += _missing_handles(results, s, index, one_d=False)
         if gap_name is not None:
             # Evaluated points only: filled-in values of a refined file are flat by construction.
             gap = np.where(results.done[index].astype(bool),
@@ -249,31 +457,42 @@ def draw_map(results: Results, out: str | Path, var: str | None = None,
             if closing.any():
                 gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")
                 ax.plot(gx[closing], gy[closing], "k.", ms=3)
-                from matplotlib.lines import Line2D
-
                 handles.append(Line2D([], [], color="k", marker=".", ls="", ms=4,
                                       label=f"{gap_name} closes within half a cell"))
         handles += _draw_transitions(ax, results, index, xa.name, ya.name)
         if mark_disagree:
             bad = disagreement(results)[index]
             if bad.any():
-                from matplotlib.lines import Line2D
-
                 gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")
                 ax.plot(gx[bad], gy[bad], ls="", marker="o", mfc="none", mec="crimson", ms=7)
                 handles.append(Line2D([], [], ls="", marker="o", mfc="none", mec="crimson",
                                       label="bulk and boundary disagree"))
+        ax.set_xlim(xe[0], xe[-1])
+        ax.set_ylim(ye[0], ye[-1])
         if xa.spacing == "log":
             ax.set_xscale("log")
         if ya.spacing == "log":
             ax.set_yscale("log")
         ax.set_xlabel(_label(xa))
         ax.set_ylabel(_label(ya))
-        if handles:
-            ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1), fontsize=8,
-                      borderaxespad=0)
-    ax.set_title(f"{title}\n{subtitle}" if title else subtitle, fontsize=10)
+    if handles:
+        fig.legend(handles=handles, loc="outside lower center", ncols=2, fontsize=8,
+                   frameon=False)
+    ax.set_title(_title(results, s, index), fontsize=10)
+    return fig
+
+
+def draw_map(results: Results, out: str | Path, var: str | None = None,
+             at: dict[str, float] | None = None, mark_disagree: bool = False) -> Path:
+    """Draw :func:`map_figure` to ``out``; the format follows the suffix (png, svg, pdf)."""
+    out = Path(out)
+    if out.suffix.lower() not in FORMATS:
+        raise SweepError(f"{out}: the picture format follows the suffix, which must be one of "
+                         f"{', '.join(FORMATS)}; got {out.suffix or 'none'!r}.")
+    fig = map_figure(results, var, at, mark_disagree)
+    import matplotlib.pyplot as plt
+
     out.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(out, dpi=120)
+    fig.savefig(out, dpi=110)
     plt.close(fig)
     return out

@@ -29,7 +29,7 @@ import numpy as np
 from ..errors import ResultsError, SweepError, suggest
 from ..store import FILL_INT, Results
 from ..store.provenance import stored_job
-from .maps import FORMATS
+from .maps import FORMATS, axis_index
 
 #: Sample kind -> (boundary measurement whose options it takes, option holding its size).
 KINDS = {"flake": ("corner_modes", "size"), "chain": ("end_modes", "cells"),
@@ -93,6 +93,7 @@ class SampleDrawing:
     reasons: dict[str, str] = field(default_factory=dict)
     full_spectrum: bool = True
     region: int = 0
+    chosen: str = ""  # why this sample kind, when it was not asked for
 
     def describe(self) -> str:
         """One line: the sample and the counts of the chosen gap."""
@@ -106,22 +107,51 @@ class SampleDrawing:
 # ----------------------------------------------------------------------------------------------
 
 def nearest_index(results: Results, at: dict[str, float]) -> tuple[int, ...]:
-    """Grid index nearest to ``at`` on every axis; axes not named take their first value."""
+    """Grid index nearest to ``at`` on every axis (a value off an axis is refused, see
+    :func:`~sweepcli.report.maps.axis_index`); axes not named take their first value."""
     names = [a.name for a in results.axes]
     for name in at:
         if name not in names:
             raise ResultsError(f"--at names {name!r}, which is not a swept parameter (swept: "
                                f"{', '.join(names)}).{suggest(name, names)}")
-    return tuple(int(np.argmin(np.abs(np.asarray(a.values, float) - at.get(a.name, a.values[0]))))
-                 for a in results.axes)
+    return tuple(axis_index(a, at[a.name]) if a.name in at else 0 for a in results.axes)
+
+
+#: Measurements whose bulk invariant counts chiral edge modes (a ribbon shows them) or corner
+#: modes (a flake shows them), for choosing a sample when the job measures no boundary modes.
+EDGE_INVARIANTS = ("chern", "spin_chern", "floquet_chern", "rudner_winding")
+CORNER_INVARIANTS = ("line_winding",)
+
+
+def default_kind(job) -> tuple[str, str]:
+    """The sample to draw for ``job`` when none is asked for, and why (one phrase).
+
+    The job's boundary measurement: ``corner_modes`` -> flake, ``edge_modes`` -> ribbon,
+    ``end_modes`` -> chain (in that order). Without one, what its invariants predict: a chain
+    in 1D, a flake for symmetry-resolved line windings (corner modes), else a ribbon (chiral
+    edge modes of Chern, spin Chern, Floquet Chern numbers and the Rudner winding, and the
+    edge states of any other 2D job).
+    """
+    measured = [m for m, _ in job.measurements]
+    for k in ("flake", "ribbon", "chain"):
+        if KINDS[k][0] in measured:
+            return k, f"the job measures {KINDS[k][0]}"
+    if job.dim == 1:
+        return "chain", "a 1D model"
+    corner = [m for m in measured if m in CORNER_INVARIANTS]
+    if corner:
+        return "flake", f"the job measures {corner[0]}, which counts corner modes"
+    edge = [m for m in measured if m in EDGE_INVARIANTS]
+    if edge:
+        return "ribbon", f"the job measures {edge[0]}, which counts chiral edge modes"
+    return "ribbon", "a 2D job without boundary measurements"
 
 
 def sample_options(job, kind: str | None, size: int | None) -> tuple[str, dict[str, Any], bool]:
     """The sample to draw: ``(kind, options, as_measured)``.
 
-    Kind and options default to the job's boundary measurement (``corner_modes`` -> flake,
-    ``end_modes`` -> chain, ``edge_modes`` -> ribbon, in that order), else a flake (2D) or a
-    chain (1D) with the registered defaults; ``size`` replaces the sample's size option.
+    Kind defaults to :func:`default_kind`; the options to the job's measurement of that sample
+    kind, else the registered defaults; ``size`` replaces the sample's size option.
     ``as_measured`` is true when the options are those the job measured (so the file holds
     their counts).
     """
@@ -129,8 +159,7 @@ def sample_options(job, kind: str | None, size: int | None) -> tuple[str, dict[s
 
     measured = dict(job.measurements)
     if kind is None:
-        kind = next((k for k, (m, _) in KINDS.items() if m in measured),
-                    "flake" if job.dim == 2 else "chain")
+        kind = default_kind(job)[0]
     if kind not in KINDS:
         raise SweepError(f"--kind must be one of {', '.join(KINDS)}; got {kind!r}."
                          f"{suggest(kind, KINDS)}")
@@ -274,6 +303,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
     if gap == "pi" and not driven:
         raise SweepError("--gap pi needs a driven job (a quasienergy gap at pi/T); this job is "
                          "static.")
+    chosen = f"{default_kind(job)[0]}: {default_kind(job)[1]}" if kind is None else ""
     kind, options, as_measured = sample_options(job, kind, size)
     index = nearest_index(results, at or {})
     flat = int(np.ravel_multi_index(index, job.shape)) if job.axes else 0
@@ -307,6 +337,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
                                 raw["counts"], density=raw["density"],
                                 corner_weight=raw["corner_weight"], reasons=raw["reasons"],
                                 full_spectrum=raw["full"], region=raw["region"])
+    drawing = replace(drawing, chosen=chosen)
     if as_measured:
         drawing = replace(drawing, stored=_stored(results, kind, index, driven))
     raw.update(job=job, point=point, windows=windows, driven=driven)

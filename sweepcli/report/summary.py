@@ -37,13 +37,38 @@ class Summary:
     total: int
     failed: list[tuple[dict, str]]
     variables: list[VariableSummary]
+    empty: list[str] = field(default_factory=list)
+
+
+def empty_slots(results: Results) -> list[str]:
+    """Variables with no value at any evaluated point where their measurement succeeded
+    (reason ``ok``): slots a measurement declares but this job never fills, such as the
+    windings of symmetry sectors beyond those its operator has (``line_w0_s3`` of a
+    two-sector operator)."""
+    done = results.done.astype(bool)
+    out = []
+    for var in results.variables.values():
+        rname = f"{var.measurement}_reason"
+        if var.is_reason or rname not in results.variables or var.dtype not in ("int32", "float64"):
+            continue
+        ok = done & (results.data[rname] == Reason.OK)
+        if not ok.any():
+            continue
+        data = results.data[var.name][ok]
+        if np.all(data == FILL_INT) if var.dtype == "int32" else np.all(np.isnan(data)):
+            out.append(var.name)
+    return out
 
 
 def summarise(results: Results, max_failed: int = 20) -> Summary:
-    """Structured summary; the CLI only formats it."""
+    """Structured summary; the CLI only formats it. Empty slots (:func:`empty_slots`) are
+    named, not summarised."""
     done = results.done.astype(bool)
     variables = []
+    empty = empty_slots(results)
     for var in results.variables.values():
+        if var.name in empty:
+            continue
         data = results.data[var.name][done]
         if var.dtype == "int32":
             ok = data != FILL_INT
@@ -71,7 +96,8 @@ def summarise(results: Results, max_failed: int = 20) -> Summary:
         provenance={k: results.attrs.get(k, "") for k in PROVENANCE_KEYS},
         axes=[(a.name, len(a.values), float(a.values[0]), float(a.values[-1]), a.units)
               for a in results.axes],
-        done=int(done.sum()), total=results.size, failed=failed, variables=variables)
+        done=int(done.sum()), total=results.size, failed=failed, variables=variables,
+        empty=empty)
 
 
 def format_summary(s: Summary) -> str:
@@ -117,4 +143,7 @@ def format_summary(s: Summary) -> str:
             rng = (f"{v.minimum:.4g} .. {v.maximum:.4g}" if v.minimum is not None else "none")
             unit = f" {v.units}" if v.units and v.units != "1" else ""
             lines.append(f"  {v.name} ({v.long_name}): range {rng}{unit}; missing {v.missing}")
+    if s.empty:
+        lines.append(f"  not filled by this job (no value wherever their measurement succeeded): "
+                     f"{', '.join(s.empty)}")
     return "\n".join(lines)

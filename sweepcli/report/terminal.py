@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import os
 import shutil
-from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import IO
@@ -21,13 +20,20 @@ import numpy as np
 
 from ..physics.point import Reason
 from ..store import FILL_INT, Results
-from .maps import check_variable, select
+from ..store.refined import display_values
+from .maps import check_variable, discrete_levels, level_text, missing_reasons, select
 
 MISSING_GLYPH = "·"
+NOT_COMPUTED_GLYPH = "?"
 ZERO_GLYPH = "░"  # the trivial phase is drawn lightest
 LEVEL_GLYPHS = ("█", "▒", "#", "%", "@", "&", "$", "X", "O", "W", "M", "=", "+", "o", "x", "*")
 RAMP_GLYPHS = ("▁", "▂", "▃", "▄", "▅", "▆", "▇", "█")  # floats: low to high
 MISSING_COLOUR = "90"  # ANSI dark grey
+NOT_COMPUTED_COLOUR = "2"  # faint
+# Tied to values as in the plotted maps: positive red, negative blue, deeper with |value|
+# (xterm-256 colours for |value| = 1/2 or 1, 2, 3, >= 4); reason codes take their own set.
+POSITIVE_COLOURS = ("38;5;210", "38;5;203", "38;5;160", "38;5;88")
+NEGATIVE_COLOURS = ("38;5;117", "38;5;75", "38;5;26", "38;5;18")
 LEVEL_COLOURS = ("34", "31", "32", "33", "35", "36", "94", "91", "92", "93", "95", "96")
 ZERO_COLOUR = "37"
 RAMP_COLOURS = ("38;5;54", "38;5;61", "38;5;67", "38;5;73", "38;5;72", "38;5;107",
@@ -195,48 +201,50 @@ def _axis_label(axis) -> str:
     return axis.name + unit
 
 
-def _missing_label(results: Results, var: str, index: tuple, missing: np.ndarray) -> str:
-    meta = results.variables[var]
-    rname = f"{meta.measurement}_reason"
-    if rname in results.variables and rname != var and missing.any():
-        reasons = results.data[rname][index][missing]
-        counts = Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
-        if len(counts) == 1:
-            return f"missing ({next(iter(counts))})"
-        return f"missing ({', '.join(f'{k}: {v}' for k, v in sorted(counts.items()))})"
-    return "missing"
+def value_colour(value: float) -> str:
+    """ANSI colour of an integer or half-integer value (see :data:`POSITIVE_COLOURS`)."""
+    if value == 0:
+        return ZERO_COLOUR
+    shades = POSITIVE_COLOURS if value > 0 else NEGATIVE_COLOURS
+    return shades[min(max(int(np.ceil(abs(value))), 1), len(shades)) - 1]
 
 
 def code_variable(results: Results, var: str, index: tuple) -> Coded:
     """Codes and legend of ``results.data[var][index]`` (any shape).
 
-    Integers (and reason codes) get one character per value, zero the lightest; floats eight
-    equal-width bins between their smallest and largest value. Missing points (not evaluated,
-    the integer fill value, NaN) get :data:`MISSING_GLYPH`.
+    Integers, half-integer floats (spin Chern numbers) and reason codes get one character per
+    value, zero the lightest; other floats eight equal-width bins between their smallest and
+    largest value. Points not computed yet get :data:`NOT_COMPUTED_GLYPH`, evaluated points
+    where the value is missing (the integer fill value, NaN) :data:`MISSING_GLYPH`.
     """
     meta = results.variables[var]
-    data = results.data[var][index]
-    done = results.done[index].astype(bool)
+    data, known = display_values(results, var)
+    data, known = data[index], known[index].astype(bool)
     if meta.dtype == "int32":
-        missing = ~done | (data == FILL_INT)
+        bad = data == FILL_INT
     elif meta.dtype == "uint8":
-        missing = np.zeros(data.shape, dtype=bool)
+        bad = np.zeros(data.shape, dtype=bool)
     else:
-        missing = ~done | np.isnan(data)
+        bad = np.isnan(data)
+    missing = ~known | bad
     levels: list[Level] = []
     codes = np.zeros(data.shape, dtype=np.int64)
     ramp = False
-    if meta.dtype in ("int32", "uint8"):
-        values = sorted(set(int(v) for v in data[~missing].ravel()))
+    discrete = discrete_levels(meta.dtype, np.where(missing, np.nan, data.astype(float)),
+                               meta.units)
+    if discrete is not None:
         # zero first (lightest), then by size with the positive value of a pair first
-        order = sorted(values, key=lambda v: (v != 0, abs(v), v < 0))
+        order = sorted(discrete, key=lambda v: (v != 0, abs(v), v < 0))
         others = iter(LEVEL_GLYPHS)
         for k, v in enumerate(order):
             is_zero = v == 0  # a zero invariant, or the reason code ok
             glyph = ZERO_GLYPH if is_zero else next(others, None) or chr(ord("a") + k % 26)
-            colour = ZERO_COLOUR if is_zero else LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
-            shown = Reason(v).name.lower() if meta.dtype == "uint8" else str(v)
-            sel = ~missing & (data == v)
+            if meta.dtype == "uint8":
+                colour = ZERO_COLOUR if is_zero else LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
+                shown = Reason(int(v)).name.lower()
+            else:
+                colour, shown = value_colour(v), level_text(v)
+            sel = ~missing & np.isclose(data.astype(float), v)
             codes[sel] = k
             levels.append(Level(glyph, f"{var} = {shown}", int(sel.sum()), colour))
     else:
@@ -256,10 +264,19 @@ def code_variable(results: Results, var: str, index: tuple) -> Coded:
                          f"{fmt(edges[k + 1])}{unit}" if nlev > 1 else f"{var} = {fmt(lo)}{unit}")
                 levels.append(Level(g, label, int(sel.sum()),
                                     RAMP_COLOURS[k] if nlev > 1 else RAMP_COLOURS[-1]))
-    if missing.any():
-        codes[missing] = len(levels)
-        levels.append(Level(MISSING_GLYPH, _missing_label(results, var, index, missing),
-                            int(missing.sum()), MISSING_COLOUR))
+    ill = known & bad
+    if ill.any():
+        counts = missing_reasons(results, var, index, ill)
+        if len(counts) > 1:
+            label = "missing (" + ", ".join(f"{k}: {v}" for k, v in sorted(counts.items())) + ")"
+        else:
+            label = "missing" + ("" if "missing" in counts else f" ({next(iter(counts))})")
+        codes[ill] = len(levels)
+        levels.append(Level(MISSING_GLYPH, label, int(ill.sum()), MISSING_COLOUR))
+    if (~known).any():
+        codes[~known] = len(levels)
+        levels.append(Level(NOT_COMPUTED_GLYPH, "not computed yet", int((~known).sum()),
+                            NOT_COMPUTED_COLOUR))
     return Coded(codes, levels, ramp)
 
 
@@ -321,6 +338,9 @@ def terminal_map(results: Results, var: str | None = None, at: dict[str, float] 
     if results.attrs.get("title"):
         lines.append(results.attrs["title"])
     lines.append(f"{var}: {meta.long_name}" + (f" at {', '.join(fixed)}" if fixed else ""))
+    known = int(display_values(results, var)[1].sum())
+    if known < results.size:
+        lines.append(f"unfinished run: {known} of {results.size} points computed")
     lines.append("")
     codes = coded.codes
     if codes.ndim == 0:

@@ -89,5 +89,7 @@ def _env_int(env: Mapping[str, str], name: str, default: int | None = None) -> i
 
 def _checked(index: int, count: int, given: str) -> Shard:
     if count < 1 or not 1 <= index <= count:
-        raise SweepError(f"--shard must be {SHARD_HELP}; got {given} = {index}/{count}.")
+        resolved = f"{index}/{count}"
+        shown = given if given == resolved else f"{given} = {resolved}"  # say "auto" resolved to
+        raise SweepError(f"--shard must be {SHARD_HELP}; got {shown}.")
     return Shard(index, count)

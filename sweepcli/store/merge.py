@@ -34,13 +34,28 @@ def _same_grid(a: Results, b: Results) -> bool:
 def merge_results(paths: list[str | Path], max_listed: int = 10) -> tuple[Results, MergeReport]:
     """Combine shard files of one job.
 
-    Refuses (``ResultsError``) files of different jobs (hash), grids, schema versions or
+    Refuses (``ResultsError``) a file given twice, two files of the same shard, files of
+    different jobs (hash), grids, schema versions or
     variables, and points evaluated in two files with different values. Missing points are
     reported, not refused; the caller decides.
     """
     if not paths:
         raise ResultsError("merge needs at least one shard file.")
+    seen: dict[Path, Path] = {}
+    for p in map(Path, paths):
+        key = p.resolve()
+        if key in seen:
+            raise ResultsError(f"{p}: is given twice (as {seen[key]} and {p}); refusing to merge "
+                               "a shard with itself.")
+        seen[key] = p
     shards = [(Path(p), Results.read(p)) for p in paths]
+    labels: dict[str, Path] = {}
+    for path, r in shards:
+        label = r.attrs.get("shard", "")
+        if label and label in labels:
+            raise ResultsError(f"{path}: holds shard {label}, as does {labels[label]} (a copy?); "
+                               "refusing to merge one shard twice.")
+        labels[label] = path
     first_path, first = shards[0]
     out = Results(first.axes, list(first.variables.values()),
                   {k: v for k, v in first.attrs.items() if k not in SHARD_ATTRS})

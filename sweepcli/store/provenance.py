@@ -28,8 +28,8 @@ def new_results(job: Job, argv: list[str] | None = None) -> Results:
     axes = []
     for a in job.axes:
         param = MODELS[job.model].param(a.name) if job.model in MODELS else None
-        units = param.units if param is not None and param.units else "1"
-        long_name = param.doc if param is not None and param.doc else a.name
+        units = a.units or (param.units if param is not None and param.units else "1")
+        long_name = a.doc or (param.doc if param is not None and param.doc else a.name)
         axes.append(AxisData(a.name, np.array(a.values), units, long_name, a.spacing))
     variables = []
     for measurement, quantities in job.quantities():
@@ -59,6 +59,8 @@ def new_results(job: Job, argv: list[str] | None = None) -> Results:
         "started": now(),
         "finished": "",
     }
+    if job.main is not None:
+        attrs["main_variable"] = job.main
     if job.refine is not None:
         attrs["refine_by"] = job.refine.by
         attrs["refine_stride"] = str(job.refine.stride)

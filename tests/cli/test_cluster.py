@@ -107,9 +107,23 @@ def test_overlapping_shards_with_conflicting_values_are_refused(job, tmp_path):
     b.write_bytes(a.read_bytes())
     with h5py.File(b, "r+") as f:
         f["gap"][0, 0] = f["gap"][0, 0] + 1.0
+        f.attrs["shard"] = "2/2"  # posing as the other shard, so only the values conflict
     result = invoke("merge", tmp_path / "m.h5", a, b, "--partial")
     assert result.exit_code == 2
     assert "point m=-3, t=0.5 was also computed in another shard with a different gap" in result.stderr
+
+
+def test_the_same_shard_twice_is_refused(job, tmp_path):
+    assert invoke("run", job, "--shard", "1/2", "--no-progress").exit_code == 0
+    a = tmp_path / "full.shard-1-of-2.h5"
+    result = invoke("merge", tmp_path / "m.h5", a, a, "--partial")
+    assert result.exit_code == 2
+    assert f"{a}: is given twice" in result.stderr and not (tmp_path / "m.h5").exists()
+    copy = tmp_path / "copy.h5"
+    copy.write_bytes(a.read_bytes())
+    result = invoke("merge", tmp_path / "m.h5", a, copy, "--partial")
+    assert result.exit_code == 2
+    assert f"{copy}: holds shard 1/2, as does {a}" in result.stderr
 
 
 def test_batch_scripts_are_valid_shell_naming_the_shard_variables(job, tmp_path):

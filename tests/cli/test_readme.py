@@ -5,6 +5,7 @@ import re
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
+from sweepcli.store import Results
 
 from ..conftest import ROOT
 
@@ -29,10 +30,14 @@ def test_readme_job_files_validate(tmp_path):
     assert "grid: 41 x 31 = 1271 points" in result.stdout
 
     job = tmp_path / "custom.toml"
-    job.write_text(custom + '[params]\nt = 1.0\n[sweep]\nm = [-1.0, 1.0]\n[measure.gap]\n'
-                   f'[output]\npath = "{tmp_path / "c.h5"}"\n')
+    m = [-3.0, -1.5, -0.5, 0.5, 1.5, 3.0]
+    job.write_text(custom + f'[params]\nt = 1.0\n[sweep]\nm = {m}\n[measure.gap]\n'
+                   f'[measure.chern]\n[output]\npath = "{tmp_path / "c.h5"}"\n')
     result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
     assert result.exit_code == 0, result.output
+    # Qi, Wu and Zhang, PRB 74, 085308 (2006): |C| = 1 for 0 < |m| < 2t, 0 for |m| > 2t.
+    chern = Results.read(tmp_path / "c.h5").data["chern"]
+    assert [abs(int(c)) for c in chern] == [0, 1, 1, 1, 1, 0]
 
     refine = next(b for b in blocks("toml") if "[refine]" in b)
     job = tmp_path / "refined.toml"
@@ -58,3 +63,11 @@ def test_readme_drive_examples_validate(tmp_path):
         result = CliRunner().invoke(app, ["check", str(job)])
         assert result.exit_code == 0, result.output
         assert grid in result.stdout
+
+
+def test_readme_shows_the_quickstart_map():
+    text = (ROOT / "README.md").read_text()
+    images = re.findall(r"!\[[^\]]*\]\(([^)]+)\)", text)
+    assert images == ["docs/quickstart-map.png"]
+    png = ROOT / images[0]
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size < 200_000
