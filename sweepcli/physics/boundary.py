@@ -312,14 +312,16 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
 
     1D model: the bulk levels against ``k``. 2D model: ribbons of ``width`` cells cut along
     ``a_1`` and along ``a_2``, their levels against ``k_par`` (edge and projected bulk states;
-    a corner mode of a second-order phase lives in the edge gap). Returns the smallest gap and
-    the longest decay length over the geometries (:func:`gap_and_decay`).
+    a corner mode of a second-order phase lives in the edge gap). A ribbon gap that halves or
+    more when the ribbon is twice as wide is the tunnelling of a gapless edge across the
+    ribbon, not a gap: it is returned as 0. Returns the smallest gap and the longest decay
+    length over the geometries (:func:`gap_and_decay`).
     """
     def dist(h: TightBinding, k: np.ndarray) -> np.ndarray:
         return np.min(np.abs(np.linalg.eigvalsh(h.bloch(k[:, None])) - centre), axis=-1)
 
-    found = [gap_and_decay(lambda k, h=h: dist(h, k), nk) for h in _geometries(tb, width)]
-    return min(g for g, _ in found), max(x for _, x in found)
+    return _settled([[gap_and_decay(lambda k, h=h: dist(h, k), nk) for h in pair]
+                     for pair in _geometries(tb, width)])
 
 
 def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: float,
@@ -332,16 +334,30 @@ def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: 
         return np.min(np.abs(_wrap(eps - centre, period)), axis=-1)
 
     per_step = [_geometries(f, width) for _, f in factors]
-    found = [gap_and_decay(lambda k, j=j: dist([(t, g[j]) for (t, _), g in
-                                                zip(factors, per_step)], k), nk)
-             for j in range(len(per_step[0]))]
-    return min(g for g, _ in found), max(x for _, x in found)
+    found = []
+    for j in range(len(per_step[0])):
+        found.append([gap_and_decay(lambda k, j=j, w=w: dist(
+            [(t, g[j][w]) for (t, _), g in zip(factors, per_step)], k), nk)
+            for w in range(len(per_step[0][j]))])
+    return _settled(found)
 
 
-def _geometries(tb: TightBinding, width: int | None) -> list[TightBinding]:
+def _geometries(tb: TightBinding, width: int | None) -> list[list[TightBinding]]:
+    """The bulk chain (1D), or for each cut direction ribbons of ``width`` and ``2 width``."""
     if tb.dim == 1:
-        return [tb]
-    return [samples.ribbon(tb, int(width), axis) for axis in (0, 1)]
+        return [[tb]]
+    return [[samples.ribbon(tb, int(w), axis) for w in (width, 2 * width)] for axis in (0, 1)]
+
+
+def _settled(found: list[list[tuple[float, float]]]) -> tuple[float, float]:
+    gaps, xis = [], []
+    for pair in found:
+        gap, xi = pair[0]
+        if len(pair) > 1 and pair[1][0] < gap / 2:
+            gap, xi = 0.0, math.inf
+        gaps.append(gap)
+        xis.append(xi)
+    return min(gaps), max(xis)
 
 
 def gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], nk: int) -> tuple[float, float]:

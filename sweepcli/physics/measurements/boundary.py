@@ -217,7 +217,7 @@ def _box(point: Point, shape: tuple[int, ...], max_side: int, fraction: float, m
     factors = point_factors(point) if driven else None
     tb0 = factors[0][1] if driven else point.tb
     samples.choose_method(tb0, shape, method, driven=driven)
-    wins = point_windows(point, fraction)
+    wins = dict(point_windows(point, fraction))  # a copy: the memoised bulk windows stay
     xi = {}
     for g, w in wins.items():
         if w.closed(point.gap_tol):
