@@ -40,7 +40,7 @@ def driven_case():
     drive = StepDrive(period, ((period / 2, bbh(gamma=0.5, lam=0.0)),
                                (period / 2, bbh(gamma=0.0, lam=1.2))))
     factors = drive.factors()
-    windows = bd.floquet_windows(factors)
+    windows = bd.floquet_windows(drive)
 
     def run(size: int, method: str):
         res = bd.floquet_box_modes(factors, (size, size), windows, method=method,
