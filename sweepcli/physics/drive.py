@@ -638,8 +638,8 @@ def decide_slicing(drive: Drive) -> Slicing:
     ``drive.tol``. The coarse mesh suffices: the stepping error is a smooth function of k that
     varies on the scale of the hopping range (the mesh holds the zone centre and the zone-edge
     points), and the operator kept is the finer of the last two, whose error is ~16 times below
-    the change measured (fourth-order scheme). Grid points and the transition prediction decide once and pass the result to
-    every evolution (bulk meshes, lines, frames, open samples).
+    the change measured (fourth-order scheme). Grid points and the transition prediction decide
+    once and pass the result to every evolution (bulk meshes, lines, frames, open samples).
     """
     if not isinstance(drive, HarmonicDrive):
         return Slicing(1, 0.0, True)

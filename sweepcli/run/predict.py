@@ -8,9 +8,8 @@ job uses ``U = exp(-i tau H(k*))`` with ``tau`` small enough that phases stay wi
 pi/2): its 0 crossings are the zero-energy closings.
 
 A harmonic drive is evolved at the time slicing the measurements use
-(:func:`sweepcli.physics.measurements.driven.point_slicing`, decided once per grid point):
-along a line, the finest slicing of the line's grid points serves every trial value between
-them.
+(:func:`sweepcli.physics.measurements.driven.point_slicing`, decided once per grid point): a
+trial value between two grid values uses the finer slicing of the two.
 """
 
 from __future__ import annotations
@@ -28,23 +27,23 @@ from ..physics.measurements.driven import point_slicing
 def _operator(job: Job, k: np.ndarray):
     decided: dict[int, Slicing] = {}
 
-    def slicing_of(line: list[int]) -> Slicing | None:
+    def slicing_at(line: list[int], values: np.ndarray, p: float) -> Slicing | None:
+        """The finer slicing of the grid points around ``p`` (at ``p`` itself on the grid)."""
         if job.drive.kind == "static":
             return None
-        for i in line:
+        j = int(np.searchsorted(values, p))
+        around = [line[j]] if j < len(values) and values[j] == p else \
+            [line[max(j - 1, 0)], line[min(j, len(line) - 1)]]
+        for i in around:
             if i not in decided:
                 decided[i] = point_slicing(job.point(i))
-        worst = max((decided[i] for i in line), key=lambda s: s.slices)
-        return Slicing(worst.slices, max(decided[i].error for i in line),
-                       all(decided[i].converged for i in line))
+        return max((decided[i] for i in around), key=lambda s: s.slices)
 
-    def u_of(line: list[int], axis: str):
-        slicing = slicing_of(line)
-
+    def u_of(line: list[int], axis: str, values: np.ndarray):
         def at(p: float) -> np.ndarray:
             point = job.point(line[0], {axis: p})
             if point.drive is not None:
-                return floquet_operator(point.drive, k, slicing=slicing)
+                return floquet_operator(point.drive, k, slicing=slicing_at(line, values, p))
             h = point.tb.bloch(k)
             scale = float(np.max(np.sum(np.abs(h), axis=-1))) or 1.0
             return hermitian_exponential(h, 0.5 / scale)
@@ -66,7 +65,8 @@ def predict_transitions(job: Job) -> dict[str, np.ndarray]:
         for multi in itertools.product(*others):
             line = [int(np.ravel_multi_index(multi[:ai] + (j,) + multi[ai + 1:], job.shape))
                     for j in range(len(axis.values))]
-            for t in transition_points(u_of(line, axis.name), axis.values):
+            at = u_of(line, axis.name, np.asarray(axis.values, dtype=float))
+            for t in transition_points(at, axis.values):
                 coords = [a.values[m] for a, m in zip(job.axes, multi)]
                 coords[ai] = t.value
                 rows.append((axis.name, *coords, t.gap, *(momenta[t.index] / (2 * np.pi))))
