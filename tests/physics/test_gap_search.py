@@ -205,3 +205,42 @@ def test_harmonic_slicing_is_decided_once_per_point(monkeypatch):
     # Every bulk mesh of the point was evolved at that slicing.
     meshes = [v for key, v in pt.cache.items() if key[0] == "floquet_mesh"]
     assert meshes and all(m.slices == slicing.slices for m in meshes)
+
+
+HARMONIC_JOB = """
+[model]
+name = "qwz"
+[params]
+m0 = 1.0
+m = "m0"
+[sweep]
+A = { start = 0.5, stop = 1.5, num = 2 }
+omega = { start = 6.0, stop = 10.0, num = 3 }
+[drive]
+kind = "harmonic"
+omega = "omega"
+tol = 1e-6
+[[drive.term]]
+param = "m"
+amplitude = "A"
+harmonic = 1
+[measure.quasienergy_gaps]
+[predict]
+[output]
+path = "OUT"
+"""
+
+
+def test_predict_decides_the_slicing_once_per_grid_point(monkeypatch, tmp_path):
+    from sweepcli.jobfile import load_job
+    from sweepcli.run.predict import predict_transitions
+
+    calls = []
+    original = md.decide_slicing
+    monkeypatch.setattr(md, "decide_slicing", lambda d: calls.append(d) or original(d))
+    path = tmp_path / "job.toml"
+    path.write_text(HARMONIC_JOB.replace("OUT", str(tmp_path / "out.h5")))
+    job = load_job(path)
+    predict_transitions(job)
+    # Every grid point lies on two lines (one per axis) but is decided once.
+    assert len(calls) == job.size == 6
