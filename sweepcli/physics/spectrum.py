@@ -96,7 +96,7 @@ def _stencil(dim: int, h: float) -> np.ndarray:
 
 
 def _newton(phi: Callable[[np.ndarray], np.ndarray], k0: np.ndarray, step: float,
-            maxiter: int = 60) -> tuple[np.ndarray, np.ndarray]:
+            maxiter: int = 200) -> tuple[np.ndarray, np.ndarray]:
     """Minimise a smooth ``phi`` from every start in ``k0 (c, d)`` at once.
 
     Saddle-free Newton steps (Hessian eigenvalues replaced by their moduli) from central
@@ -133,7 +133,7 @@ def _newton(phi: Callable[[np.ndarray], np.ndarray], k0: np.ndarray, step: float
         p *= np.minimum(1.0, step / np.maximum(size, 1e-300))[:, None]
         improved = np.zeros(idx.size, bool)
         before = val[idx].copy()
-        for _ in range(8):  # backtracking: a Newton step that needs more halvings is done
+        for _ in range(20):  # backtracking: a Newton step that needs more halvings is done
             todo = np.flatnonzero(~improved)
             trial = k[idx[todo]] + p[todo]
             ft = phi(trial)
