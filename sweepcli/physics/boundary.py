@@ -65,15 +65,16 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg as sla
 import scipy.sparse as sp
-from scipy.optimize import minimize, minimize_scalar
+from scipy.optimize import minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh, splu
 
 from . import boundary_counts as counts
+from . import floquet as fl
 from . import samples
-from .drive import evolve
-from .lattice import TightBinding, kmesh
+from .drive import Drive, Slicing, decide_slicing, evolve
+from .lattice import TightBinding
 from .point import Reason
-from .spectrum import band_gap, energies
+from .spectrum import band_edges, band_gap
 
 WINDOW_FRACTION = 0.5
 #: Step in k (rad) of the central difference for the curvature of a gap at its minimum.
@@ -180,24 +181,8 @@ class EdgeModes:
 # ----------------------------------------------------------------------------------------------
 
 def default_kmesh(dim: int) -> int:
-    """Points per direction of the bulk mesh used to set windows (refined in continuous k)."""
+    """Points per direction of the bulk mesh of static windows (refined in continuous k)."""
     return 256 if dim == 1 else 48
-
-
-def _polish(f: Callable[[np.ndarray], np.ndarray], values: np.ndarray, mesh: np.ndarray,
-            starts: int = 2) -> float:
-    """Minimise ``f`` (batched over ``(..., d)`` momenta) from the lowest mesh points."""
-    flat_k = mesh.reshape(-1, mesh.shape[-1])
-    flat_v = values.ravel()
-    best = float(flat_v.min())
-    step = 2 * np.pi / mesh.shape[0]
-    for i in np.argsort(flat_v, kind="stable")[:starts]:
-        res = minimize(lambda k: float(f(k[None, :])[0]), flat_k[i], method="Nelder-Mead",
-                       options={"xatol": 1e-9, "fatol": 1e-13, "maxiter": 400,
-                                "initial_simplex": flat_k[i] + step * np.vstack(
-                                    [np.zeros(mesh.shape[-1]), np.eye(mesh.shape[-1])])})
-        best = min(best, float(res.fun))
-    return best
 
 
 def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = WINDOW_FRACTION,
@@ -215,58 +200,44 @@ def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = W
 
     Returns
     -------
-    Window with the indirect gap (>= 0) and its midpoint; the extrema of the two bands are
-    polished in continuous k, and the gap is never above the refined direct gap.
+    Window with the indirect gap (>= 0) and its midpoint; the band edges come from
+    :func:`~sweepcli.physics.spectrum.band_edges` (the gap search's minima and polish), and the
+    gap is never above the refined direct gap.
     """
     nocc = tb.norb // 2 if nocc is None else int(nocc)
     n = default_kmesh(tb.dim) if kmesh_n is None else int(kmesh_n)
-    mesh = kmesh(n, tb.dim)
-    e = energies(tb, mesh)
-    top = -_polish(lambda k: -energies(tb, k)[..., nocc - 1], -e[..., nocc - 1], mesh)
-    bottom = _polish(lambda k: energies(tb, k)[..., nocc], e[..., nocc], mesh)
+    top, bottom = band_edges(tb, nocc, n)
     direct = band_gap(tb, nocc, n).gap if direct_gap is None else float(direct_gap)
     gap = max(0.0, min(bottom - top, direct))
     return Window(0.5 * (top + bottom), fraction * gap / 2 if gap > 0 else float("nan"), gap)
 
 
-def _period(factors: Sequence[tuple[float, object]]) -> float:
-    return float(sum(t for t, _ in factors))
+def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
+                    gaps: fl.FloquetGaps | None = None, slicing: Slicing | None = None
+                    ) -> dict[str, Window]:
+    """Windows at quasienergy 0 and ``pi/T`` of a drive, from its bulk quasienergy gaps.
 
+    Parameters
+    ----------
+    drive : the compiled drive (its period sets ``pi/T``).
+    fraction : as :func:`static_window`.
+    gaps : the bulk gaps (:func:`sweepcli.physics.floquet.floquet_gaps`, refined in continuous
+        k); computed on the default quasienergy-gap mesh at ``slicing`` when omitted.
+    slicing : the drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), used
+        only when ``gaps`` is omitted.
 
-def floquet_spectrum(factors: Sequence[tuple[float, TightBinding]], k: np.ndarray) -> np.ndarray:
-    """Quasienergies ``(..., n)`` in ``[-pi/T, pi/T)`` of the bulk Floquet operator at ``k (..., d)``.
-
-    ``U(k)`` is the time-ordered product of the steps' ``exp(-i t H(k))``; ``eps = -arg(lambda) / T``.
+    Returns
+    -------
+    ``{"0": Window, "pi": Window}`` centred on 0 and ``pi/T``, gap widths as in the module
+    docstring (``gap_0`` and ``gap_pi`` of the bulk).
     """
-    u = evolve([(t, f.bloch(k)) for t, f in factors])
-    return -np.angle(np.linalg.eigvals(u)) / _period(factors)
-
-
-def floquet_windows(factors: Sequence[tuple[float, TightBinding]],
-                    fraction: float = WINDOW_FRACTION,
-                    kmesh_n: int | None = None) -> dict[str, Window]:
-    """Windows at quasienergy 0 and ``pi/T`` of a drive given as ``(duration, TightBinding)`` steps.
-
-    Returns ``{"0": Window, "pi": Window}``; gap widths as in the module docstring, minimised on
-    a mesh and polished in continuous k.
-    """
-    dim = factors[0][1].dim
-    period = _period(factors)
-    n = default_kmesh(dim) if kmesh_n is None else int(kmesh_n)
-    mesh = kmesh(n, dim)
-    eps = floquet_spectrum(factors, mesh)
-    half = np.pi / period
-
-    def dist0(k: np.ndarray) -> np.ndarray:
-        return np.min(np.abs(floquet_spectrum(factors, k)), axis=-1)
-
-    def distpi(k: np.ndarray) -> np.ndarray:
-        return np.min(half - np.abs(floquet_spectrum(factors, k)), axis=-1)
-
+    if gaps is None:
+        mesh = fl.floquet_mesh(drive, fl.GAP_KMESH, drive.dim,
+                               slicing if slicing is not None else decide_slicing(drive))
+        gaps = fl.floquet_gaps(drive, mesh)
+    period = drive.period
     out = {}
-    for name, f, v, centre in (("0", dist0, np.min(np.abs(eps), axis=-1), 0.0),
-                               ("pi", distpi, np.min(half - np.abs(eps), axis=-1), half)):
-        gap = max(0.0, 2 * _polish(f, v, mesh))
+    for name, gap, centre in (("0", gaps.gap_0, 0.0), ("pi", gaps.gap_pi, np.pi / period)):
         out[name] = Window(centre, fraction * gap / 2 if gap > 0 else float("nan"), gap, period)
     return out
 
@@ -526,9 +497,8 @@ def box_modes(tb: TightBinding, shape: Sequence[int], window: Window, *,
 # ----------------------------------------------------------------------------------------------
 
 def _wrap(x: np.ndarray, period: float) -> np.ndarray:
-    """Quasienergy differences reduced to ``[-pi/T, pi/T)``."""
-    half = np.pi / period
-    return (np.asarray(x) + half) % (2 * half) - half
+    """Quasienergy differences reduced to ``(-pi/T, pi/T]`` (:func:`fl.wrap_quasienergy`)."""
+    return fl.wrap_quasienergy(x, period)
 
 
 def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, method: str
@@ -741,19 +711,24 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
     """Chiral edge modes and edge gaps of a driven ribbon at quasienergy 0 and ``pi/T``.
 
     ``U(k_par)`` of the ribbon is the time-ordered product of the steps' ribbon Bloch
-    Hamiltonians (:func:`~sweepcli.physics.drive.evolve`, batched over ``k_par``). Returns
+    Hamiltonians (:func:`~sweepcli.physics.drive.evolve`, batched over ``k_par``), diagonalised
+    by :func:`sweepcli.physics.floquet.unitary_eig`, whose eigenvectors stay orthonormal inside
+    degenerate clusters (the overlaps that follow levels from one ``k_par`` to the next need
+    that). The period is that of the windows (from :func:`floquet_windows`). Returns
     ``{"0": EdgeModes, "pi": EdgeModes}``; conventions as :func:`ribbon_modes`.
     """
-    period = _period(factors)
+    period = next(iter(windows.values())).period
     ribbons = [(float(t), samples.ribbon(f, width, open_axis)) for t, f in factors]
     low = _low_half(width, factors[0][1].norb)
     cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
 
+    def operator(k: np.ndarray) -> np.ndarray:
+        return evolve([(t, r.bloch(k[:, None])) for t, r in ribbons])
+
     def eig(k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if k.size not in cache:
-            lam, v = np.linalg.eig(evolve([(t, r.bloch(k[:, None])) for t, r in ribbons]))
-            v = v / np.linalg.norm(v, axis=-2, keepdims=True)
-            cache[k.size] = (-np.angle(lam) / period, v)
+            phases, v = fl.unitary_eig(operator(k))
+            cache[k.size] = (-phases / period, v)
         return cache[k.size]
 
     out = {}
@@ -764,11 +739,11 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
 
         def spectrum(k: np.ndarray, c: float = window.centre) -> tuple[np.ndarray, np.ndarray]:
             eps, v = eig(k)
-            return _wrap(eps - c, period), v
+            return fl.wrap_quasienergy(eps - c, period), v
 
         def levels_at(x: float, c: float = window.centre) -> np.ndarray:
-            u = evolve([(t, r.bloch(np.array([x]))) for t, r in ribbons])
-            return _wrap(-np.angle(np.linalg.eigvals(u)) / period - c, period)
+            eps = fl.quasienergy_values(operator(np.array([x])), period)
+            return fl.wrap_quasienergy(eps - c, period)
 
         out[name] = _edge_modes(spectrum, levels_at, low, window, nk, nk_max)
     return out

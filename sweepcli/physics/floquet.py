@@ -36,24 +36,23 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq, linear_sum_assignment, minimize, minimize_scalar
+from scipy.optimize import brentq, linear_sum_assignment
 
 from . import invariants as inv
-from .drive import (Drive, FactorStack, HarmonicDrive, StepDrive, evolve, floquet_evolution,
-                    hermitian_exponential)
+from .drive import (Drive, FactorStack, HarmonicDrive, Slicing, StepDrive, evolve,
+                    floquet_evolution, hermitian_exponential)
 from .lattice import TightBinding, kmesh
 from .point import Reason
+from .spectrum import polish_minima, velocity_bound, wrap_k
 
+#: Default mesh of the quasienergy-gap search (points per direction; minima are refined).
+GAP_KMESH = 32
 #: Largest accepted distance of the raw Rudner winding integral from an integer.
 RESIDUE_TOL = 0.05
 #: (k-mesh, Gauss nodes per factor) levels of the Rudner winding integral.
 RUDNER_LEVELS = ((16, 6), (24, 8), (32, 10), (48, 12), (64, 16), (96, 20), (128, 24))
 #: Largest accepted ``|[S, X]|`` (symmetry on a line) and ``|G U G - U^dagger|`` (chiral frame).
 SYMMETRY_TOL = 1e-8
-
-
-def _wrap(k: np.ndarray) -> np.ndarray:
-    return (np.asarray(k, dtype=float) + np.pi) % (2 * np.pi) - np.pi
 
 
 def _dagger(x: np.ndarray) -> np.ndarray:
@@ -104,11 +103,23 @@ def unitary_eig(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return phases, v
 
 
+def wrap_quasienergy(eps: np.ndarray, period: float) -> np.ndarray:
+    """Quasienergies (or differences of them) reduced to ``(-pi/T, pi/T]``: ``-pi/T`` -> ``pi/T``.
+
+    The one wrap of the project: bulk spectra, open samples and ribbons all use it.
+    """
+    half = np.pi / period
+    return half - (half - np.asarray(eps, dtype=float)) % (2 * half)
+
+
 def quasienergies(u: np.ndarray, period: float) -> tuple[np.ndarray, np.ndarray]:
-    """Quasienergies ``(..., n)`` in ``(-pi/T, pi/T]``, ascending; eigenvectors ``(..., n, n)``."""
+    """Quasienergies ``(..., n)`` in ``(-pi/T, pi/T]``, ascending; eigenvectors ``(..., n, n)``.
+
+    ``U v = exp(-i eps T) v``; vectors from :func:`unitary_eig` (orthonormal in degenerate
+    clusters).
+    """
     phases, v = unitary_eig(u)
-    eps = -phases / period
-    eps = np.where(eps <= -np.pi / period, eps + 2 * np.pi / period, eps)
+    eps = wrap_quasienergy(-phases / period, period)
     order = np.argsort(eps, axis=-1)
     return np.take_along_axis(eps, order, -1), np.take_along_axis(v, order[..., None, :], -1)
 
@@ -116,7 +127,7 @@ def quasienergies(u: np.ndarray, period: float) -> tuple[np.ndarray, np.ndarray]
 def quasienergy_values(u: np.ndarray, period: float) -> np.ndarray:
     """Quasienergies only, ascending (``numpy.linalg.eigvals``; unitary spectra are stable)."""
     eps = -np.angle(np.linalg.eigvals(np.asarray(u, dtype=complex))) / period
-    return np.sort(np.where(eps <= -np.pi / period, eps + 2 * np.pi / period, eps), axis=-1)
+    return np.sort(wrap_quasienergy(eps, period), axis=-1)
 
 
 def gap_distances(eps: np.ndarray, period: float) -> tuple[np.ndarray, np.ndarray]:
@@ -151,10 +162,14 @@ class FloquetMesh:
     converged: bool
 
 
-def floquet_mesh(drive: Drive, n: int, dim: int) -> FloquetMesh:
-    """Diagonalise ``U(k)`` on an ``n^dim`` mesh."""
+def floquet_mesh(drive: Drive, n: int, dim: int, slicing: Slicing | None = None) -> FloquetMesh:
+    """Diagonalise ``U(k)`` on an ``n^dim`` mesh.
+
+    ``slicing``: the drive's time slicing if already decided
+    (:func:`~sweepcli.physics.drive.decide_slicing`); otherwise it is converged on this mesh.
+    """
     k = kmesh(n, dim)
-    ev = floquet_evolution(drive, k)
+    ev = floquet_evolution(drive, k, slicing=slicing)
     eps, v = quasienergies(ev.u, drive.period)
     return FloquetMesh(k, eps, v, ev.u, ev.error, ev.slices, ev.converged)
 
@@ -183,61 +198,47 @@ class FloquetGaps:
     slices: int = 1
 
 
-def _local_minima(g: np.ndarray, count: int) -> np.ndarray:
-    mask = np.ones(g.shape, bool)
-    for axis in range(g.ndim):
-        for shift in (1, -1):
-            mask &= g <= np.roll(g, shift, axis=axis)
-    idx = np.flatnonzero(mask)
-    return idx[np.argsort(g.ravel()[idx], kind="stable")][:count]
+def distance_bound(drive: Drive, slices: int) -> float:
+    """Lipschitz constant (energy per radian of reduced momentum) of every quasienergy band.
+
+    ``dU/dk = -i int U(T, t) dH(t)/dk U(t, 0) dt`` has norm at most ``int ||dH/dk|| dt``, and an
+    eigenphase of a unitary moves no faster than the operator, so
+    ``|d eps / dk| <= (1/T) sum_f d_f v_f`` over the factors ``(d_f, H_f)`` with ``v_f`` from
+    :func:`~sweepcli.physics.spectrum.velocity_bound` (a kick counts with duration 1). The
+    distances ``min_j |eps_j|`` and ``min_j (pi/T - |eps_j|)`` have the same constant.
+    """
+    return sum(d * velocity_bound(tb.hoppings) for d, tb in drive.factors(slices=slices)
+               ) / drive.period
 
 
-def _refine_min(f: Callable[[np.ndarray], float], k0: np.ndarray, step: float
-                ) -> tuple[float, np.ndarray]:
-    """Polish a grid minimum of a cone-shaped ``f >= 0`` in continuous k (Nelder-Mead)."""
-    if k0.size == 1:
-        r = minimize_scalar(lambda x: f(np.array([x])), bounds=(k0[0] - step, k0[0] + step),
-                            method="bounded", options={"xatol": 1e-12})
-        return float(r.fun), np.array([r.x])
-    simplex = np.vstack([k0] + [k0 + step * e for e in np.eye(k0.size)])
-    r = minimize(f, k0, method="Nelder-Mead",
-                 options={"initial_simplex": simplex, "xatol": 1e-11, "fatol": 1e-14,
-                          "maxiter": 2000})
-    return float(r.fun), np.asarray(r.x)
-
-
-def floquet_gaps(drive: Drive, mesh: FloquetMesh, *, refine: bool = True,
-                 candidates: int = 3) -> FloquetGaps:
+def floquet_gaps(drive: Drive, mesh: FloquetMesh, *, refine: bool = True) -> FloquetGaps:
     """Gaps at quasienergy 0 and pi/T from a mesh, each minimum refined off the grid.
 
-    The lowest ``candidates`` local minima of ``min_j |eps_j|`` (resp. ``pi/T - |eps_j|``) on
-    the mesh are polished with scipy.optimize; the closings are where ``U(k)`` has eigenvalue
-    +1 (resp. -1). Both distances are cone-shaped at a closing, which Nelder-Mead handles.
+    The local minima of ``min_j |eps_j|`` (resp. ``pi/T - |eps_j|``) on the mesh that could
+    hide a lower value are polished in continuous k
+    (:func:`~sweepcli.physics.spectrum.polish_minima` on the squared distance, with the
+    Lipschitz constant of :func:`distance_bound`); ``U(k)`` off the mesh comes from the stacked
+    factors at the mesh's slicing. The closings are where ``U(k)`` has eigenvalue +1 (resp. -1),
+    where both distances are cone-shaped.
     """
     T = drive.period
     d0, dpi = gap_distances(mesh.eps, T)
     dim = mesh.k.shape[-1]
     kflat = mesh.k.reshape(-1, dim)
-    step = 2 * np.pi / mesh.k.shape[0]
-    stack = FactorStack(drive.factors(slices=mesh.slices))
-
-    def eps_at(k: np.ndarray) -> np.ndarray:
-        return quasienergy_values(stack.operator(k), T)
+    stack = FactorStack(drive.factors(slices=mesh.slices)) if refine else None
+    lipschitz = distance_bound(drive, mesh.slices) if refine else 0.0
 
     out = []
     for which, dist in ((0, d0), (1, dpi)):
-        idx = _local_minima(dist, candidates)
-        best, kbest = float(dist.ravel()[idx[0]]), kflat[idx[0]]
-        grid = best
+        grid_i = int(np.argmin(dist))
+        grid = float(dist.ravel()[grid_i])
         if refine:
-            for i in idx:
-                def f(k: np.ndarray, which: int = which) -> float:
-                    g0, gpi = gap_distances(eps_at(k), T)
-                    return float(g0 if which == 0 else gpi)
-                val, kk = _refine_min(f, kflat[i], step)
-                if val < best:
-                    best, kbest = val, kk
-        out.append((2 * max(best, 0.0), _wrap(kbest), 2 * grid))
+            def f(k: np.ndarray, which: int = which) -> np.ndarray:
+                return gap_distances(quasienergy_values(stack.operator(k), T), T)[which]
+            best, kbest = polish_minima(f, dist, mesh.k, lipschitz, square=True)
+        else:
+            best, kbest = grid, kflat[grid_i]
+        out.append((2 * max(best, 0.0), wrap_k(kbest), 2 * grid))
     (g0, k0, gg0), (gpi, kpi, ggpi) = out
     return FloquetGaps(g0, k0, gpi, kpi, gg0, ggpi, mesh.converged, mesh.slices)
 
@@ -610,12 +611,12 @@ def frame_times(drive: Drive, chiral: np.ndarray, times: Sequence[float] | None
     return drive.symmetric_times(chiral)
 
 
-def _frames_on(drive: Drive, k: np.ndarray, t1: float, t2: float
+def _frames_on(drive: Drive, k: np.ndarray, t1: float, t2: float, slicing: Slicing | None = None
                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool]:
     T = drive.period
-    e1 = floquet_evolution(drive, k, start=t1)
-    e2 = floquet_evolution(drive, k, start=t2)
-    ef = floquet_evolution(drive, k, start=t1, stop=t1 + T / 2)
+    e1 = floquet_evolution(drive, k, start=t1, slicing=slicing)
+    e2 = floquet_evolution(drive, k, start=t2, slicing=slicing)
+    ef = floquet_evolution(drive, k, start=t1, stop=t1 + T / 2, slicing=slicing)
     return e1.u, e2.u, ef.u, e1.converged and e2.converged and ef.converged
 
 
@@ -640,7 +641,8 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
                     origin: Sequence[float] | None = None,
                     direction: Sequence[float] | None = None, gap_tol: float = 1e-6,
                     kmesh_n: int = inv.WINDING_KMESH, max_kmesh: int = 4096,
-                    phase_tol: float = inv.PHASE_TOL) -> ChiralWindings:
+                    phase_tol: float = inv.PHASE_TOL, slicing: Slicing | None = None
+                    ) -> ChiralWindings:
     """``nu_0`` and ``nu_pi`` of a chiral 1D drive (or along a line of a 2D drive).
 
     Parameters
@@ -654,6 +656,8 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
         (default: the 1D Brillouin zone).
     kmesh_n, max_kmesh, phase_tol : the mesh is doubled until the largest phase step of the
         determinants is below ``phase_tol`` on two meshes that agree.
+    slicing : the drive's time slicing if already decided
+        (:func:`~sweepcli.physics.drive.decide_slicing`); otherwise converged per frame and mesh.
 
     Raises
     ------
@@ -666,7 +670,7 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
     t1, t2 = frame_times(drive, g, times)
 
     def measure(n: int) -> tuple[ChiralWindings, float]:
-        u1, u2, f, ok = _frames_on(drive, _line(origin, direction, n), t1, t2)
+        u1, u2, f, ok = _frames_on(drive, _line(origin, direction, n), t1, t2, slicing)
         if not ok:
             return ChiralWindings(None, None, None, None, math.nan, math.nan, n,
                                   Reason.NOT_CONVERGED), math.pi
@@ -735,8 +739,8 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                          chiral: np.ndarray, *, origin: Sequence[float],
                          direction: Sequence[float], times: Sequence[float] | None = None,
                          gap_tol: float = 1e-6, kmesh_n: int = inv.WINDING_KMESH,
-                         max_kmesh: int = 4096, phase_tol: float = inv.PHASE_TOL
-                         ) -> list[SectorWinding]:
+                         max_kmesh: int = 4096, phase_tol: float = inv.PHASE_TOL,
+                         slicing: Slicing | None = None) -> list[SectorWinding]:
     """Windings at the 0 and pi gaps of each eigen-sector of ``S`` on a line of the BZ.
 
     On the line ``k(s) = origin + s direction`` (reduced coordinates, ``s`` in ``[0, 2 pi)``,
@@ -747,7 +751,8 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
     ``nu_0``, ``nu_pi`` follow from the same symmetric-frame construction as
     :func:`chiral_windings` (static: the winding of ``det P_- H_s P_+``). A sector whose
     chiral operator has unequal numbers of +1 and -1 eigenvalues has no winding (its result is
-    missing with ``Reason.SECTOR_GAP_CLOSED``, the sector being gapless at 0).
+    missing with ``Reason.SECTOR_GAP_CLOSED``, the sector being gapless at 0). ``slicing`` as
+    in :func:`chiral_windings`.
 
     Raises
     ------
@@ -782,7 +787,7 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                 _commutator_check(s, h, "H(k)", line)
                 cache[n] = (h, None, None, True)
             else:
-                u1, u2, f, ok = _frames_on(source, k, t1, t2)
+                u1, u2, f, ok = _frames_on(source, k, t1, t2, slicing)
                 for u, t in ((u1, t1), (u2, t2)):
                     _commutator_check(s, u, f"U(k) of the frame at t = {t:g}", line)
                     _chiral_check(u, g, f"frame at t = {t:g}")

@@ -6,6 +6,10 @@ grid values), :func:`sweepcli.physics.floquet.transition_points` follows every e
 ``U(k*)`` by eigenvector overlap and finds its crossings of 0 and pi by root finding. A static
 job uses ``U = exp(-i tau H(k*))`` with ``tau`` small enough that phases stay within (-pi/2,
 pi/2): its 0 crossings are the zero-energy closings.
+
+A harmonic drive is evolved at the time slicing the measurements use
+(:func:`sweepcli.physics.measurements.driven.point_slicing`, decided once per grid point): a
+trial value between two grid values uses the finer slicing of the two.
 """
 
 from __future__ import annotations
@@ -15,16 +19,31 @@ import itertools
 import numpy as np
 
 from ..jobfile import Job
-from ..physics.drive import floquet_operator, hermitian_exponential
+from ..physics.drive import Slicing, floquet_operator, hermitian_exponential
 from ..physics.floquet import transition_points
+from ..physics.measurements.driven import point_slicing
 
 
 def _operator(job: Job, k: np.ndarray):
-    def u_of(index: int, axis: str):
+    decided: dict[int, Slicing] = {}
+
+    def slicing_at(line: list[int], values: np.ndarray, p: float) -> Slicing | None:
+        """The finer slicing of the grid points around ``p`` (at ``p`` itself on the grid)."""
+        if job.drive.kind == "static":
+            return None
+        j = int(np.searchsorted(values, p))
+        around = [line[j]] if j < len(values) and values[j] == p else \
+            [line[max(j - 1, 0)], line[min(j, len(line) - 1)]]
+        for i in around:
+            if i not in decided:
+                decided[i] = point_slicing(job.point(i))
+        return max((decided[i] for i in around), key=lambda s: s.slices)
+
+    def u_of(line: list[int], axis: str, values: np.ndarray):
         def at(p: float) -> np.ndarray:
-            point = job.point(index, {axis: p})
+            point = job.point(line[0], {axis: p})
             if point.drive is not None:
-                return floquet_operator(point.drive, k)
+                return floquet_operator(point.drive, k, slicing=slicing_at(line, values, p))
             h = point.tb.bloch(k)
             scale = float(np.max(np.sum(np.abs(h), axis=-1))) or 1.0
             return hermitian_exponential(h, 0.5 / scale)
@@ -44,8 +63,10 @@ def predict_transitions(job: Job) -> dict[str, np.ndarray]:
             continue
         others = [range(len(a.values)) if i != ai else [0] for i, a in enumerate(job.axes)]
         for multi in itertools.product(*others):
-            index = int(np.ravel_multi_index(multi, job.shape))
-            for t in transition_points(u_of(index, axis.name), axis.values):
+            line = [int(np.ravel_multi_index(multi[:ai] + (j,) + multi[ai + 1:], job.shape))
+                    for j in range(len(axis.values))]
+            at = u_of(line, axis.name, np.asarray(axis.values, dtype=float))
+            for t in transition_points(at, axis.values):
                 coords = [a.values[m] for a, m in zip(job.axes, multi)]
                 coords[ai] = t.value
                 rows.append((axis.name, *coords, t.gap, *(momenta[t.index] / (2 * np.pi))))

@@ -240,7 +240,7 @@ def test_driven_chain_pi_modes_at_low_frequency_are_counted_by_chiral_charge():
     drive = StepDrive(period, ((period / 2, a), (period / 2, b)))
     t1, _ = drive.symmetric_times(a.operators["chiral"])
     factors = drive.factors(start=t1)
-    windows = bd.floquet_windows(factors)
+    windows = bd.floquet_windows(drive)
     r = bd.floquet_box_modes(factors, (30,), windows, max_side=240, chiral=SZ)
     # Reference: U of the open chain by expm, in the same frame; chiral charges of the states
     # at quasienergy pi/T in each half of the chain.

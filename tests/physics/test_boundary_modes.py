@@ -270,8 +270,9 @@ def ssh_drive(theta1: float, theta2: float, period: float = 2.0) -> StepDrive:
 # chain. Crossing theta1 + theta2 = pi adds one pi mode per end.
 @pytest.mark.parametrize("theta1, theta2", [(0.3, 1.2), (1.2, 0.3), (2.4, 1.2), (1.2, 2.4)])
 def test_step_driven_ssh_end_modes_at_zero_and_pi(theta1, theta2):
-    factors = ssh_drive(theta1, theta2).factors()
-    windows = bd.floquet_windows(factors)
+    drive = ssh_drive(theta1, theta2)
+    factors = drive.factors()
+    windows = bd.floquet_windows(drive)
     # The gaps from the closed form: 2|theta1 - theta2|/T at 0 and 2(pi - theta1 - theta2)/T
     # ... folded into (0, 2 pi/T) at pi (T = 2).
     assert windows["0"].gap == pytest.approx(abs(theta1 - theta2), abs=1e-6)
@@ -289,7 +290,7 @@ def test_driven_chain_levels_match_a_plain_reference():
     period, cells = 2.0, 40
     drive = ssh_drive(1.2, 2.4, period)
     factors = drive.factors()
-    windows = bd.floquet_windows(factors)
+    windows = bd.floquet_windows(drive)
     u = np.eye(2 * cells, dtype=complex)
     for t, tb in factors:
         u = expm(-1j * t * samples.chain(tb, cells).toarray()) @ u
@@ -308,7 +309,7 @@ def test_driven_flake_sparse_and_dense_agree():
     # 0 gap only (the pi path of both solvers is checked on the chain above).
     drive = two_step("bbh", dict(gamma=0.5, lam=0.0), dict(gamma=0.0, lam=1.2))
     factors = drive.factors()
-    windows = {"0": bd.floquet_windows(factors)["0"]}
+    windows = {"0": bd.floquet_windows(drive)["0"]}
     dense = bd.floquet_box_modes(factors, (12, 12), windows, method="dense")["0"]
     sparse = bd.floquet_box_modes(factors, (12, 12), windows, method="sparse")["0"]
     assert dense.per_corner.tolist() == sparse.per_corner.tolist() == [1, 1, 1, 1]
@@ -319,8 +320,9 @@ def test_static_limit_of_a_drive():
     # Two identical steps: U = exp(-i H T), so with T small enough that the bands stay inside
     # (-pi/T, pi/T) the 0-gap results are the static ones and nothing sits at pi.
     tb = model("qwz", m=1.0)
-    factors = StepDrive(0.6, ((0.3, tb), (0.3, tb))).factors()
-    windows = bd.floquet_windows(factors)
+    drive = StepDrive(0.6, ((0.3, tb), (0.3, tb)))
+    factors = drive.factors()
+    windows = bd.floquet_windows(drive)
     assert windows["0"].gap == pytest.approx(bd.static_window(tb).gap, abs=1e-6)
     rib = bd.floquet_ribbon_modes(factors, 16, windows)
     assert rib["0"].chiral == bd.ribbon_modes(tb, 16, bd.static_window(tb)).chiral != 0
@@ -350,8 +352,9 @@ def rlbl(j_hop: float, delta: float, period: float = 5.0) -> StepDrive:
 def test_anomalous_drive_has_chiral_edge_modes_in_both_gaps():
     # Rudner et al. (2013): near J T/5 = pi/2 both bands have Chern number 0 but every gap
     # carries one chiral edge mode; the band between the gaps has C = n_pi - n_0 = 0.
-    factors = rlbl(0.9 * np.pi / 2, 0.3).factors()
-    windows = bd.floquet_windows(factors)
+    drive = rlbl(0.9 * np.pi / 2, 0.3)
+    factors = drive.factors()
+    windows = bd.floquet_windows(drive)
     a1 = bd.floquet_ribbon_modes(factors, 10, windows, open_axis=0)
     a2 = bd.floquet_ribbon_modes(factors, 10, windows, open_axis=1)
     for g in ("0", "pi"):
@@ -359,7 +362,7 @@ def test_anomalous_drive_has_chiral_edge_modes_in_both_gaps():
         assert a1[g].edge_gap < 1e-6
     assert a1["0"].chiral == a1["pi"].chiral
     # Weak driving with no potential: the bands touch at quasienergy 0.
-    weak = bd.floquet_windows(rlbl(0.3, 0.0).factors())
+    weak = bd.floquet_windows(rlbl(0.3, 0.0))
     r = bd.floquet_ribbon_modes(rlbl(0.3, 0.0).factors(), 10, weak)
     assert r["0"].reason == Reason.GAP_CLOSED and r["pi"].chiral == 0
 

@@ -33,16 +33,14 @@ from typing import Any
 
 from .. import boundary as bd
 from .. import samples
-from ..drive import StepDrive, converged_factors
-from ..lattice import kmesh
+from ..drive import StepDrive
 from ..point import Point, Quantity, Reason
 from ..registry import Param
 from . import MEASUREMENTS
+from .driven import point_gaps, point_slicing
 from .static import point_gap
 
 METHOD_CODE = {"dense": 0, "sparse": 1}
-#: Bulk mesh (points per direction) on which the time slicing of a smooth drive is converged.
-FACTOR_KMESH = 8
 _GAPS = {False: ("0",), True: ("0", "pi")}
 _AT = {"0": "at zero (quasi)energy", "pi": "at quasienergy pi/T"}
 _CORNERS = ("00", "10", "01", "11")
@@ -62,20 +60,21 @@ def point_windows(point: Point, fraction: float) -> dict[str, bd.Window]:
         return point.memo(("boundary.window", point.nocc, fraction),
                           lambda: {"0": bd.static_window(point.tb, point.nocc, fraction,
                                                          direct_gap=point_gap(point).gap)})
+    # The bulk quasienergy gaps the driven measurements memoise (one Floquet spectral layer).
     return point.memo(("boundary.floquet_windows", fraction),
-                      lambda: bd.floquet_windows(point_factors(point), fraction))
+                      lambda: bd.floquet_windows(point.drive, fraction, gaps=point_gaps(point)))
 
 
 def point_factors(point: Point) -> list | None:
     """The drive's steps over one period, or ``None`` if a smooth drive's slicing failed.
 
-    :func:`~sweepcli.physics.drive.converged_factors` doubles the slices of a harmonic drive
-    until the bulk ``U(k)`` on a coarse mesh stops changing; step and kick drives return their
-    own factors.
+    The slicing is the point's (:func:`~sweepcli.physics.measurements.driven.point_slicing`,
+    decided once and shared with the bulk measurements); step and kick drives return their own
+    factors.
     """
     def compute() -> list | None:
-        fs, ev = converged_factors(point.drive, kmesh(FACTOR_KMESH, point.drive.dim))
-        return list(fs) if ev.converged else None
+        slicing = point_slicing(point)
+        return list(point.drive.factors(slices=slicing.slices)) if slicing.converged else None
 
     return point.memo(("boundary.factors",), compute)
 

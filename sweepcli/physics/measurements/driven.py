@@ -2,10 +2,12 @@
 
 ``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drive`), ``point.tb`` the
 static model (its cell operators, e.g. ``"chiral"``, are used by the chiral invariants). The
-Floquet operator on a mesh is memoised in ``point.cache`` under ``("floquet_mesh", n)`` and the
-gaps under ``("floquet_gaps", n, refine)``; the invariants use the gaps at the default settings,
-so a job measuring ``quasienergy_gaps`` with its defaults and an invariant diagonalises
-``U(k)`` on that mesh once.
+time slicing of a smooth drive is decided once per point (:func:`point_slicing`, memoised under
+``("drive_slicing",)``) and used by every evolution of every measurement, open samples
+included. The Floquet operator on a mesh is memoised in ``point.cache`` under
+``("floquet_mesh", n)`` and the gaps under ``("floquet_gaps", n, refine)``; the invariants and
+the boundary windows use the gaps at the default settings, so a job measuring
+``quasienergy_gaps`` with its defaults and an invariant diagonalises ``U(k)`` on that mesh once.
 
 Momentum locations are stored as ``k_i / 2 pi`` in ``[-0.5, 0.5)``, as for static gaps.
 """
@@ -19,13 +21,14 @@ import numpy as np
 
 from .. import floquet as fl
 from .. import invariants as inv
+from ..drive import Slicing, decide_slicing
 from ..lattice import pauli
 from ..point import Point, Quantity, Reason
 from ..registry import Param
 from . import MEASUREMENTS
 
 #: Default mesh of the quasienergy-gap search (points per direction; minima are refined).
-GAP_KMESH = 32
+GAP_KMESH = fl.GAP_KMESH
 #: Largest number of symmetry sectors ``line_winding`` stores.
 MAX_SECTORS = 4
 
@@ -39,9 +42,15 @@ def _dim(point: Point) -> int:
     return point.drive.dim
 
 
+def point_slicing(point: Point) -> Slicing:
+    """The drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), memoised."""
+    return point.memo(("drive_slicing",), lambda: decide_slicing(point.drive))
+
+
 def point_mesh(point: Point, n: int) -> fl.FloquetMesh:
-    """``U(k)`` diagonalised on an ``n^d`` mesh, memoised."""
-    return point.memo(("floquet_mesh", n), lambda: fl.floquet_mesh(point.drive, n, _dim(point)))
+    """``U(k)`` diagonalised on an ``n^d`` mesh at the point's slicing, memoised."""
+    return point.memo(("floquet_mesh", n),
+                      lambda: fl.floquet_mesh(point.drive, n, _dim(point), point_slicing(point)))
 
 
 def point_gaps(point: Point, kmesh: int = GAP_KMESH, refine: bool = True) -> fl.FloquetGaps:
@@ -73,8 +82,9 @@ def _gap_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
 @MEASUREMENTS.register(
     "quasienergy_gaps",
     description="quasienergy gaps at 0 and pi/T of the Floquet operator and where they close",
-    source="uniform k-mesh, lowest local minima refined in continuous k with scipy.optimize; "
-           "closings are where U(k) has eigenvalue +1 or -1",
+    source="uniform k-mesh; every local minimum that a Lipschitz bound leaves able to hide a "
+           "lower gap refined in continuous k with scipy.optimize; closings are where U(k) has "
+           "eigenvalue +1 or -1",
     params=(Param("kmesh", kind="int", default=GAP_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("refine", kind="bool", default=True, doc="refine minima in continuous k",
@@ -257,7 +267,7 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     r = fl.chiral_windings(point.drive, _chiral_op(point),
                            times=_times(times, point.drive.period),
                            gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
-                           phase_tol=phase_tol)
+                           phase_tol=phase_tol, slicing=point_slicing(point))
     return {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh, "reason": r.reason}
 
 
@@ -327,11 +337,13 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
     n = source.norb
     s = _matrix(operator, n, point.tb.operators)
     org = np.zeros(source.dim) if origin is None else np.asarray(origin, dtype=float)
+    slicing = point_slicing(point) if point.drive is not None else None
     sectors = fl.line_sector_windings(source, s, _chiral_op(point), origin=org,
                                       direction=direction,
                                       times=None if point.drive is None
                                       else _times(times, point.drive.period),
-                                      gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh)
+                                      gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
+                                      slicing=slicing)
     if len(sectors) > MAX_SECTORS:
         raise ValueError(f"the operator has {len(sectors)} distinct eigenvalues; at most "
                          f"{MAX_SECTORS} sectors are stored")

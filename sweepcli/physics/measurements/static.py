@@ -49,8 +49,8 @@ _MAX_KMESH_DOC = "largest k-mesh (points per direction) the convergence policy m
 @MEASUREMENTS.register(
     "gap",
     description="smallest direct bulk gap above the occupied bands and where it occurs",
-    source="uniform k-mesh, then the lowest local minima refined with scipy.optimize (BFGS on "
-           "the squared gap)",
+    source="uniform k-mesh, then every local minimum that a Lipschitz bound on the bands leaves "
+           "able to hide a lower gap refined with scipy.optimize (BFGS on the squared gap)",
     params=(Param("kmesh", kind="int", default=GAP_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("refine", kind="bool", default=True, doc="refine minima in continuous k",
