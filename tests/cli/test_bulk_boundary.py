@@ -127,7 +127,7 @@ def _reference_pi_corner_modes(omega: float, side: int, halfwidth: float) -> np.
 
     s0, sx, sy = np.eye(2), np.array([[0, 1], [1, 0]]), np.array([[0, -1j], [1j, 0]])
     sz = np.diag([1.0, -1.0])
-    tz, tx, ty = np.kron(sz, s0), np.kron(sx, s0), np.kron(sy, s0)
+    tz, ty = np.kron(sz, s0), np.kron(sy, s0)
 
     def flake(m: float) -> np.ndarray:
         n = side * side * 4

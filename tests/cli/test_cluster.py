@@ -7,8 +7,8 @@ import pytest
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.run.shards import Shard, parse_shard
 from sweepcli.errors import SweepError
+from sweepcli.run.shards import Shard, parse_shard
 
 from .test_end_to_end import assert_same_content
 

@@ -23,7 +23,6 @@ from ..conftest import JOBS
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.collections import QuadMesh  # noqa: E402
-from matplotlib.colors import to_rgba  # noqa: E402
 
 DEMOS = sorted(p.name for p in JOBS.glob("*.toml"))
 
