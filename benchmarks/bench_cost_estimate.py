@@ -27,7 +27,6 @@ from sweepcli.jobfile import load_job  # noqa: E402
 from sweepcli.run.cost import estimate  # noqa: E402
 from sweepcli.run.worker import evaluate_point  # noqa: E402
 
-
 SAMPLE_JOBS = {
     "sample: chain end modes": """
 [model]

@@ -87,7 +87,8 @@ def main() -> None:
     t2 = timed_run(job, 2)  # loky reuses its workers: the steady state of a long sweep
     print(f"200 points of bhz gap + spin_chern: bare loop {bare:.2f} s")
     print(f"  runner, 1 worker:            {t1:.2f} s   overhead {100 * (t1 / bare - 1):+.1f} %")
-    print(f"  runner + checkpoint each chunk: {t1_store:.2f} s   overhead {100 * (t1_store / bare - 1):+.1f} %")
+    print(f"  runner + checkpoint each chunk: {t1_store:.2f} s   "
+          f"overhead {100 * (t1_store / bare - 1):+.1f} %")
     print(f"  runner, 2 workers, cold:     {t2_cold:.2f} s   speed-up {t1 / t2_cold:.2f}x")
     print(f"  runner, 2 workers, warm:     {t2:.2f} s   speed-up {t1 / t2:.2f}x (aim >= 1.8x)")
 
@@ -103,7 +104,8 @@ def main() -> None:
                               env=dict(os.environ, TQDM_DISABLE="1"))
         rss_kib = int(proc.stdout.strip().splitlines()[-1])
         arrays = n * (8 * 3 + 1 + 1 + 8)  # gap, gap_k1, gap_k2, reason, done, failure pointer
-        print(f"{n:>6} points: peak RSS {rss_kib / 1024:.1f} MiB; result arrays {arrays / 2**20:.2f} MiB")
+        print(f"{n:>6} points: peak RSS {rss_kib / 1024:.1f} MiB; "
+              f"result arrays {arrays / 2**20:.2f} MiB")
 
 
 if __name__ == "__main__":

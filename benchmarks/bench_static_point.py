@@ -25,7 +25,8 @@ from sweepcli.physics.measurements import MEASUREMENTS  # noqa: E402
 from sweepcli.physics.models import MODELS  # noqa: E402
 from sweepcli.physics.point import Point  # noqa: E402
 
-SAMPLE = {"bhz": dict(M=1.0, mix=0.1), "bbh": dict(gamma=0.4), "bhz_corner": dict(m=1.0, delta2=0.5),
+SAMPLE = {"bhz": dict(M=1.0, mix=0.1), "bbh": dict(gamma=0.4),
+          "bhz_corner": dict(m=1.0, delta2=0.5),
           "qwz": dict(m=1.0), "haldane": dict(t2=0.15, phi=1.0, M=0.2)}
 
 
@@ -50,7 +51,8 @@ def loop(tb, n: int, nocc: int) -> int:
         for j in range(n):
             ip, jp = (i + 1) % n, (j + 1) % n
             u = (link(vecs[i][j], vecs[ip][j]) * link(vecs[ip][j], vecs[ip][jp])
-                 * np.conj(link(vecs[i][jp], vecs[ip][jp])) * np.conj(link(vecs[i][j], vecs[i][jp])))
+                 * np.conj(link(vecs[i][jp], vecs[ip][jp]))
+                 * np.conj(link(vecs[i][j], vecs[i][jp])))
             total += np.angle(u)
     return int(round(-total / (2 * np.pi)))
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import sys
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 
@@ -43,7 +43,7 @@ def _version(value: bool) -> None:
 def main(ctx: typer.Context,
          verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
          debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks of errors.")] = False,
-         version: Annotated[Optional[bool], typer.Option("--version", callback=_version,
+         version: Annotated[bool | None, typer.Option("--version", callback=_version,
                                                          is_eager=True, help="Print the version.")] = None,
          ) -> None:
     ctx.obj = State(verbose=verbose, debug=debug)
@@ -72,16 +72,16 @@ def _parse_at(items: list[str]) -> dict[str, float]:
 @app.command()
 def run(ctx: typer.Context,
         job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
-        output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Results file (default: [output] path of the job, with a shard suffix for a shard).")] = None,
+        output: Annotated[Path | None, typer.Option("--output", "-o", help="Results file (default: [output] path of the job, with a shard suffix for a shard).")] = None,
         workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes.")] = 1,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
         resume: Annotated[bool, typer.Option("--resume", help="Continue the results file if it exists (same job only); start it otherwise.")] = False,
-        shard: Annotated[Optional[str], typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
-        chunk_size: Annotated[Optional[int], typer.Option("--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each", help="Grid points per task.")] = None,
+        shard: Annotated[str | None, typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
+        chunk_size: Annotated[int | None, typer.Option("--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each", help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
-        scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
-        dask_cluster: Annotated[Optional[str], typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
+        scheduler: Annotated[str | None, typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
+        dask_cluster: Annotated[str | None, typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
         verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
@@ -243,7 +243,7 @@ def batch(ctx: typer.Context,
           workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes per task.")] = 1,
           directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
           force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
-          seconds_per_point: Annotated[Optional[float], typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`, or the timed point if longer).")] = None,
+          seconds_per_point: Annotated[float | None, typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`, or the timed point if longer).")] = None,
           time_one: Annotated[bool, typer.Option("--time-one/--no-time-one", help="Evaluate the middle grid point once here and size the wall time by the longer of its time and the estimate.")] = True,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
@@ -296,11 +296,11 @@ def show(ctx: typer.Context,
 @app.command("map")
 def map_(ctx: typer.Context,
          results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-         var: Annotated[Optional[str], typer.Option("--var", help="Variable to draw (default: the job's main invariant).")] = None,
-         output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
-         at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a value off the axis is refused).")] = None,
+         var: Annotated[str | None, typer.Option("--var", help="Variable to draw (default: the job's main invariant).")] = None,
+         output: Annotated[Path | None, typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+         at: Annotated[list[str] | None, typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a value off the axis is refused).")] = None,
          terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
-         width: Annotated[Optional[int], typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
+         width: Annotated[int | None, typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
          mark_disagree: Annotated[bool, typer.Option("--mark-disagree", help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
@@ -332,9 +332,9 @@ def map_(ctx: typer.Context,
 @app.command()
 def boundaries(ctx: typer.Context,
                results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-               var: Annotated[Optional[str], typer.Option("--var", help="Integer variable (default: the first invariant).")] = None,
-               output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
-               at: Annotated[Optional[list[str]], typer.Option("--at", help="Fix a swept parameter: NAME=VALUE.")] = None,
+               var: Annotated[str | None, typer.Option("--var", help="Integer variable (default: the first invariant).")] = None,
+               output: Annotated[Path | None, typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+               at: Annotated[list[str] | None, typer.Option("--at", help="Fix a swept parameter: NAME=VALUE.")] = None,
                ) -> None:
     """Phase boundaries of a two-parameter map as polylines in CSV (value, line, x, y)."""
     from .report.boundaries import boundaries_csv, phase_boundaries
@@ -357,11 +357,11 @@ def boundaries(ctx: typer.Context,
 @app.command()
 def sample(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-           at: Annotated[Optional[list[str]], typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
-           kind: Annotated[Optional[str], typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement, else what its invariants predict: ribbon for Chern-type, flake for line windings, chain in 1D).")] = None,
-           size: Annotated[Optional[int], typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
+           at: Annotated[list[str] | None, typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
+           kind: Annotated[str | None, typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement, else what its invariants predict: ribbon for Chern-type, flake for line windings, chain in 1D).")] = None,
+           size: Annotated[int | None, typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
            gap: Annotated[str, typer.Option("--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
-           output: Annotated[Optional[Path], typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+           output: Annotated[Path | None, typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
            ) -> None:
     """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
     from .report.sample_plot import draw_sample
@@ -449,9 +449,9 @@ def diff_(ctx: typer.Context,
 @app.command()
 def export(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-           var: Annotated[Optional[list[str]], typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
-           output: Annotated[Optional[Path], typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
-           table_name: Annotated[Optional[str], typer.Option("--table", help="Write a table stored beside the grid instead, one row per entry: transitions (the predicted gap closings).")] = None,
+           var: Annotated[list[str] | None, typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
+           output: Annotated[Path | None, typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
+           table_name: Annotated[str | None, typer.Option("--table", help="Write a table stored beside the grid instead, one row per entry: transitions (the predicted gap closings).")] = None,
            ) -> None:
     """Write variables of RESULTS as CSV, one row per grid point (missing values empty)."""
     from .report.export import export_table, table_export, write_csv

@@ -93,11 +93,13 @@ def parse(text: str, table: str = "", key: str = "") -> Expression:
     try:
         tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
-        raise ExpressionError(f"{text!r} is not a valid arithmetic expression ({exc.msg})") from None
+        raise ExpressionError(
+            f"{text!r} is not a valid arithmetic expression ({exc.msg})") from None
     names: set[str] = set()
     called = {id(n.func) for n in ast.walk(tree) if isinstance(n, ast.Call)}
     for node in ast.walk(tree):
-        if isinstance(node, (ast.Expression, ast.Load)) or type(node) in _BINARY or type(node) in _UNARY:
+        if (isinstance(node, (ast.Expression, ast.Load)) or type(node) in _BINARY
+                or type(node) in _UNARY):
             continue
         if isinstance(node, ast.BinOp):
             if type(node.op) not in _BINARY:
@@ -118,8 +120,9 @@ def parse(text: str, table: str = "", key: str = "") -> Expression:
         elif isinstance(node, ast.Call):
             if not isinstance(node.func, ast.Name) or node.func.id not in FUNCTIONS:
                 called = node.func.id if isinstance(node.func, ast.Name) else ast.unparse(node.func)
-                raise ExpressionError(f"{text!r} calls {called!r}, which is not an allowed function "
-                                      f"(allowed: {', '.join(FUNCTIONS)}).{suggest(called, FUNCTIONS)}")
+                raise ExpressionError(
+                    f"{text!r} calls {called!r}, which is not an allowed function "
+                    f"(allowed: {', '.join(FUNCTIONS)}).{suggest(called, FUNCTIONS)}")
             if node.keywords or len(node.args) != 1:
                 raise ExpressionError(f"{text!r}: {node.func.id} takes exactly one argument, "
                                       f"e.g. {node.func.id}(x)")

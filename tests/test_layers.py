@@ -12,7 +12,8 @@ def test_physics_imports_no_io_or_cli_libraries():
     code = ("import sys, sweepcli.physics.models, sweepcli.physics.measurements, "
             "sweepcli.physics.lattice\n"
             "bad = [m for m in ('h5py', 'typer', 'matplotlib', 'dask', 'joblib', 'tqdm', "
-            "'tomli_w', 'sweepcli.store', 'sweepcli.cli', 'sweepcli.jobfile') if m in sys.modules]\n"
+            "'tomli_w', 'sweepcli.store', 'sweepcli.cli', 'sweepcli.jobfile') "
+            "if m in sys.modules]\n"
             "print(','.join(bad))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""

@@ -209,7 +209,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     normalised = {
         "job": {"name": name, "title": title, "description": description},
         "model": _normalised_model(model, model_t),
-        "params": {k: (v if not isinstance(v, complex) else str(v)) for k, v in sorted(fixed.items())}
+        "params": {k: (v if not isinstance(v, complex) else str(v))
+                   for k, v in sorted(fixed.items())}
                   | {k: e.text for k, e in sorted(exprs.items())},
         # Labels (doc, units) describe an axis and are no part of the job's identity.
         "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
@@ -220,7 +221,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
             | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
            if refine is not None else {}),
         "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
-                   | {m: {k: _plain(v) for k, v in opts if v is not None} for m, opts in measurements},
+                   | {m: {k: _plain(v) for k, v in opts if v is not None}
+                      for m, opts in measurements},
     }
     normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
     job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
@@ -252,7 +254,8 @@ def _refine(ck: Checker, t: dict, measurements: list, dim: int, axes: tuple,
     if by not in ints:
         raise ck.fail("refine", "by", "an integer quantity of the job's measurements (" +
                       (", ".join(ints) or "none measured") + ")", by, suggest(str(by), ints))
-    depth = ck.number("refine", "depth", t.get("depth", 3), Param("depth", kind="int", low=1, high=10))
+    depth = ck.number("refine", "depth", t.get("depth", 3),
+                      Param("depth", kind="int", low=1, high=10))
     gap_below = t.get("gap_below")
     if gap_below is not None:
         gap_below = float(ck.number("refine", "gap_below", gap_below,
@@ -384,7 +387,8 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
             ck.only(table, term, ["param", "amplitude", "harmonic", "phase"])
             param = term.get("param")
             if param not in model_params:
-                raise ck.fail(table, "param", "a model parameter (" + ", ".join(sorted(model_params))
+                raise ck.fail(table, "param",
+                              "a model parameter (" + ", ".join(sorted(model_params))
                               + ")", param, suggest(str(param), model_params))
             n = ck.number(table, "harmonic", term.get("harmonic", 1),
                           Param("harmonic", kind="int", low=1))
@@ -405,7 +409,8 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
 def _plain(value: Any) -> Any:
     """A TOML-writable form: complex matrices become nested lists of numbers or "a+bj" strings."""
     if isinstance(value, np.ndarray):
-        return [[(float(x.real) if x.imag == 0 else repr(complex(x))) for x in row] for row in value]
+        return [[(float(x.real) if x.imag == 0 else repr(complex(x))) for x in row]
+                for row in value]
     return value
 
 
@@ -497,8 +502,10 @@ def _custom_model(ck: Checker, t: dict) -> CustomModel:
         try:
             vectors = np.array(lat, dtype=float)
         except (TypeError, ValueError):
-            raise ck.fail("model", "lattice", "a list of d lattice vectors of length d", lat) from None
-        if vectors.ndim != 2 or vectors.shape[0] != vectors.shape[1] or vectors.shape[0] not in (1, 2) \
+            raise ck.fail("model", "lattice", "a list of d lattice vectors of length d",
+                          lat) from None
+        if vectors.ndim != 2 or vectors.shape[0] != vectors.shape[1] \
+                or vectors.shape[0] not in (1, 2) \
                 or abs(np.linalg.det(vectors)) < 1e-12:
             raise ck.fail("model", "lattice", "1 or 2 linearly independent vectors of matching "
                           "length", lat)

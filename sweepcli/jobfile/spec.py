@@ -219,7 +219,8 @@ class Job:
 
     def point(self, index: int, overrides: Mapping[str, float] | None = None) -> Point:
         values = self.values_at(index, overrides)
-        drive = self.drive.compile(values, self.build_model) if self.drive.kind != "static" else None
+        drive = (self.drive.compile(values, self.build_model) if self.drive.kind != "static"
+                 else None)
         if self.drive.always_set:
             # Parameters that only the steps set: the static model is that of the first step.
             values.update({k: e(values) for k, e in self.drive.steps[0][1] if k not in values})

@@ -29,7 +29,6 @@ import itertools
 import math
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Union
 
 import numpy as np
 import scipy.sparse as sp
@@ -38,7 +37,7 @@ from scipy.sparse.linalg import expm_multiply
 from .lattice import TightBinding, kmesh
 
 Factor = tuple[float, TightBinding]
-Matrix = Union[np.ndarray, sp.spmatrix, sp.sparray]
+Matrix = np.ndarray | sp.spmatrix | sp.sparray
 
 #: Relative tolerance for "durations sum to the period" and for matching times.
 TIME_RTOL = 1e-9
@@ -373,7 +372,7 @@ class KickDrive:
         return out
 
 
-Drive = Union[StepDrive, HarmonicDrive, KickDrive]
+Drive = StepDrive | HarmonicDrive | KickDrive
 
 
 # --------------------------------------------------------------------------------------------

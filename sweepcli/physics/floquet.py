@@ -39,8 +39,16 @@ import numpy as np
 from scipy.optimize import brentq, linear_sum_assignment
 
 from . import invariants as inv
-from .drive import (Drive, FactorStack, HarmonicDrive, Slicing, StepDrive, evolve,
-                    floquet_evolution, hermitian_exponential)
+from .drive import (
+    Drive,
+    FactorStack,
+    HarmonicDrive,
+    Slicing,
+    StepDrive,
+    evolve,
+    floquet_evolution,
+    hermitian_exponential,
+)
 from .lattice import TightBinding, kmesh
 from .point import Reason
 from .spectrum import polish_minima, velocity_bound, wrap_k

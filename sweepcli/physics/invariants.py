@@ -52,10 +52,10 @@ modulo ``2 pi``, and substituting them keeps the total an integer: it is the FHS
 conforming non-uniform mesh in which every link bounds exactly two cells. Where each of these
 cells is below ``flux_tol`` this resolves the flux that a single phase in ``(-pi, pi]`` cannot;
 the acceptance evidence (every elementary cell below the bound, two meshes agree) is
-unchanged, only the mesh is finer where the curvature is concentrated. Subdivision is by :data:`SUBDIVIDE` per
-level for at most :data:`SUBDIVIDE_LEVELS` levels, and only when at most :data:`MAX_HOT`
-plaquettes are above the bound (more means the whole mesh is too coarse, so the next mesh is
-taken).
+unchanged, only the mesh is finer where the curvature is concentrated. Subdivision is by
+:data:`SUBDIVIDE` per level for at most :data:`SUBDIVIDE_LEVELS` levels, and only when at most
+:data:`MAX_HOT` plaquettes are above the bound (more means the whole mesh is too coarse, so the
+next mesh is taken).
 """
 
 from __future__ import annotations

@@ -68,7 +68,8 @@ class TightBinding:
         onsite = np.atleast_2d(np.asarray(self.onsite, dtype=complex))
         n = onsite.shape[0]
         pos = np.asarray(self.orbital_positions, dtype=float).reshape(n, a.shape[0])
-        hops = {tuple(int(x) for x in r): np.asarray(t, dtype=complex) for r, t in self.hoppings.items()}
+        hops = {tuple(int(x) for x in r): np.asarray(t, dtype=complex)
+                for r, t in self.hoppings.items()}
         for r, t in hops.items():
             if len(r) != a.shape[0]:
                 raise ValueError(f"hopping displacement {r} has the wrong dimension")
@@ -92,7 +93,8 @@ class TightBinding:
         return self.onsite.shape[0]
 
     def hermiticity_error(self) -> float:
-        """Largest deviation of ``onsite`` from Hermiticity (hoppings are Hermitian by construction)."""
+        """Largest deviation of ``onsite`` from Hermiticity (hoppings are Hermitian by
+        construction)."""
         return float(np.max(np.abs(self.onsite - self.onsite.conj().T), initial=0.0))
 
     def _stacked(self) -> tuple[np.ndarray, np.ndarray]:
@@ -103,7 +105,8 @@ class TightBinding:
         return disp, mats
 
     def bloch(self, k: np.ndarray) -> np.ndarray:
-        """Bloch Hamiltonian for reduced momenta ``k`` of shape ``(..., d)``; returns ``(..., n, n)``."""
+        """Bloch Hamiltonian for reduced momenta ``k`` of shape ``(..., d)``; returns
+        ``(..., n, n)``."""
         k = np.asarray(k, dtype=float)
         disp, mats = self._stacked()
         phase = np.exp(1j * (k @ disp.T))  # (..., m)
@@ -111,7 +114,8 @@ class TightBinding:
         return self.onsite + h + np.swapaxes(h, -1, -2).conj()
 
     def bloch_derivative(self, k: np.ndarray, axis: int) -> np.ndarray:
-        """``dH/dk_axis`` for reduced momenta ``k`` of shape ``(..., d)``; returns ``(..., n, n)``."""
+        """``dH/dk_axis`` for reduced momenta ``k`` of shape ``(..., d)``; returns
+        ``(..., n, n)``."""
         k = np.asarray(k, dtype=float)
         disp, mats = self._stacked()
         phase = 1j * disp[:, axis] * np.exp(1j * (k @ disp.T))

@@ -64,7 +64,8 @@ def _shift(length: int, step: int, periodic: bool) -> sp.csr_matrix:
     return sp.csr_matrix((np.ones(src.size), (src, dst)), shape=(length, length))
 
 
-def _cell_shift(shape: tuple[int, ...], r: tuple[int, ...], periodic: Sequence[bool]) -> sp.csr_matrix:
+def _cell_shift(shape: tuple[int, ...], r: tuple[int, ...],
+                periodic: Sequence[bool]) -> sp.csr_matrix:
     """Cell-space matrix ``S[c, c + R] = 1`` for the C-ordered box (Kronecker product of axes)."""
     out = sp.csr_matrix(np.ones((1, 1)))
     for length, step, per in zip(shape, r, periodic):
@@ -105,7 +106,8 @@ def open_hamiltonian(tb: TightBinding, shape: int | Sequence[int],
 
 
 def chain(tb: TightBinding, cells: int) -> sp.csr_matrix:
-    """Open chain of ``cells`` cells of a 1D model: :func:`open_hamiltonian` with shape ``(cells,)``."""
+    """Open chain of ``cells`` cells of a 1D model: :func:`open_hamiltonian` with shape
+    ``(cells,)``."""
     if tb.dim != 1:
         raise ValueError(f"a chain needs a 1D model; this one is {tb.dim}D")
     return open_hamiltonian(tb, (cells,))
@@ -123,7 +125,8 @@ def flake(tb: TightBinding, lx: int, ly: int | None = None) -> sp.csr_matrix:
 
 
 def ribbon(tb: TightBinding, width: int, open_axis: int = 1) -> TightBinding:
-    """Ribbon of ``width`` cells, open along lattice direction ``open_axis``, periodic along the other.
+    """Ribbon of ``width`` cells, open along lattice direction ``open_axis``, periodic along the
+    other.
 
     Parameters
     ----------

@@ -207,7 +207,8 @@ def _job_table(results: Results, label: str) -> dict:
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ResultsError(f"{label}: its job_normalised attribute is not valid TOML ({exc}).") from None
+        raise ResultsError(
+            f"{label}: its job_normalised attribute is not valid TOML ({exc}).") from None
 
 
 def _changes(a: dict[str, Any], b: dict[str, Any]) -> list[Change]:
@@ -215,7 +216,8 @@ def _changes(a: dict[str, Any], b: dict[str, Any]) -> list[Change]:
     return [Change(k, a.get(k), b.get(k)) for k in keys if a.get(k) != b.get(k)]
 
 
-def compare_provenance(a: Results, b: Results, labels: tuple[str, str] = ("A", "B")) -> ProvenanceDiff:
+def compare_provenance(a: Results, b: Results,
+                       labels: tuple[str, str] = ("A", "B")) -> ProvenanceDiff:
     """Job keys (parsed ``job_normalised``), versions and other attributes that differ."""
     job = _changes(_flatten(_job_table(a, labels[0])), _flatten(_job_table(b, labels[1])))
     skip = IGNORED_ATTRS | JOB_ATTRS

@@ -184,7 +184,8 @@ def _transition_rows(results: Results, index: tuple) -> list[dict]:
     keep = np.ones(len(table["gap"]), bool)
     for a, i in zip(results.axes, index):
         if isinstance(i, int) and len(a.values) > 1:
-            keep &= np.isclose(table[a.name], a.values[i], rtol=0, atol=1e-12 * (1 + abs(a.values[i])))
+            keep &= np.isclose(table[a.name], a.values[i], rtol=0,
+                               atol=1e-12 * (1 + abs(a.values[i])))
     cols = list(table)
     rows = [{c: table[c][j] for c in cols} for j in np.flatnonzero(keep)]
     names = [a.name for a in results.axes]
@@ -418,7 +419,8 @@ def map_figure(results: Results, var: str | None = None, at: dict[str, float] | 
                                       label="bulk and boundary disagree"))
         drawn = set()
         for row in _transition_rows(results, index):
-            style = dict(color="k", ls=":") if row["gap"] == "pi" else dict(color="tab:red", ls="--")
+            style = (dict(color="k", ls=":") if row["gap"] == "pi"
+                     else dict(color="tab:red", ls="--"))
             ax.axvline(row[axis.name], lw=0.8, **style)
             if row["gap"] not in drawn:  # one legend entry per gap
                 drawn.add(row["gap"])

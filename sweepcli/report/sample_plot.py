@@ -218,9 +218,8 @@ def _match(full: np.ndarray, targets: np.ndarray, period: float | None) -> np.nd
 
 
 def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) -> dict:
-    from ..physics import boundary_counts
+    from ..physics import boundary_counts, samples
     from ..physics import inspect as ins
-    from ..physics import samples
     from ..physics.measurements import boundary as mb
 
     driven = factors is not None

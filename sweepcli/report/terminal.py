@@ -82,7 +82,8 @@ class Axis:
     values: np.ndarray
 
 
-def resample(codes: np.ndarray, ncols: int, nrows: int, reduce: str) -> tuple[np.ndarray, list, list]:
+def resample(codes: np.ndarray, ncols: int, nrows: int,
+             reduce: str) -> tuple[np.ndarray, list, list]:
     """Reduce ``codes`` (nx, ny) to at most (ncols, nrows) cells.
 
     ``reduce="nearest"`` keeps evenly spaced grid points (a phase map stays a sample of the

@@ -73,15 +73,18 @@ def scripts(job: Job, job_path: str, p: BatchPlan) -> dict[str, str]:
     """``{file name: script text}``: array job and merge job for Slurm and for PBS."""
     q = shlex.quote
     run_args = f"--resume --workers {p.workers} --no-progress"
-    merge_line = (f"sweepcli merge {q(job.output)} " + " ".join(q(s) for s in shard_outputs(job, p.tasks)))
+    merge_line = (f"sweepcli merge {q(job.output)} "
+                  + " ".join(q(s) for s in shard_outputs(job, p.tasks)))
     name = job.name
     head = (f"# sweepcli array job for {job_path}: {job.size} grid points in {p.tasks} shards of "
-            f"about {p.points_per_task} points.\n# Wall time: {SAFETY:g} x {p.seconds_per_point:.3g} s "
+            f"about {p.points_per_task} points.\n"
+            f"# Wall time: {SAFETY:g} x {p.seconds_per_point:.3g} s "
             f"per point ({p.basis}) + {MARGIN_S // 60} min;\n# memory from the estimate. Edit "
             "account and partition/queue below.\n")
+    submit = (f"# Submit:  jid=$(sbatch --parsable {name}.slurm.sh) && "
+              f"sbatch --dependency=afterok:$jid {name}.merge.slurm.sh\n")
     slurm = f"""#!/bin/bash
-{head}# Submit:  jid=$(sbatch --parsable {name}.slurm.sh) && sbatch --dependency=afterok:$jid {name}.merge.slurm.sh
-#SBATCH --job-name={name}
+{head}{submit}#SBATCH --job-name={name}
 #SBATCH --array=1-{p.tasks}
 #SBATCH --cpus-per-task={p.workers}
 #SBATCH --mem={p.memory_mb}M

@@ -156,7 +156,8 @@ def estimate(job: Job) -> Cost:
 
     At the grid points 1/6, 1/2 and 5/6 of the way through the grid, runs each measurement's
     kernel on its meshes or on two small meshes (an open-sample measurement once, at the first
-    of them), with one BLAS thread, scales to the configured meshes as the module docstring describes, and
+    of them), with one BLAS thread, scales to the configured meshes as the module docstring
+    describes, and
     averages; a second or two for the heaviest demo jobs.
     """
     from threadpoolctl import threadpool_limits

@@ -24,7 +24,8 @@ def evaluate_point(job: Job, index: int) -> Record:
             result = dict(MEASUREMENTS[name].func(point, **dict(options)))
             reason = result.pop("reason")
         except Exception as exc:  # noqa: BLE001 - any failure of one point is recorded, not fatal
-            result = {q.name: None for q in quantities_of(name, job.dim, job.drive.kind != "static")}
+            result = {q.name: None for q in quantities_of(name, job.dim,
+                                                          job.drive.kind != "static")}
             reason = Reason.FAILED
             failures.append(f"{name}: {type(exc).__name__}: {exc}")
         values.update(result)

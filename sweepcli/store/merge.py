@@ -18,7 +18,8 @@ class MergeReport:
     files: int
     done: int
     total: int
-    missing: list[dict] = field(default_factory=list)  # parameter values of the first missing points
+    # parameter values of the first missing points
+    missing: list[dict] = field(default_factory=list)
     n_missing: int = 0
 
     @property
@@ -66,7 +67,8 @@ def merge_results(paths: list[str | Path], max_listed: int = 10) -> tuple[Result
                                    f"({key} {r.attrs.get(key, '?')[:16]} vs "
                                    f"{first.attrs.get(key, '?')[:16]}); refusing to merge.")
         if not _same_grid(r, first):
-            raise ResultsError(f"{path}: has a different grid than {first_path}; refusing to merge.")
+            raise ResultsError(
+                f"{path}: has a different grid than {first_path}; refusing to merge.")
         if list(r.variables) != list(first.variables):
             raise ResultsError(f"{path}: holds different variables than {first_path}; refusing "
                                "to merge.")
@@ -79,7 +81,8 @@ def merge_results(paths: list[str | Path], max_listed: int = 10) -> tuple[Result
                     else a == b
                 if not same.all():
                     where = np.argwhere(both)[np.flatnonzero(~same)[0]]
-                    params = ", ".join(f"{ax.name}={ax.values[i]:g}" for ax, i in zip(out.axes, where))
+                    params = ", ".join(f"{ax.name}={ax.values[i]:g}"
+                                       for ax, i in zip(out.axes, where))
                     raise ResultsError(f"{path}: point {params} was also computed in another shard "
                                        f"with a different {name}; refusing to merge conflicting "
                                        "values.")

@@ -6,7 +6,7 @@ import platform
 import socket
 import sys
 import tomllib
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 
 import h5py
 import numpy as np
@@ -20,7 +20,7 @@ from .results import SCHEMA_VERSION, AxisData, Results, Variable
 
 
 def now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+    return datetime.now(UTC).isoformat(timespec="seconds")
 
 
 def new_results(job: Job, argv: list[str] | None = None) -> Results:

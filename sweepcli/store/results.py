@@ -40,7 +40,8 @@ class Variable:
         return self.name.endswith("_reason") and self.dtype == "uint8"
 
     def missing(self):
-        return {"float64": np.nan, "int32": FILL_INT, "uint8": np.uint8(Reason.NOT_COMPUTED)}[self.dtype]
+        return {"float64": np.nan, "int32": FILL_INT,
+                "uint8": np.uint8(Reason.NOT_COMPUTED)}[self.dtype]
 
 
 @dataclass(frozen=True)
@@ -91,7 +92,8 @@ class Results:
         multi = np.unravel_index(index, self.shape)
         for name, value in values.items():
             var = self.variables[name]
-            if value is None or (var.dtype == "int32" and isinstance(value, float) and np.isnan(value)):
+            if value is None or (var.dtype == "int32" and isinstance(value, float)
+                                 and np.isnan(value)):
                 value = var.missing()
             self.data[name][multi] = value
         self.failure[multi] = failure
@@ -110,7 +112,8 @@ class Results:
             os.replace(tmp, path)
         except OSError as exc:
             tmp.unlink(missing_ok=True)
-            raise ResultsError(f"{path}: cannot write the results file ({exc.strerror or exc}).") from None
+            raise ResultsError(
+                f"{path}: cannot write the results file ({exc.strerror or exc}).") from None
         try:
             dir_fd = os.open(path.parent if str(path.parent) else ".", os.O_RDONLY)
             try:

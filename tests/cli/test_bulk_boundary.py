@@ -70,7 +70,9 @@ def test_anomalous_ribbon_has_chiral_edge_modes_in_both_gaps(tmp_path):
     # Rudner, Lindner, Berg and Levin, PRX 3, 031005 (2013): at J T/5 = pi/2 all Floquet band
     # Chern numbers vanish, W = 1 in both gaps, and a ribbon carries one chiral mode per gap.
     steps = "".join(
-        f'[[drive.step]]\nspan = 0.2\nset = {{ {", ".join(f"j{k} = {1.5708 if k == i else 0}" for k in range(1, 5))}, delta = {0 if i < 5 else 0.4} }}\n'
+        "[[drive.step]]\nspan = 0.2\nset = { "
+        + ", ".join(f"j{k} = {1.5708 if k == i else 0}" for k in range(1, 5))
+        + f", delta = {0 if i < 5 else 0.4} }}\n"
         for i in range(1, 6))
     r, _ = run(tmp_path, f"""
 [model]
@@ -111,7 +113,8 @@ size = 12
     assert list(r.data["corner_modes_0"]) == [0, 4, 4, 4, 0]
     assert list(r.data["agree_line_corner_0"]) == [1, 1, 1, 1, 1]
     png = out.with_suffix(".png")
-    assert CliRunner().invoke(app, ["map", str(out), "--mark-disagree", "-o", str(png)]).exit_code == 0
+    assert CliRunner().invoke(app, ["map", str(out), "--mark-disagree", "-o",
+                                    str(png)]).exit_code == 0
 
 
 def _reference_pi_corner_modes(omega: float, side: int, halfwidth: float) -> np.ndarray:
@@ -127,7 +130,7 @@ def _reference_pi_corner_modes(omega: float, side: int, halfwidth: float) -> np.
 
     s0, sx, sy = np.eye(2), np.array([[0, 1], [1, 0]]), np.array([[0, -1j], [1j, 0]])
     sz = np.diag([1.0, -1.0])
-    tz, tx, ty = np.kron(sz, s0), np.kron(sx, s0), np.kron(sy, s0)
+    tz, ty = np.kron(sz, s0), np.kron(sy, s0)
 
     def flake(m: float) -> np.ndarray:
         n = side * side * 4

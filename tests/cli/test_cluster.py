@@ -7,8 +7,8 @@ import pytest
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.run.shards import Shard, parse_shard
 from sweepcli.errors import SweepError
+from sweepcli.run.shards import Shard, parse_shard
 
 from .test_end_to_end import assert_same_content
 
@@ -110,7 +110,8 @@ def test_overlapping_shards_with_conflicting_values_are_refused(job, tmp_path):
         f.attrs["shard"] = "2/2"  # posing as the other shard, so only the values conflict
     result = invoke("merge", tmp_path / "m.h5", a, b, "--partial")
     assert result.exit_code == 2
-    assert "point m=-3, t=0.5 was also computed in another shard with a different gap" in result.stderr
+    assert ("point m=-3, t=0.5 was also computed in another shard with a different gap"
+            in result.stderr)
 
 
 def test_the_same_shard_twice_is_refused(job, tmp_path):
@@ -160,7 +161,8 @@ def test_check_can_time_one_point_and_batch_can_use_it(job, tmp_path):
     result = invoke("check", job, "--time-one")
     assert result.exit_code == 0, result.output
     assert "measured: " in result.stdout and "s for the middle grid point" in result.stdout
-    result = invoke("batch", job, "--tasks", "3", "--seconds-per-point", "600", "--dir", tmp_path / "b")
+    result = invoke("batch", job, "--tasks", "3", "--seconds-per-point", "600", "--dir",
+                    tmp_path / "b")
     assert result.exit_code == 0, result.output
     # 9 points per task x 600 s x safety 2 + 10 min margin = 3 h 10 min.
     assert "#SBATCH --time=03:10:00" in (tmp_path / "b" / "shardy.slurm.sh").read_text()

@@ -159,7 +159,8 @@ def test_harmonic_drive_reproduces_the_static_chern_number_at_high_frequency(tmp
     # Chern number of QWZ at m = 1 is -1 (see tests/physics; Qi, Wu and Zhang 2006).
     job = tmp_path / "h.toml"
     text = HARMONIC.replace("OUT", str(tmp_path / "h.h5")).replace('"mm"', '"m"')
-    text = text.replace("[measure.quasienergy_gaps]", "[measure.quasienergy_gaps]\n[measure.floquet_chern]")
+    text = text.replace("[measure.quasienergy_gaps]",
+                        "[measure.quasienergy_gaps]\n[measure.floquet_chern]")
     job.write_text(text)
     assert invoke("run", job, "--no-progress").exit_code == 0
     r = Results.read(tmp_path / "h.h5")
@@ -193,12 +194,14 @@ path = "{tmp_path / 'l.h5'}"
 """)
     result = invoke("check", job)
     assert result.exit_code == 2
-    assert result.stderr.startswith(f"error: {job}: [measure.line_winding] operator must commute "
-                                    "with H(k) on the line k = origin + s * [1.0, 1.0]; it does not")
+    assert result.stderr.startswith(
+        f"error: {job}: [measure.line_winding] operator must commute "
+        "with H(k) on the line k = origin + s * [1.0, 1.0]; it does not")
     # The model's own diagonal mirror (Schindler et al. 2018 model) commutes on k1 = k2.
     mirror = MODELS["bhz_corner"].func(m=1.0, delta2=0.5).operators["mirror_diag"]
-    rows = ", ".join("[" + ", ".join(f'"{complex(x).real!r} + {complex(x).imag!r}j"' for x in row) + "]"
-                     for row in mirror)
+    rows = ", ".join(
+        "[" + ", ".join(f'"{complex(x).real!r} + {complex(x).imag!r}j"' for x in row) + "]"
+        for row in mirror)
     job.write_text(job.read_text().replace('operator = "z0"', f"operator = [{rows}]"))
     assert load_job(job).measurements[0][0] == "line_winding"
 

@@ -134,8 +134,10 @@ def test_show_and_map_refuse_bad_files(tmp_path, small_quickstart):
                                   "'sweepcli_schema' attribute)."),
         (["map", str(not_ours)], f"error: {not_ours}: not a sweepcli results file (no "
                                  "'sweepcli_schema' attribute)."),
-        (["show", str(text_file)], f"error: {text_file}: cannot be read as a sweepcli results file"),
-        (["show", str(truncated)], f"error: {truncated}: cannot be read as a sweepcli results file"),
+        (["show", str(text_file)],
+         f"error: {text_file}: cannot be read as a sweepcli results file"),
+        (["show", str(truncated)],
+         f"error: {truncated}: cannot be read as a sweepcli results file"),
         (["map", str(truncated)], f"error: {truncated}: cannot be read as a sweepcli results file"),
         (["map", str(out), "--var", "chrn"], "error: no variable 'chrn' in the results file"),
         (["show", str(tmp_path / "missing.h5")], f"error: {tmp_path / 'missing.h5'}: no such "

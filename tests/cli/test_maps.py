@@ -23,7 +23,6 @@ from ..conftest import JOBS
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.collections import QuadMesh  # noqa: E402
-from matplotlib.colors import to_rgba  # noqa: E402
 
 DEMOS = sorted(p.name for p in JOBS.glob("*.toml"))
 
@@ -128,7 +127,8 @@ def test_default_map_of_each_demo_ties_colours_to_values(name):
         assert len(colours) == 1  # one value, one colour
     for v in set(ca) & set(cb):
         assert ca[v] == cb[v], v  # the same colour in both files
-    colour = {**{v: next(iter(c)) for v, c in cb.items()}, **{v: next(iter(c)) for v, c in ca.items()}}
+    colour = {**{v: next(iter(c)) for v, c in cb.items()},
+              **{v: next(iter(c)) for v, c in ca.items()}}
     lum = {v: 0.2126 * c[0] + 0.7152 * c[1] + 0.0722 * c[2] for v, c in colour.items()}
     for v, c in colour.items():
         if v > 0:
@@ -155,7 +155,8 @@ def test_unfinished_points_have_their_own_look_and_legend_entry(name):
     n_not = int(r.size - r.done.sum())
     assert f"not computed yet ({n_not})" in texts
     assert "missing: gap closed (2)" in texts  # apart from the unfinished ones
-    assert f"unfinished run: {int(r.done.sum())} of {r.size} points computed" in fig.axes[0].get_title()
+    assert (f"unfinished run: {int(r.done.sum())} of {r.size} points computed"
+            in fig.axes[0].get_title())
     # the not-computed cells are covered by a hatched collection, not the grey of missing points
     hatched = [c for c in fig.axes[0].collections if c.get_hatch()]
     assert len(hatched) == 1 and len(hatched[0].get_paths()) == n_not
@@ -217,7 +218,8 @@ def test_default_variable_without_a_named_main_is_the_first_varying_invariant():
 
 
 def test_main_names_a_measured_quantity(write_job):
-    base = '[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = [0, 1]\n[measure.chern]\n[output]\n'
+    base = ('[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = [0, 1]\n'
+            '[measure.chern]\n[output]\n')
     with pytest.raises(Exception, match=r"\[output\] main must be one of the quantities the job "
                                          r"measures \(chern, chern_kmesh, chern_max_flux\); got "
                                          r"'chen'\. Did you mean 'chern'\?"):
@@ -237,7 +239,8 @@ def test_every_axis_of_every_demo_is_described(name):
 
 
 def test_sweep_doc_and_units_label_the_axis_without_changing_the_hash(write_job):
-    base = '[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = {{ start = 0, stop = 1, num = 2{} }}\n[measure.gap]\n'
+    base = ('[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\n'
+            'm = {{ start = 0, stop = 1, num = 2{} }}\n[measure.gap]\n')
     plain = load_job(write_job(base.format("")))
     labelled = load_job(write_job(base.format(', doc = "mass", units = "eV"'), "b.toml"))
     assert plain.sha256 == labelled.sha256

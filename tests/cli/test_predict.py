@@ -46,7 +46,8 @@ def test_predicted_closings_of_the_two_step_chain(tmp_path):
     r = Results.read(out)
     assert r.axis("omega").values[np.argmin(r.data["gap_pi"])] == 1.5
     png = tmp_path / "p.png"
-    assert CliRunner().invoke(app, ["map", str(out), "--var", "gap_pi", "-o", str(png)]).exit_code == 0
+    assert CliRunner().invoke(app, ["map", str(out), "--var", "gap_pi", "-o",
+                                    str(png)]).exit_code == 0
     assert png.stat().st_size > 10_000
 
 
@@ -59,7 +60,8 @@ def test_merged_shards_get_the_predicted_transitions_of_a_full_run(tmp_path):
     assert runner.invoke(app, ["run", str(job), "--no-progress"]).exit_code == 0
     shards = []
     for i in (1, 2):
-        assert runner.invoke(app, ["run", str(job), "--shard", f"{i}/2", "--no-progress"]).exit_code == 0
+        assert runner.invoke(app, ["run", str(job), "--shard", f"{i}/2",
+                                   "--no-progress"]).exit_code == 0
         shards.append(str(tmp_path / f"full.shard-{i}-of-2.h5"))
         assert "transitions" not in Results.read(shards[-1]).tables
     result = runner.invoke(app, ["merge", str(tmp_path / "merged.h5"), *shards])

@@ -145,7 +145,8 @@ def test_show_and_export_leave_out_slots_the_job_never_fills(tmp_path):
     show = invoke("show", path).stdout
     assert "line_w0_s3 (" not in show and "line_w0_s1 (" in show
     assert ("not filled by this job (no value wherever their measurement succeeded): "
-            "line_phase_s3, line_w0_s3, line_wpi_s3, line_phase_s4, line_w0_s4, line_wpi_s4") in show
+            "line_phase_s3, line_w0_s3, line_wpi_s3, line_phase_s4, line_w0_s4, line_wpi_s4"
+            in show)
     header = invoke("export", path).stdout.splitlines()[0].split(",")
     assert "line_w0_s1" in header and not [h for h in header if h.endswith(("_s3", "_s4"))]
     # asked for by name, a slot is still written

@@ -70,7 +70,7 @@ def test_qwz_phase_map_has_the_expected_phase_in_every_cell(qwz):
     glyphs = list(legend.values())
     assert len(set(glyphs)) == len(glyphs)  # readable without colour
     seen = set()
-    for j, tv in enumerate(t):
+    for tv in t:
         cells = rows[f"{tv:.4g}"]
         assert len(cells) == len(m)
         for i, mv in enumerate(m):

@@ -19,7 +19,6 @@ from scipy.sparse.linalg import eigsh
 from sweepcli.physics import boundary as bd
 from sweepcli.physics import boundary_counts as counts
 from sweepcli.physics.lattice import TightBinding
-from sweepcli.physics.models import MODELS
 from sweepcli.physics.point import Reason
 
 S0 = np.eye(2)

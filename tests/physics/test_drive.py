@@ -12,8 +12,16 @@ import scipy.linalg as sl
 import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
-from sweepcli.physics.drive import (FactorStack, HarmonicDrive, KickDrive, StepDrive, evolve,
-                                    floquet_evolution, floquet_operator, hermitian_exponential)
+from sweepcli.physics.drive import (
+    FactorStack,
+    HarmonicDrive,
+    KickDrive,
+    StepDrive,
+    evolve,
+    floquet_evolution,
+    floquet_operator,
+    hermitian_exponential,
+)
 from sweepcli.physics.floquet import quasienergies, unitary_eig
 from sweepcli.physics.lattice import assemble, fourier_term, pauli
 from sweepcli.physics.models import MODELS

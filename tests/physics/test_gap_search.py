@@ -105,7 +105,8 @@ def test_floquet_windows_match_a_dense_expm_reference():
     dist = distances(mesh)
     for which, name in ((0, "0"), (1, "pi")):
         start = mesh[np.argmin(dist[which])]
-        res = minimize(lambda x: float(distances(x)[which][0]), start, method="Nelder-Mead",
+        res = minimize(lambda x, which=which: float(distances(x)[which][0]), start,
+                       method="Nelder-Mead",
                        options={"xatol": 1e-12, "fatol": 1e-14, "maxiter": 4000})
         ref = 2 * min(res.fun, float(dist[which].min()))
         w = windows[name]

@@ -24,7 +24,8 @@ GRAPHENE = MODELS["graphene_field"].func
 
 def drive(amplitude, omega, sense=+1):
     def at(t):
-        return GRAPHENE(ax=amplitude * math.cos(omega * t), ay=sense * amplitude * math.sin(omega * t))
+        return GRAPHENE(ax=amplitude * math.cos(omega * t),
+                        ay=sense * amplitude * math.sin(omega * t))
     return HarmonicDrive(2 * math.pi / omega, at, tol=1e-9)
 
 

@@ -143,7 +143,8 @@ def table_graphene_field(t, M, ax, ay):
     return rows, 2
 
 
-TABLES = {"graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square, "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
+TABLES = {"graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square,
+          "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
           "bhz": table_bhz, "bhz_corner": table_bhz_corner, "bbh": table_bbh}
 
 
@@ -203,7 +204,8 @@ def formula(name, p, k):
         deltas = [(a1 + a2) / 3, (a1 + a2) / 3 - a1, (a1 + a2) / 3 - a2]
         kc = np.linalg.solve(np.array([a1, a2]), k)  # Cartesian k from reduced (k.a_i = k_i)
         # Peierls phase on each bond; periodic gauge: Bloch phase of the cell displacement.
-        f = sum(p["t"] * np.exp(1j * np.dot([p["ax"], p["ay"]], d)) * np.exp(1j * kc @ (d - deltas[0]))
+        f = sum(p["t"] * np.exp(1j * np.dot([p["ax"], p["ay"]], d))
+                * np.exp(1j * kc @ (d - deltas[0]))
                 for d in deltas)
         return np.array([[p["M"], f], [np.conj(f), -p["M"]]])
     if name == "bipartite_square":

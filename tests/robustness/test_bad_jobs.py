@@ -132,7 +132,8 @@ def test_no_measurement(tmp_path):
 
 def test_measurement_needing_an_operator(tmp_path):
     msg = run_bad(tmp_path, GOOD.replace("[measure.gap]", "[measure.spin_chern]"))
-    assert msg == "JOB: [measure.spin_chern] needs a model with a 'spin' operator; model 'qwz' has none."
+    assert msg == ("JOB: [measure.spin_chern] needs a model with a 'spin' operator; "
+                   "model 'qwz' has none.")
 
 
 def test_measurement_for_the_wrong_dimension(tmp_path):
@@ -181,8 +182,8 @@ def test_flake_too_small_for_corner_regions(tmp_path):
     text = GOOD.replace('name = "qwz"', 'name = "bhz_corner"').replace("t = 1.0", "delta2 = 0.5")
     text = text.replace("[measure.gap]", "[measure.corner_modes]\nsize = 6")
     msg = run_bad(tmp_path, text)
-    assert msg == ("JOB: [measure.corner_modes] size = 6 is too small: sample of 6 x 6 cells is too "
-                   "small: each side needs at least 8 cells, so that corner regions of up to a "
+    assert msg == ("JOB: [measure.corner_modes] size = 6 is too small: sample of 6 x 6 cells is "
+                   "too small: each side needs at least 8 cells, so that corner regions of up to a "
                    "quarter of a side can hold a bound mode.")
 
 

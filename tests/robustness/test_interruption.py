@@ -112,7 +112,8 @@ def test_a_dying_worker_keeps_the_finished_points(reference, tmp_path):
     proc = start(job, out, "--workers", "2", "--chunk-size", "4")
     wait_for_points(out, proc, minimum=8)
     workers = [c for c in psutil.Process(proc.pid).children(recursive=True)
-               if "loky" in " ".join(c.cmdline()) and "resource_tracker" not in " ".join(c.cmdline())]
+               if "loky" in " ".join(c.cmdline())
+               and "resource_tracker" not in " ".join(c.cmdline())]
     assert workers, "no worker processes found"
     workers[-1].kill()
     _, err = proc.communicate(timeout=120)

@@ -23,7 +23,9 @@ from ..registry import Registry
 MEASUREMENTS: Registry = Registry("measurement")
 
 
-def quantities_of(name: str, dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+# F811 is a false alarm: the linter reads the parameter as shadowing the submodule ``driven``
+# imported below for its side effect.
+def quantities_of(name: str, dim: int, driven: bool = False) -> tuple[Quantity, ...]:  # noqa: F811
     """The variables measurement ``name`` stores for a lattice of dimension ``dim`` in a static
     (``driven=False``) or driven job."""
     q = MEASUREMENTS[name].extra["quantities"]
@@ -31,4 +33,4 @@ def quantities_of(name: str, dim: int, driven: bool = False) -> tuple[Quantity, 
 
 
 # Importing the modules fills the registry.
-from . import boundary, driven, static  # noqa: E402,F401,F811
+from . import boundary, driven, static  # noqa: E402,F401
