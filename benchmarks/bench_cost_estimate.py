@@ -5,9 +5,9 @@
 
 Prints one row per job: the estimated and the measured seconds per point and their ratio
 (aim: every ratio between 0.5 and 2). The measured points are spread evenly over the grid
-(fractions 1/(2p), 3/(2p), ...), evaluated in this process with one BLAS thread. No demo job
-measures an open sample, so three small jobs of our own with end and corner modes (dense and
-Lanczos) follow the demo jobs (rows marked "sample:").
+(fractions 1/(2p), 3/(2p), ...), evaluated in this process with one BLAS thread. Three small
+jobs of our own with end and corner modes (dense and Lanczos) follow the demo jobs (rows marked
+"sample:"), beside the demo jobs that measure open samples.
 """
 
 from __future__ import annotations

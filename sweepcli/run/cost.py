@@ -20,9 +20,10 @@ meshes themselves):
 * ``winding``, ``chiral_windings``, ``line_winding`` (1D or a line): ``kmesh`` and ``2 kmesh``;
 * ``rudner_winding``: its first two levels at or above ``kmesh``, each probed with its own
   number of time nodes;
-* open samples (``end_modes``, ``edge_modes``, ``corner_modes``): one evaluation at the first
-  probed point, timed as it is (the configured sample size and the dense or Lanczos method
-  decide it; the sizes as configured, before any automatic enlargement).
+* open samples (``end_modes``, ``edge_modes``, ``corner_modes``): evaluated as configured at
+  each probed point, averaged, until the probes so far took ``SAMPLE_PROBE_SECONDS`` (the cost
+  depends on how far a count doubles its sample, which varies across the grid); peak memory is
+  that of the largest sample a count may double to.
 
 The probes are a few grid points (:func:`estimate`); points close to a transition walk further
 meshes and levels (a Rudner winding with a gap of 0.02 takes about five times longer), so the
@@ -43,6 +44,8 @@ from ..jobfile import Job
 PROBE_MESH = (6, 12)
 #: Per-worker memory beside the arrays of the largest mesh (interpreter, numpy, scipy).
 BASE_MEMORY = 200 * 2**20
+#: Open-sample probes stop once they have taken this long (seconds): ``check`` stays quick.
+SAMPLE_PROBE_SECONDS = 3.0
 
 
 @dataclass
@@ -155,10 +158,10 @@ def estimate(job: Job) -> Cost:
     """Seconds per grid point and peak memory per worker, from probes of a few grid points.
 
     At the grid points 1/6, 1/2 and 5/6 of the way through the grid, runs each measurement's
-    kernel on its meshes or on two small meshes (an open-sample measurement once, at the first
-    of them), with one BLAS thread, scales to the configured meshes as the module docstring
-    describes, and
-    averages; a second or two for the heaviest demo jobs.
+    kernel on its meshes or on two small meshes, with one BLAS thread, scales to the configured
+    meshes as the module docstring describes, and averages. Open-sample measurements are run as
+    configured at five points spread over the grid, until the probes so far took
+    ``SAMPLE_PROBE_SECONDS`` (their cost depends on how far a count doubles its sample).
     """
     from threadpoolctl import threadpool_limits
 
@@ -166,31 +169,42 @@ def estimate(job: Job) -> Cost:
     from ..physics import samples
 
     probes = sorted({job.size // 6, job.size // 2, 5 * job.size // 6})
+    sample_probes = sorted({(2 * i + 1) * job.size // 10 for i in range(5)})
     per_point = 0.0
     largest, sample_peak = 0, 0.0
+    sample_seconds: dict[str, list[float]] = {}
     with threadpool_limits(limits=1, user_api="blas"):
-        for index in probes:
+        for index in sorted(set(probes) | set(sample_probes)):
             point, memo = job.point(index), {}
             for name, options in job.measurements:
                 opts = dict(options)
-                if "kmesh" not in opts and index != probes[0]:
-                    continue  # an open sample: timed once, at the first probe
+                taken = sample_seconds.get(name)
+                if "kmesh" in opts and index not in probes:
+                    continue
+                if "kmesh" not in opts and (index not in sample_probes or (
+                        taken and sum(taken) > SAMPLE_PROBE_SECONDS)):
+                    continue  # an expensive open sample: the probes so far stand for all
                 try:
                     seconds = _measurement_seconds(job, index, point, name, opts, memo)
                 except Exception:  # noqa: BLE001 - the run records such a point as failed
                     seconds = 0.0
-                per_point += seconds / (len(probes) if "kmesh" in opts else 1)
+                if "kmesh" in opts:
+                    per_point += seconds / len(probes)
+                else:
+                    sample_seconds.setdefault(name, []).append(seconds)
                 if opts.get("kmesh"):
                     largest = max(largest, math.ceil(1.5 * opts["kmesh"]) ** job.dim)
-                if name in SAMPLE_SHAPES and index == probes[0]:
-                    size_key, _, dims = SAMPLE_SHAPES[name]
-                    shape = (opts[size_key],) * dims
+                if name in SAMPLE_SHAPES and index == sample_probes[0]:
+                    size_key, max_key, dims = SAMPLE_SHAPES[name]
+                    # Counts may double the sample up to max_key: the peak is that sample's.
+                    shape = (max(opts[size_key], opts[max_key]),) * dims
                     tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
                     driven = point.drive is not None
                     method = samples.choose_method(tb, shape, opts.get("method", "auto"),
                                                    driven=driven)
                     sample_peak = max(sample_peak, samples.memory_estimate(tb, shape, method,
                                                                            driven=driven))
+    per_point += sum(sum(t) / len(t) for t in sample_seconds.values())
     # Eigenvectors, Floquet operators and their products on the largest mesh, complex128.
     peak = max(16 * largest * job.norb ** 2 * 8, sample_peak)
     return Cost(per_point, job.size, int(peak + BASE_MEMORY))
