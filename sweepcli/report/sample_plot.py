@@ -218,8 +218,9 @@ def _match(full: np.ndarray, targets: np.ndarray, period: float | None) -> np.nd
 
 
 def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) -> dict:
-    from ..physics import boundary_counts, samples
     from ..physics import inspect as ins
+    from ..physics import samples
+    from ..physics.boundary import counts as boundary_counts
     from ..physics.measurements import boundary as mb
 
     driven = factors is not None
@@ -238,7 +239,8 @@ def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) 
                     - np.pi / period) for g, s in states.items() if s.shape == shape}
     full = n <= (FULL_SPECTRUM_MAX_DRIVEN if driven else FULL_SPECTRUM_MAX)
     if full:
-        levels = ins.floquet_box_spectrum(factors, shape) if driven else ins.box_spectrum(tb, shape)
+        levels = (ins.floquet_box_spectrum(factors, shape, period) if driven
+                  else ins.box_spectrum(tb, shape))
     else:
         levels = np.sort(np.concatenate(list(absolute.values())))
     at = {g: _match(levels, absolute[g], period) for g in absolute}
@@ -274,7 +276,7 @@ def _ribbon(point, options: dict[str, Any], gap: str, factors, windows) -> dict:
         if factors is not None:
             found = bd.floquet_ribbon_modes(factors, width, windows, open_axis=axis, nk=nk,
                                             gap_tol=point.gap_tol)
-            bands = ins.floquet_ribbon_bands(factors, width, k, axis)
+            bands = ins.floquet_ribbon_bands(factors, width, k, windows["0"].period, axis)
         else:
             found = {"0": bd.ribbon_modes(point.tb, width, windows["0"], open_axis=axis, nk=nk,
                                           gap_tol=point.gap_tol)}
