@@ -10,6 +10,7 @@ import numpy as np
 
 from ..errors import JobError
 from ..expressions import EvaluationError
+from ..physics.floquet import commutator_violation
 from ..physics.point import Point
 from ..physics.registry import Param
 from .checker import Checker
@@ -69,9 +70,8 @@ def _check_line_operator(ck: Checker, job: Job, point: Point) -> None:
         k = origin + np.linspace(0, 2 * np.pi, 7, endpoint=False)[:, None] * direction
         parts = [tb for _, tb in point.drive.factors()] if point.drive is not None else [point.tb]
         for tb in parts:
-            h = tb.bloch(k)
-            err = float(np.max(np.abs(s @ h - h @ s)))
-            if err > 1e-8 * max(1.0, float(np.max(np.abs(h)))):
+            err = commutator_violation(s, tb.bloch(k))
+            if err is not None:
                 raise JobError(f"{ck.path}: [measure.{name}] operator must commute with H(k) on "
                                f"the line k = origin + s * {list(opts['direction'])}; it does not "
                                f"(largest commutator entry {err:.3g} at the first grid point).")

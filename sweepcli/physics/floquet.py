@@ -559,9 +559,7 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
     n = u1.shape[0]
     if not (open0 or openpi):
         return ChiralWindings(None, None, None, None, gap0, gappi, n, Reason.GAP_CLOSED), 0.0
-    w, basis = np.linalg.eigh(g)
-    nminus = int(np.sum(w < 0))
-    pm, pp = basis[:, :nminus], basis[:, nminus:]
+    pm, pp = inv.chiral_eigenbasis(g)
     if open0 and openpi:
         nu, s1 = inv.det_winding(inv.chiral_blocks(u1, g))
         nup, s2 = inv.det_winding(inv.chiral_blocks(u2, g))
@@ -580,10 +578,7 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
 
 def half_period_windings(f: np.ndarray, chiral: np.ndarray) -> tuple[int, int]:
     """``(wind det P_- F P_+, wind det P_+ F P_+)`` of a half-period operator on a loop."""
-    g = np.asarray(chiral, dtype=complex)
-    w, basis = np.linalg.eigh(g)
-    nminus = int(np.sum(w < 0))
-    pm, pp = basis[:, :nminus], basis[:, nminus:]
+    pm, pp = inv.chiral_eigenbasis(chiral)
     return (inv.det_winding(np.conj(pm.T) @ f @ pp)[0],
             inv.det_winding(np.conj(pp.T) @ f @ pp)[0])
 
@@ -735,9 +730,20 @@ def symmetry_sectors(operator: np.ndarray, tol: float = 1e-6) -> list[tuple[comp
     return [(complex(np.exp(1j * ph[gr[0]])), v[:, gr]) for gr in groups]
 
 
-def _commutator_check(s: np.ndarray, x: np.ndarray, what: str, line: str) -> None:
+def commutator_violation(s: np.ndarray, x: np.ndarray) -> float | None:
+    """Largest entry of ``|[S, X]|`` when ``S`` does not commute with ``X``, else ``None``.
+
+    ``x`` is ``(..., n, n)`` (a batch, e.g. ``H(k)`` on a line); ``S`` commutes when every
+    entry is at most ``SYMMETRY_TOL * max(1, max |X|)``. The one commutation test of line
+    symmetries, at job load and in :func:`line_sector_windings`.
+    """
     err = float(np.max(np.abs(s @ x - x @ s), initial=0.0))
-    if err > SYMMETRY_TOL * max(1.0, float(np.max(np.abs(x)))):
+    return err if err > SYMMETRY_TOL * max(1.0, float(np.max(np.abs(x)))) else None
+
+
+def _commutator_check(s: np.ndarray, x: np.ndarray, what: str, line: str) -> None:
+    err = commutator_violation(s, x)
+    if err is not None:
         raise ValueError(f"the symmetry operator does not commute with {what} on the line "
                          f"{line} (largest |[S, X]| = {err:.3g}); choose a line that the "
                          f"symmetry maps to itself pointwise, or another operator")

@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import boundary as bd
+from . import floquet as fl
 from . import samples
 from .drive import evolve
 from .lattice import TightBinding
@@ -48,25 +49,18 @@ def box_spectrum(tb: TightBinding, shape: Sequence[int]) -> np.ndarray:
     return np.linalg.eigvalsh(samples.open_hamiltonian(tb, shape).toarray())
 
 
-def floquet_box_spectrum(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[int]
-                         ) -> np.ndarray:
-    """All quasienergies of the driven open box sample, ascending in ``[-pi/T, pi/T]``.
+def floquet_box_spectrum(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[int],
+                         period: float) -> np.ndarray:
+    """All quasienergies of the driven open box sample, ascending in ``(-pi/T, pi/T]``.
 
     ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)`` formed densely by
-    :func:`~sweepcli.physics.drive.evolve`; ``eps = -arg(lambda) / T``. Returns ``(N,)``.
+    :func:`~sweepcli.physics.drive.evolve`; ``eps = -arg(lambda) / T``
+    (:func:`~sweepcli.physics.floquet.quasienergy_values`). ``period`` is the drive's period
+    ``T``, not the sum of the factors' durations (a kick is a factor of its own). Returns
+    ``(N,)``.
     """
-    period = float(sum(t for t, _ in factors))
     u = evolve([(t, h.toarray()) for t, h in bd.sample_steps(factors, shape)])
-    return np.sort(-np.angle(np.linalg.eigvals(u)) / period)
-
-
-def low_edge_mask(width: int, norb: int) -> np.ndarray:
-    """``(width * norb,)`` bool: the orbitals of the low half of a ribbon (cells ``< width // 2``),
-    the half whose weight marks a state of the low edge in
-    :func:`~sweepcli.physics.boundary.signed_crossings`."""
-    mask = np.zeros(width * norb, dtype=bool)
-    mask[: (width // 2) * norb] = True
-    return mask
+    return fl.quasienergy_values(u, period)
 
 
 @dataclass(frozen=True)
@@ -76,7 +70,7 @@ class RibbonBands:
     Attributes
     ----------
     k : (nk,) reduced momentum ``k_par = k . a_p`` (rad).
-    levels : (nk, M) energies (static, ascending per k) or quasienergies in ``[-pi/T, pi/T]``.
+    levels : (nk, M) energies (static) or quasienergies in ``(-pi/T, pi/T]``, ascending per k.
     low_weight : (nk, M) weight of each state in the low half of the ribbon (0 .. 1; about 1/2
         for a bulk state, near 1 for a state on the low edge, near 0 on the high edge).
     period : drive period, ``None`` for a static ribbon.
@@ -97,27 +91,22 @@ def ribbon_bands(tb: TightBinding, width: int, k: np.ndarray, open_axis: int = 1
     k = np.asarray(k, dtype=float)
     rb = samples.ribbon(tb, width, open_axis)
     e, v = np.linalg.eigh(rb.bloch(k[:, None]))
-    low = low_edge_mask(width, tb.norb)
+    low = bd.low_edge_mask(width, tb.norb)
     return RibbonBands(k, e, np.sum(np.abs(v[:, low, :]) ** 2, axis=1))
 
 
 def floquet_ribbon_bands(factors: Sequence[tuple[float, TightBinding]], width: int,
-                         k: np.ndarray, open_axis: int = 1) -> RibbonBands:
-    """Quasienergy bands of a driven ribbon at ``k (nk,)``.
+                         k: np.ndarray, period: float, open_axis: int = 1) -> RibbonBands:
+    """Quasienergy bands of a driven ribbon of period ``period`` at ``k (nk,)``.
 
     ``U(k_par)`` is the time-ordered product of the steps' ribbon Bloch Hamiltonians, batched
-    over ``k`` (as in :func:`~sweepcli.physics.boundary.floquet_ribbon_modes`); its eigenvalues
-    give ``eps = -arg(lambda) / T`` (sorted per k) and its normalised eigenvectors the low-edge
-    weight.
+    over ``k`` (as in :func:`~sweepcli.physics.boundary.floquet_ribbon_modes`), diagonalised by
+    :func:`~sweepcli.physics.floquet.quasienergies` (orthonormal eigenvectors inside degenerate
+    clusters, as the driven ribbon count uses); ``eps = -arg(lambda) / T`` in ``(-pi/T, pi/T]``,
+    ascending per k, with the low-edge weight of each state.
     """
     k = np.asarray(k, dtype=float)
-    period = float(sum(t for t, _ in factors))
     ribbons = [(float(t), samples.ribbon(f, width, open_axis)) for t, f in factors]
-    lam, v = np.linalg.eig(evolve([(t, r.bloch(k[:, None])) for t, r in ribbons]))
-    v = v / np.linalg.norm(v, axis=-2, keepdims=True)
-    eps = -np.angle(lam) / period
-    order = np.argsort(eps, axis=-1)
-    low = low_edge_mask(width, factors[0][1].norb)
-    weight = np.sum(np.abs(v[:, low, :]) ** 2, axis=1)
-    return RibbonBands(k, np.take_along_axis(eps, order, axis=-1),
-                       np.take_along_axis(weight, order, axis=-1), period)
+    eps, v = fl.quasienergies(evolve([(t, r.bloch(k[:, None])) for t, r in ribbons]), period)
+    low = bd.low_edge_mask(width, factors[0][1].norb)
+    return RibbonBands(k, eps, np.sum(np.abs(v[:, low, :]) ** 2, axis=1), period)

@@ -330,6 +330,34 @@ def fhs_chern_subdivided(subspace: Callable[[np.ndarray], np.ndarray], n: int,
     return int(round(-f.sum() / (2 * np.pi))), max(max_flux, float(np.max(np.abs(sub))))
 
 
+def chiral_eigenbasis(chiral: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Orthonormal eigenbases of the -1 and +1 eigenspaces of a chiral operator.
+
+    Parameters
+    ----------
+    chiral : (n, n) Hermitian with eigenvalues +-1, as many of each.
+
+    Returns
+    -------
+    minus, plus : (n, n/2) complex
+        Columns spanning the -1 and the +1 eigenspace (from :func:`numpy.linalg.eigh`; another
+        choice changes the determinant of a block ``minus^+ X plus`` by a k-independent phase).
+
+    Raises
+    ------
+    ValueError
+        If ``chiral`` does not square to the identity or its eigenvalues are not balanced.
+    """
+    g = np.asarray(chiral, dtype=complex)
+    w, u = np.linalg.eigh(g)
+    if not np.allclose(np.abs(w), 1.0, atol=1e-10):
+        raise ValueError("the chiral operator must square to the identity")
+    nminus = int(np.sum(w < 0))
+    if 2 * nminus != g.shape[0]:
+        raise ValueError("the chiral operator needs as many +1 as -1 eigenvalues for a gap at 0")
+    return u[:, :nminus], u[:, nminus:]
+
+
 def chiral_blocks(h: np.ndarray, chiral: np.ndarray) -> np.ndarray:
     """Off-diagonal block ``h = P_- H P_+`` of chiral-symmetric matrices.
 
@@ -341,17 +369,10 @@ def chiral_blocks(h: np.ndarray, chiral: np.ndarray) -> np.ndarray:
     Returns
     -------
     (..., n/2, n/2) complex
-        Rows in the -1 eigenbasis of ``chiral``, columns in the +1 eigenbasis (the eigenbasis
-        from :func:`numpy.linalg.eigh`; another choice changes ``det`` by a k-independent phase).
+        Rows in the -1 eigenbasis of ``chiral``, columns in the +1 eigenbasis
+        (:func:`chiral_eigenbasis`).
     """
-    g = np.asarray(chiral, dtype=complex)
-    w, u = np.linalg.eigh(g)
-    if not np.allclose(np.abs(w), 1.0, atol=1e-10):
-        raise ValueError("the chiral operator must square to the identity")
-    nminus = int(np.sum(w < 0))
-    if 2 * nminus != g.shape[0]:
-        raise ValueError("the chiral operator needs as many +1 as -1 eigenvalues for a gap at 0")
-    um, up = u[:, :nminus], u[:, nminus:]
+    um, up = chiral_eigenbasis(chiral)
     return np.conj(um.T) @ h @ up
 
 

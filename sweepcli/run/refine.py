@@ -16,12 +16,9 @@ import itertools
 import numpy as np
 
 from ..store import FILL_INT, Results
+from ..store.refined import refined_axes
 
 MISSING = np.iinfo(np.int64).min
-
-
-def _refined_axes(shape: tuple[int, ...]) -> list[int]:
-    return [i for i, n in enumerate(shape) if n > 1]
 
 
 def base_indices(shape: tuple[int, ...], stride: int) -> np.ndarray:
@@ -43,7 +40,7 @@ def level_indices(results: Results, by: str, stride: int, level: int,
     shape = results.shape
     s = stride // 2 ** level
     coarse = 2 * s
-    axes = _refined_axes(shape)
+    axes = refined_axes(shape)
     sl = tuple(slice(None, None, coarse) if i in axes else slice(None) for i in range(len(shape)))
     values = _as_int(results.data[by])[sl]
     done = results.done.astype(bool)[sl]

@@ -24,7 +24,7 @@ def filled(data: np.ndarray, done: np.ndarray, stride: int) -> np.ndarray:
     out = data.copy()
     have = done.astype(bool).copy()
     shape = data.shape
-    axes = _refined_axes(shape)
+    axes = refined_axes(shape)
     s = stride
     while s > 1:
         half = s // 2
@@ -41,5 +41,6 @@ def filled(data: np.ndarray, done: np.ndarray, stride: int) -> np.ndarray:
     return out
 
 
-def _refined_axes(shape: tuple[int, ...]) -> list[int]:
+def refined_axes(shape: tuple[int, ...]) -> list[int]:
+    """The axes refinement subdivides: those with more than one point."""
     return [i for i, n in enumerate(shape) if n > 1]

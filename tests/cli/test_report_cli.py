@@ -12,7 +12,7 @@ from typer.testing import CliRunner
 from sweepcli.cli import app
 from sweepcli.jobfile import load_job
 from sweepcli.report.boundaries import boundaries_csv, phase_boundaries
-from sweepcli.report.sample_plot import default_kind
+from sweepcli.report.sample_data import default_kind
 from sweepcli.store import FILL_INT
 
 from ..conftest import JOBS, ROOT

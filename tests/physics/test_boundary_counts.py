@@ -17,7 +17,7 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import eigsh
 
 from sweepcli.physics import boundary as bd
-from sweepcli.physics import boundary_counts as counts
+from sweepcli.physics.boundary import counts
 from sweepcli.physics.lattice import TightBinding
 from sweepcli.physics.point import Reason
 

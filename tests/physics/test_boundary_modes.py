@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 
 from sweepcli.physics import boundary as bd
-from sweepcli.physics import boundary_counts as counts
 from sweepcli.physics import samples
+from sweepcli.physics.boundary import counts
 from sweepcli.physics.invariants import chern_number, winding_number
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS

@@ -130,7 +130,7 @@ def test_quasienergy_at_exactly_pi_over_t_is_plus_pi_over_t():
     np.testing.assert_array_equal(fl.quasienergy_values(-np.eye(2)[None], T), np.pi / T)
     assert fl.wrap_quasienergy(-np.pi / T, T) == np.pi / T
     assert fl.wrap_quasienergy(np.pi / T, T) == np.pi / T
-    assert bd._wrap(np.array([-np.pi / T]), T)[0] == np.pi / T
+    assert bd.solvers._wrap(np.array([-np.pi / T]), T)[0] == np.pi / T
     x = np.linspace(-3 * np.pi / T, 3 * np.pi / T, 1001)
     w = fl.wrap_quasienergy(x, T)
     assert np.all((w > -np.pi / T) & (w <= np.pi / T))
@@ -158,14 +158,14 @@ def test_driven_ribbon_in_degenerate_clusters(monkeypatch):
     tb = doubled_qwz(1.0)
     drive = StepDrive(0.6, ((0.3, tb), (0.3, tb)))
     seen = []
-    original = bd._edge_modes
+    original = bd.ribbons._edge_modes
 
     def recording(spectrum, levels_at, low, window, nk, nk_max):
         _, v = spectrum(bd.ribbon_kgrid(nk))
         seen.append(v)
         return original(spectrum, levels_at, low, window, nk, nk_max)
 
-    monkeypatch.setattr(bd, "_edge_modes", recording)
+    monkeypatch.setattr(bd.ribbons, "_edge_modes", recording)
     res = bd.floquet_ribbon_modes(drive.factors(), 12, bd.floquet_windows(drive))
     single = model("qwz", m=1.0)
     reference = bd.ribbon_modes(single, 12, bd.static_window(single)).chiral

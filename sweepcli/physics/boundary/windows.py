@@ -1,0 +1,124 @@
+"""Energy windows of in-gap levels, from the bulk gaps of a static model or a drive.
+
+A level of an open sample counts as *in-gap* when it lies within a window around the centre of
+a bulk gap, of half-width ``fraction * gap / 2`` (default ``fraction = 0.5``: the window spans
+the middle half of the gap, so bulk states pushed slightly into the gap by the boundary are not
+counted, while modes bound to the boundary, which sit near the gap centre, are).
+
+* Static: the gap above the lowest ``nocc`` bands is the *indirect* gap
+  ``min_k E_nocc(k) - max_k E_{nocc-1}(k)`` (never above the direct gap of
+  :func:`sweepcli.physics.spectrum.band_gap`), and the centre is its midpoint (energy 0 for a
+  chiral or particle-hole symmetric model).
+* Driven (period ``T``, ``U = exp(-i H_F T)``, quasienergies ``eps`` in ``(-pi/T, pi/T]``): the
+  gap at 0 is ``2 min_{k,n} |eps_n(k)|`` and the gap at ``pi/T`` is
+  ``2 min_{k,n} (pi/T - |eps_n(k)|)``; each window is centred on its gap.
+
+A gap at or below ``gap_tol`` means the window cannot be set: the counts are missing with
+:attr:`~sweepcli.physics.point.Reason.GAP_CLOSED`. Corner windows are narrowed to the edge gap
+of ribbons of the flake's width (:func:`edge_window`), since corner modes of a second-order
+phase live in the edge gap.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .. import floquet as fl
+from ..drive import Drive, Slicing, decide_slicing
+from ..lattice import TightBinding
+from ..spectrum import band_edges, band_gap
+
+WINDOW_FRACTION = 0.5
+
+
+@dataclass(frozen=True)
+class Window:
+    """Energy window of in-gap levels.
+
+    Attributes
+    ----------
+    centre : gap centre (energy; ``0`` or ``pi/T`` for a drive).
+    halfwidth : ``fraction * gap / 2`` (energy); ``nan`` if the gap is closed.
+    gap : bulk gap (energy), ``>= 0``.
+    period : drive period ``T`` (time), ``None`` for a static model.
+    """
+
+    centre: float
+    halfwidth: float
+    gap: float
+    period: float | None = None
+
+    def closed(self, gap_tol: float) -> bool:
+        return not self.gap > gap_tol
+
+
+def default_kmesh(dim: int) -> int:
+    """Points per direction of the bulk mesh of static windows (refined in continuous k)."""
+    return 256 if dim == 1 else 48
+
+
+def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = WINDOW_FRACTION,
+                  kmesh_n: int | None = None, direct_gap: float | None = None) -> Window:
+    """Window of in-gap levels of a static model (see module docstring).
+
+    Parameters
+    ----------
+    tb : the model.
+    nocc : bands below the gap (default ``tb.norb // 2``).
+    fraction : half-width as a fraction of half the gap, ``0 < fraction <= 1``.
+    kmesh_n : bulk mesh points per direction (default :func:`default_kmesh`).
+    direct_gap : the refined direct gap if already known (else from
+        :func:`~sweepcli.physics.spectrum.band_gap` on the same mesh).
+
+    Returns
+    -------
+    Window with the indirect gap (>= 0) and its midpoint; the band edges come from
+    :func:`~sweepcli.physics.spectrum.band_edges` (the gap search's minima and polish), and the
+    gap is never above the refined direct gap.
+    """
+    nocc = tb.norb // 2 if nocc is None else int(nocc)
+    n = default_kmesh(tb.dim) if kmesh_n is None else int(kmesh_n)
+    top, bottom = band_edges(tb, nocc, n)
+    direct = band_gap(tb, nocc, n).gap if direct_gap is None else float(direct_gap)
+    gap = max(0.0, min(bottom - top, direct))
+    return Window(0.5 * (top + bottom), fraction * gap / 2 if gap > 0 else float("nan"), gap)
+
+
+def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
+                    gaps: fl.FloquetGaps | None = None, slicing: Slicing | None = None
+                    ) -> dict[str, Window]:
+    """Windows at quasienergy 0 and ``pi/T`` of a drive, from its bulk quasienergy gaps.
+
+    Parameters
+    ----------
+    drive : the compiled drive (its period sets ``pi/T``).
+    fraction : as :func:`static_window`.
+    gaps : the bulk gaps (:func:`sweepcli.physics.floquet.floquet_gaps`, refined in continuous
+        k); computed on the default quasienergy-gap mesh at ``slicing`` when omitted.
+    slicing : the drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), used
+        only when ``gaps`` is omitted.
+
+    Returns
+    -------
+    ``{"0": Window, "pi": Window}`` centred on 0 and ``pi/T``, gap widths as in the module
+    docstring (``gap_0`` and ``gap_pi`` of the bulk).
+    """
+    if gaps is None:
+        mesh = fl.floquet_mesh(drive, fl.GAP_KMESH, drive.dim,
+                               slicing if slicing is not None else decide_slicing(drive))
+        gaps = fl.floquet_gaps(drive, mesh)
+    period = drive.period
+    out = {}
+    for name, gap, centre in (("0", gaps.gap_0, 0.0), ("pi", gaps.gap_pi, np.pi / period)):
+        out[name] = Window(centre, fraction * gap / 2 if gap > 0 else float("nan"), gap, period)
+    return out
+
+
+def edge_window(window: Window, edge_gap: float) -> Window:
+    """The corner-mode window: ``window`` narrowed in proportion to the smaller of the bulk and
+    edge gaps (same fraction of the gap)."""
+    gap = min(window.gap, edge_gap)
+    hw = window.halfwidth * gap / window.gap if gap > 0 else float("nan")
+    return Window(window.centre, hw, gap, window.period)
