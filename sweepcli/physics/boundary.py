@@ -68,12 +68,12 @@ import scipy.sparse as sp
 from scipy.optimize import minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh, splu
 
+from ..schema import Reason
 from . import boundary_counts as counts
 from . import floquet as fl
 from . import samples
 from .drive import Drive, Slicing, decide_slicing, evolve
 from .lattice import TightBinding
-from .point import Reason
 from .spectrum import band_edges, band_gap
 
 WINDOW_FRACTION = 0.5

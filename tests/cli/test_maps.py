@@ -12,9 +12,9 @@ import tomli_w
 
 from sweepcli.errors import ResultsError
 from sweepcli.jobfile import build_job, load_job
-from sweepcli.physics.point import Reason
 from sweepcli.report.maps import at_notes, default_variable, map_figure
 from sweepcli.report.terminal import terminal_map
+from sweepcli.schema import Reason
 from sweepcli.store import FILL_INT
 from sweepcli.store.provenance import new_results
 
