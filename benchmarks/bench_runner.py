@@ -20,9 +20,9 @@ import time
 from pathlib import Path
 
 from sweepcli.jobfile import load_job
+from sweepcli.run.layout import results_for_job
 from sweepcli.run.runner import run_sweep
 from sweepcli.run.worker import evaluate_point
-from sweepcli.store.provenance import new_results
 
 # About 0.1 s per point.
 HEAVY = """
@@ -51,7 +51,7 @@ path = "{out}"
 
 
 def timed_run(job, workers):
-    results = new_results(job)
+    results = results_for_job(job)
     t0 = time.perf_counter()
     run_sweep(job, results, workers=workers, progress=False)
     return time.perf_counter() - t0
@@ -74,7 +74,7 @@ def main() -> None:
             return time.perf_counter() - t0
 
     def with_store():
-        results = new_results(job)
+        results = results_for_job(job)
         t0 = time.perf_counter()
         run_sweep(job, results, workers=1, progress=False,
                   checkpoint=lambda r: r.write(tmp / "c.h5"), checkpoint_every=0)

@@ -41,10 +41,12 @@ def _version(value: bool) -> None:
 
 @app.callback()
 def main(ctx: typer.Context,
-         verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
-         debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks of errors.")] = False,
-         version: Annotated[bool | None, typer.Option("--version", callback=_version,
-                                                         is_eager=True, help="Print the version.")] = None,
+         verbose: Annotated[bool, typer.Option(
+             "--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
+         debug: Annotated[bool, typer.Option(
+             "--debug", help="Show tracebacks of errors.")] = False,
+         version: Annotated[bool | None, typer.Option(
+             "--version", callback=_version, is_eager=True, help="Print the version.")] = None,
          ) -> None:
     ctx.obj = State(verbose=verbose, debug=debug)
 
@@ -72,96 +74,57 @@ def _parse_at(items: list[str]) -> dict[str, float]:
 @app.command()
 def run(ctx: typer.Context,
         job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
-        output: Annotated[Path | None, typer.Option("--output", "-o", help="Results file (default: [output] path of the job, with a shard suffix for a shard).")] = None,
-        workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes.")] = 1,
-        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing results file.")] = False,
-        resume: Annotated[bool, typer.Option("--resume", help="Continue the results file if it exists (same job only); start it otherwise.")] = False,
-        shard: Annotated[str | None, typer.Option("--shard", help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or PBS).")] = None,
-        chunk_size: Annotated[int | None, typer.Option("--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each", help="Grid points per task.")] = None,
-        checkpoint_every: Annotated[float, typer.Option("--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
-        progress: Annotated[bool, typer.Option("--progress/--no-progress", help="Progress bar or log lines.")] = True,
-        scheduler: Annotated[str | None, typer.Option("--scheduler", help="Address of a running dask scheduler to run on.")] = None,
-        dask_cluster: Annotated[str | None, typer.Option("--dask-cluster", help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster extra).")] = None,
-        verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
+        output: Annotated[Path | None, typer.Option(
+            "--output", "-o",
+            help="Results file (default: [output] path of the job, with a shard suffix for a "
+                 "shard).")] = None,
+        workers: Annotated[int, typer.Option(
+            "--workers", "-w", min=1, help="Worker processes.")] = 1,
+        force: Annotated[bool, typer.Option(
+            "--force", help="Overwrite an existing results file.")] = False,
+        resume: Annotated[bool, typer.Option(
+            "--resume",
+            help="Continue the results file if it exists (same job only); start it "
+                 "otherwise.")] = False,
+        shard: Annotated[str | None, typer.Option(
+            "--shard",
+            help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or "
+                 "PBS).")] = None,
+        chunk_size: Annotated[int | None, typer.Option(
+            "--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each",
+            help="Grid points per task.")] = None,
+        checkpoint_every: Annotated[float, typer.Option(
+            "--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
+        progress: Annotated[bool, typer.Option(
+            "--progress/--no-progress", help="Progress bar or log lines.")] = True,
+        scheduler: Annotated[str | None, typer.Option(
+            "--scheduler", help="Address of a running dask scheduler to run on.")] = None,
+        dask_cluster: Annotated[str | None, typer.Option(
+            "--dask-cluster",
+            help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster "
+                 "extra).")] = None,
+        verbose: Annotated[bool, typer.Option(
+            "--verbose", "-v",
+            help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
-    from .jobfile import load_job
-    from .run.runner import run_job
-    from .run.shards import parse_shard
-    from .store import Results
-    from .store.provenance import new_results, now
+    from .run.session import RunSession
 
-    client = cluster = None
+    session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
+                         shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
+                         progress=progress, scheduler=scheduler, dask_cluster=dask_cluster)
+    loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
+    say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:
-        job = load_job(job_file)
-        part = parse_shard(shard) if shard is not None else None
-        out = output or Path(job.output)
-        if part is not None and output is None:
-            out = out.with_name(out.stem + part.suffix() + out.suffix)
-        if force and resume:
-            raise SweepError("--force and --resume exclude each other: --force starts afresh, "
-                             "--resume continues the existing file.")
-        if scheduler and dask_cluster:
-            raise SweepError("give --scheduler or --dask-cluster, not both.")
-        if resume and out.exists():
-            results = Results.read(out)
-            if results.attrs.get("job_sha256") != job.sha256:
-                raise SweepError(f"{out}: was written by a different job (sha256 "
-                                 f"{results.attrs.get('job_sha256', '?')[:12]}, this job "
-                                 f"{job.sha256[:12]}); refusing to resume. Run without --resume "
-                                 "and with -o NEW_FILE, or --force to start afresh.")
-            if results.attrs.get("shard", "") != (part.label() if part else ""):
-                raise SweepError(f"{out}: holds shard {results.attrs.get('shard') or 'none'!r}, "
-                                 f"not {part.label() if part else 'none'!r}; refusing to resume.")
-            results.attrs["command_line"] += " ; " + " ".join(sys.argv)
-        else:
-            if out.exists() and not force:
-                raise SweepError(f"{out}: exists; refusing to overwrite it. Use --force to start "
-                                 "afresh or --resume to continue it.")
-            results = new_results(job)
-            if part is not None:
-                results.attrs["shard"] = part.label()
-        executor = None
-        if scheduler or dask_cluster:
-            from .run.executors import DaskExecutor, connect_dask
-
-            client, cluster = connect_dask(scheduler, dask_cluster)
-            executor = DaskExecutor(client)
-        out.parent.mkdir(parents=True, exist_ok=True)
-        results.write(out)
-        if verbose or (ctx.obj is not None and ctx.obj.verbose):
-            todo = results.size - results.n_done
-            typer.echo(f"{job.path}: {job.title}; {results.n_done} of {results.size} points "
-                       f"done, {todo} to go"
-                       + (f" (shard {part.label()})" if part else "")
-                       + f"; {executor.workers if executor else workers} worker(s); "
-                       f"measurements: {', '.join(n for n, _ in job.measurements)}; -> {out}",
-                       err=True)
-        summary = run_job(job, results, workers=workers, chunk_size=chunk_size,
-                            checkpoint=lambda r: r.write(out), checkpoint_every=checkpoint_every,
-                            progress=progress, executor=executor,
-                            selection=part.indices(job.size) if part else None)
-        if not summary.interrupted:
-            if job.predict is not None and part is None:
-                from .run.predict import predict_transitions
-
-                results.tables["transitions"] = predict_transitions(job)
-            results.attrs["finished"] = now()
-            results.write(out)
+        done = session.run(say)
     except SweepError as exc:
         _fail(ctx, exc)
         return
-    finally:
-        if client is not None:
-            client.close()
-        if cluster is not None:
-            cluster.close()
+    summary, out = done.run, done.output
     failed = f", {summary.failed} failed (see `sweepcli show {out}`)" if summary.failed else ""
     if summary.interrupted:
-        again = " ".join(["sweepcli run", str(job_file), "-o", str(out), "--resume"]
-                         + (["--shard", part.label()] if part else []))
         typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
-                   f"Resume with: {again}", err=True)
+                   f"Resume with: {done.resume_command}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
     typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
 
@@ -169,45 +132,32 @@ def run(ctx: typer.Context,
 @app.command()
 def merge(ctx: typer.Context,
           output: Annotated[Path, typer.Argument(help="Merged results file.", metavar="OUT")],
-          shards: Annotated[list[Path], typer.Argument(help="Shard results files.", metavar="SHARD...")],
-          partial: Annotated[bool, typer.Option("--partial", help="Write the merged file even if points are missing.")] = False,
+          shards: Annotated[list[Path], typer.Argument(
+              help="Shard results files.", metavar="SHARD...")],
+          partial: Annotated[bool, typer.Option(
+              "--partial", help="Write the merged file even if points are missing.")] = False,
           force: Annotated[bool, typer.Option("--force", help="Overwrite OUT.")] = False,
           ) -> None:
     """Merge the shard files of one job into OUT, checking that they belong together."""
-    from .store.merge import merge_results
+    from .run.session import merge_shards
 
     try:
-        if output.exists() and not force:
-            raise SweepError(f"{output}: exists; refusing to overwrite it. Use --force.")
-        merged, report = merge_results(shards)
-        if not report.complete:
-            first = "; ".join(", ".join(f"{k}={v:g}" for k, v in p.items()) for p in report.missing)
-            msg = (f"{report.n_missing} of {report.total} points are in none of the {report.files} "
-                   f"shards (first: {first})")
-            if not partial:
-                raise SweepError(msg + "; refusing to merge an incomplete set (use --partial).")
-            typer.echo(f"warning: {msg}.", err=True)
-        if report.complete:
-            from .store.provenance import stored_job
-
-            job = stored_job(merged, str(shards[0]))
-            if job.predict is not None:
-                # Shards skip the predicted transitions; the merged grid gets them, as a full run.
-                from .run.predict import predict_transitions
-
-                merged.tables["transitions"] = predict_transitions(job)
-        output.parent.mkdir(parents=True, exist_ok=True)
-        merged.write(output)
+        report, warnings = merge_shards(shards, output, partial=partial, force=force)
     except SweepError as exc:
         _fail(ctx, exc)
         return
+    for line in warnings:
+        typer.echo(line, err=True)
     typer.echo(f"merged {report.files} shards: {report.done}/{report.total} points -> {output}")
 
 
 @app.command()
 def check(ctx: typer.Context,
           job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
-          time_one: Annotated[bool, typer.Option("--time-one", help="Also evaluate the middle grid point once and report its time (this runs one point).")] = False,
+          time_one: Annotated[bool, typer.Option(
+              "--time-one",
+              help="Also evaluate the middle grid point once and report its time (this runs one "
+                   "point).")] = False,
           ) -> None:
     """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
     from .jobfile import load_job
@@ -221,10 +171,12 @@ def check(ctx: typer.Context,
         _fail(ctx, exc)
         return
     typer.echo(f"{job_file}: ok ({job.title})")
-    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); drive: {job.drive.kind}")
+    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); "
+               f"drive: {job.drive.kind}")
     typer.echo(f"grid: {' x '.join(str(n) for n in job.shape)} = {job.size} points")
     for a in job.axes:
-        typer.echo(f"  {a.name}: {len(a.values)} values, {a.values[0]:g} .. {a.values[-1]:g} ({a.spacing})")
+        typer.echo(f"  {a.name}: {len(a.values)} values, {a.values[0]:g} .. {a.values[-1]:g} "
+                   f"({a.spacing})")
     for name, options in job.measurements:
         opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
         typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
@@ -239,12 +191,22 @@ def check(ctx: typer.Context,
 @app.command()
 def batch(ctx: typer.Context,
           job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
-          tasks: Annotated[int, typer.Option("--tasks", "-n", min=1, help="Array tasks (shards).")] = 10,
-          workers: Annotated[int, typer.Option("--workers", "-w", min=1, help="Worker processes per task.")] = 1,
-          directory: Annotated[Path, typer.Option("--dir", help="Where to write the scripts.")] = Path("."),
-          force: Annotated[bool, typer.Option("--force", help="Overwrite existing scripts.")] = False,
-          seconds_per_point: Annotated[float | None, typer.Option("--seconds-per-point", min=0.0, help="Per-point time to size the wall time with (default: the estimate of `sweepcli check`, or the timed point if longer).")] = None,
-          time_one: Annotated[bool, typer.Option("--time-one/--no-time-one", help="Evaluate the middle grid point once here and size the wall time by the longer of its time and the estimate.")] = True,
+          tasks: Annotated[int, typer.Option(
+              "--tasks", "-n", min=1, help="Array tasks (shards).")] = 10,
+          workers: Annotated[int, typer.Option(
+              "--workers", "-w", min=1, help="Worker processes per task.")] = 1,
+          directory: Annotated[Path, typer.Option(
+              "--dir", help="Where to write the scripts.")] = Path("."),
+          force: Annotated[bool, typer.Option(
+              "--force", help="Overwrite existing scripts.")] = False,
+          seconds_per_point: Annotated[float | None, typer.Option(
+              "--seconds-per-point", min=0.0,
+              help="Per-point time to size the wall time with (default: the estimate of `sweepcli "
+                   "check`, or the timed point if longer).")] = None,
+          time_one: Annotated[bool, typer.Option(
+              "--time-one/--no-time-one",
+              help="Evaluate the middle grid point once here and size the wall time by the longer "
+                   "of its time and the estimate.")] = True,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from .jobfile import load_job
@@ -261,7 +223,8 @@ def batch(ctx: typer.Context,
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:
             if (directory / name).exists() and not force:
-                raise SweepError(f"{directory / name}: exists; refusing to overwrite it. Use --force.")
+                raise SweepError(f"{directory / name}: exists; refusing to overwrite it. "
+                                 "Use --force.")
         for name, text in texts.items():
             (directory / name).write_text(text)
             (directory / name).chmod(0o755)
@@ -296,12 +259,25 @@ def show(ctx: typer.Context,
 @app.command("map")
 def map_(ctx: typer.Context,
          results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-         var: Annotated[str | None, typer.Option("--var", help="Variable to draw (default: the job's main invariant).")] = None,
-         output: Annotated[Path | None, typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
-         at: Annotated[list[str] | None, typer.Option("--at", help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a value off the axis is refused).")] = None,
-         terminal: Annotated[bool, typer.Option("--terminal", help="Print the map as characters (readable over SSH) instead of writing a picture.")] = False,
-         width: Annotated[int | None, typer.Option("--width", min=20, help="Width of the --terminal map in characters (default: the terminal's).")] = None,
-         mark_disagree: Annotated[bool, typer.Option("--mark-disagree", help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
+         var: Annotated[str | None, typer.Option(
+             "--var", help="Variable to draw (default: the job's main invariant).")] = None,
+         output: Annotated[Path | None, typer.Option(
+             "--output", "-o",
+             help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+         at: Annotated[list[str] | None, typer.Option(
+             "--at",
+             help="Fix a swept parameter: NAME=VALUE (the nearest grid value, which is named; a "
+                  "value off the axis is refused).")] = None,
+         terminal: Annotated[bool, typer.Option(
+             "--terminal",
+             help="Print the map as characters (readable over SSH) instead of writing a "
+                  "picture.")] = False,
+         width: Annotated[int | None, typer.Option(
+             "--width", min=20,
+             help="Width of the --terminal map in characters (default: the terminal's).")] = None,
+         mark_disagree: Annotated[bool, typer.Option(
+             "--mark-disagree",
+             help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
     from .report.maps import at_notes, draw_map
@@ -331,10 +307,14 @@ def map_(ctx: typer.Context,
 
 @app.command()
 def boundaries(ctx: typer.Context,
-               results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-               var: Annotated[str | None, typer.Option("--var", help="Integer variable (default: the first invariant).")] = None,
-               output: Annotated[Path | None, typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
-               at: Annotated[list[str] | None, typer.Option("--at", help="Fix a swept parameter: NAME=VALUE.")] = None,
+               results_file: Annotated[Path, typer.Argument(
+                   help="Results file.", metavar="RESULTS")],
+               var: Annotated[str | None, typer.Option(
+                   "--var", help="Integer variable (default: the first invariant).")] = None,
+               output: Annotated[Path | None, typer.Option(
+                   "--output", "-o", help="CSV file (default: stdout).")] = None,
+               at: Annotated[list[str] | None, typer.Option(
+                   "--at", help="Fix a swept parameter: NAME=VALUE.")] = None,
                ) -> None:
     """Phase boundaries of a two-parameter map as polylines in CSV (value, line, x, y)."""
     from .report.boundaries import boundaries_csv, phase_boundaries
@@ -357,11 +337,24 @@ def boundaries(ctx: typer.Context,
 @app.command()
 def sample(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-           at: Annotated[list[str] | None, typer.Option("--at", help="The grid point: NAME=VALUE (nearest grid value; other axes their first value).")] = None,
-           kind: Annotated[str | None, typer.Option("--kind", help="flake, chain or ribbon (default: the job's boundary measurement, else what its invariants predict: ribbon for Chern-type, flake for line windings, chain in 1D).")] = None,
-           size: Annotated[int | None, typer.Option("--size", min=1, help="Cells: flake side, chain length or ribbon width (default: the job's).")] = None,
-           gap: Annotated[str, typer.Option("--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
-           output: Annotated[Path | None, typer.Option("--output", "-o", help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+           at: Annotated[list[str] | None, typer.Option(
+               "--at",
+               help="The grid point: NAME=VALUE (nearest grid value; other axes their first "
+                    "value).")] = None,
+           kind: Annotated[str | None, typer.Option(
+               "--kind",
+               help="flake, chain or ribbon (default: the job's boundary measurement, else what "
+                    "its invariants predict: ribbon for Chern-type, flake for line windings, chain "
+                    "in 1D).")] = None,
+           size: Annotated[int | None, typer.Option(
+               "--size", min=1,
+               help="Cells: flake side, chain length or ribbon width (default: the "
+                    "job's).")] = None,
+           gap: Annotated[str, typer.Option(
+               "--gap", help="Gap whose in-gap states are drawn: 0, or pi for a drive.")] = "0",
+           output: Annotated[Path | None, typer.Option(
+               "--output", "-o",
+               help="Picture file; format from the suffix (png, svg, pdf).")] = None,
            ) -> None:
     """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
     from .report.sample_plot import draw_sample
@@ -415,14 +408,30 @@ EXIT_DIFFER = 1
 def diff_(ctx: typer.Context,
           a: Annotated[Path, typer.Argument(help="First results file.", metavar="A")],
           b: Annotated[Path, typer.Argument(help="Second results file.", metavar="B")],
-          rtol: Annotated[float, typer.Option("--rtol", min=0.0, help="Relative tolerance for floats: |a - b| <= atol + rtol * max(|a|, |b|).")] = 1e-6,
-          atol: Annotated[float, typer.Option("--atol", min=0.0, help="Absolute tolerance for floats.")] = 1e-12,
-          coord_tol: Annotated[float, typer.Option("--coord-tol", min=0.0, help="Relative tolerance for matching coordinate values of the two grids.")] = 1e-9,
-          provenance: Annotated[bool, typer.Option("--provenance", help="Also count a different job, versions or provenance (not times, host, command line) as a difference.")] = False,
-          common: Annotated[bool, typer.Option("--common", help="Judge only the common grid points: a subset or refinement is then no difference.")] = False,
-          top: Annotated[int, typer.Option("--top", min=0, help="Largest deviations listed per variable.")] = 5,
+          rtol: Annotated[float, typer.Option(
+              "--rtol", min=0.0,
+              help="Relative tolerance for floats: |a - b| <= atol + rtol * max(|a|, "
+                   "|b|).")] = 1e-6,
+          atol: Annotated[float, typer.Option(
+              "--atol", min=0.0, help="Absolute tolerance for floats.")] = 1e-12,
+          coord_tol: Annotated[float, typer.Option(
+              "--coord-tol", min=0.0,
+              help="Relative tolerance for matching coordinate values of the two grids.")] = 1e-9,
+          provenance: Annotated[bool, typer.Option(
+              "--provenance",
+              help="Also count a different job, versions or provenance (not times, host, command "
+                   "line) as a difference.")] = False,
+          common: Annotated[bool, typer.Option(
+              "--common",
+              help="Judge only the common grid points: a subset or refinement is then no "
+                   "difference.")] = False,
+          top: Annotated[int, typer.Option(
+              "--top", min=0, help="Largest deviations listed per variable.")] = 5,
           as_json: Annotated[bool, typer.Option("--json", help="Machine-readable output.")] = False,
-          maps: Annotated[bool, typer.Option("--maps", help="Also draw, per differing variable, a character map of where it differs.")] = False,
+          maps: Annotated[bool, typer.Option(
+              "--maps",
+              help="Also draw, per differing variable, a character map of where it "
+                   "differs.")] = False,
           ) -> None:
     """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
@@ -449,9 +458,16 @@ def diff_(ctx: typer.Context,
 @app.command()
 def export(ctx: typer.Context,
            results_file: Annotated[Path, typer.Argument(help="Results file.", metavar="RESULTS")],
-           var: Annotated[list[str] | None, typer.Option("--var", help="Variable to export (repeatable; default all; done and failure on request).")] = None,
-           output: Annotated[Path | None, typer.Option("--output", "-o", help="CSV file (default: stdout).")] = None,
-           table_name: Annotated[str | None, typer.Option("--table", help="Write a table stored beside the grid instead, one row per entry: transitions (the predicted gap closings).")] = None,
+           var: Annotated[list[str] | None, typer.Option(
+               "--var",
+               help="Variable to export (repeatable; default all; done and failure on "
+                    "request).")] = None,
+           output: Annotated[Path | None, typer.Option(
+               "--output", "-o", help="CSV file (default: stdout).")] = None,
+           table_name: Annotated[str | None, typer.Option(
+               "--table",
+               help="Write a table stored beside the grid instead, one row per entry: transitions "
+                    "(the predicted gap closings).")] = None,
            ) -> None:
     """Write variables of RESULTS as CSV, one row per grid point (missing values empty)."""
     from .report.export import export_table, table_export, write_csv
@@ -471,7 +487,8 @@ def export(ctx: typer.Context,
             with open(output, "w", newline="", encoding="utf-8") as fh:
                 n = write_csv(table, fh)
         except OSError as exc:
-            raise SweepError(f"{output}: cannot write the CSV file ({exc.strerror or exc}).") from None
+            raise SweepError(f"{output}: cannot write the CSV file "
+                             f"({exc.strerror or exc}).") from None
     except SweepError as exc:
         _fail(ctx, exc)
         return

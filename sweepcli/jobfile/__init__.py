@@ -8,6 +8,7 @@ and what was given. Job files are data: expressions are parsed by :mod:`sweepcli
 
 from .parse import build_job, load_job, read_toml
 from .spec import Axis, CustomModel, DriveSpec, Job, Refine
+from .stored import job_from_results
 
-__all__ = ["Axis", "CustomModel", "DriveSpec", "Job", "Refine", "build_job", "load_job",
-           "read_toml"]
+__all__ = ["Axis", "CustomModel", "DriveSpec", "Job", "Refine", "build_job", "job_from_results",
+           "load_job", "read_toml"]

@@ -13,8 +13,10 @@ import numpy as np
 from ..expressions import Expression
 from ..physics.lattice import TightBinding, assemble
 from ..physics.measurements import quantities_of
+from ..physics.measurements.consistency import Rule, rules_for
 from ..physics.models import MODELS
-from ..physics.point import Point, Quantity
+from ..physics.point import Point
+from ..schema import Quantity
 
 
 @dataclass(frozen=True)
@@ -191,10 +193,8 @@ class Job:
         driven = self.drive.kind != "static"
         return [(name, quantities_of(name, self.dim, driven)) for name, _ in self.measurements]
 
-    def consistency_rules(self) -> list:
+    def consistency_rules(self) -> list[Rule]:
         """Bulk-boundary rules that apply to the quantities this job stores."""
-        from ..run.consistency import rules_for
-
         return rules_for({q.name for _, qs in self.quantities() for q in qs},
                          {name: dict(opts) for name, opts in self.measurements})
 

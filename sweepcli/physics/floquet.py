@@ -38,6 +38,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq, linear_sum_assignment
 
+from ..schema import Reason
 from . import invariants as inv
 from .drive import (
     Drive,
@@ -50,7 +51,6 @@ from .drive import (
     hermitian_exponential,
 )
 from .lattice import TightBinding, kmesh
-from .point import Reason
 from .spectrum import polish_minima, velocity_bound, wrap_k
 
 #: Default mesh of the quasienergy-gap search (points per direction; minima are refined).

@@ -66,8 +66,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..schema import Reason
 from .lattice import TightBinding, kmesh
-from .point import Reason
 from .spectrum import band_gap
 
 #: Largest accepted plaquette Berry flux (rad). A flux near pi means the curvature of one

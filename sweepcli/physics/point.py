@@ -1,43 +1,20 @@
-"""What a measurement sees at one grid point, and how it reports what it found.
+"""What a measurement sees at one grid point.
 
 A :class:`Point` is built by the runner from the resolved parameter values of one grid point.
 Measurements are pure functions ``f(point, **options) -> dict`` registered in
 :data:`sweepcli.physics.measurements.MEASUREMENTS`; results that several measurements need (the
-bulk gap, say) are memoised in ``point.cache`` so a point computes them once.
+bulk gap, say) are memoised in ``point.cache`` so a point computes them once. A measurement
+reports why a value is missing with :class:`sweepcli.schema.Reason`.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from enum import IntEnum
 from functools import cached_property
 from typing import Any
 
 from .lattice import TightBinding
-
-
-class Reason(IntEnum):
-    """Why a quantity at a point is missing; stored as ``<measurement>_reason`` (uint8)."""
-
-    OK = 0
-    GAP_CLOSED = 1  # the gap the invariant needs is below the tolerance
-    NOT_CONVERGED = 2  # the k-grid (or time grid) could not be raised far enough
-    SECTOR_GAP_CLOSED = 3  # an auxiliary spectrum (spin, symmetry sector) is gapless
-    FAILED = 4  # the evaluation raised; the message is in the point's failure record
-    NOT_COMPUTED = 5  # the point was not (yet) evaluated
-    FINITE_SIZE = 6  # a boundary count the largest allowed open sample cannot settle
-    EDGE_GAP_CLOSED = 7  # the edges of the sample are gapless, so corner modes are not defined
-
-
-@dataclass(frozen=True)
-class Quantity:
-    """A stored output variable: lowercase snake-case name, dtype, units and long name."""
-
-    name: str
-    dtype: str  # "float64" or "int32"
-    units: str
-    long_name: str
 
 
 @dataclass

@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import ResultsError
-from ..physics.point import Reason
+from ..schema import Reason
 from ..store import FILL_INT, Results
 from .terminal import Axis, fmt, render_grid
 

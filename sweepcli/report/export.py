@@ -16,7 +16,7 @@ from typing import IO, Any
 import numpy as np
 
 from ..errors import ResultsError, suggest
-from ..physics.point import Reason
+from ..schema import Reason
 from ..store import FILL_INT, Results
 from .summary import empty_slots
 

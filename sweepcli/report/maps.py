@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import ResultsError, SweepError, suggest
-from ..physics.point import Reason
+from ..schema import Reason
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 

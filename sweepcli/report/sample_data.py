@@ -30,8 +30,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import ResultsError, SweepError, suggest
+from ..jobfile import job_from_results
 from ..store import FILL_INT, Results
-from ..store.provenance import stored_job
 from .maps import axis_index
 
 #: Sample kind -> (boundary measurement whose options it takes, option holding its size).
@@ -313,7 +313,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
     from ..physics import floquet as fl
     from ..physics.measurements import boundary as mb
 
-    job = stored_job(results, label)
+    job = job_from_results(results, label)
     if gap not in GAPS:
         raise SweepError(f"--gap must be 0 or pi; got {gap!r}.")
     driven = job.drive.kind != "static"

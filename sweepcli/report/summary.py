@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..physics.point import Reason
+from ..schema import Reason
 from ..store import FILL_INT, Results
 
 PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "shard", "refine_by",

@@ -18,7 +18,7 @@ from typing import IO
 
 import numpy as np
 
-from ..physics.point import Reason
+from ..schema import Reason
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 from .maps import check_variable, discrete_levels, level_text, missing_reasons, select

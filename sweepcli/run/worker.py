@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from ..jobfile import Job
 from ..physics.measurements import MEASUREMENTS, quantities_of
-from ..physics.point import Reason
-from .consistency import evaluate
+from ..physics.measurements.consistency import evaluate
+from ..schema import Reason
 
 Record = tuple[int, dict, str]
 

@@ -17,7 +17,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultsError
-from ..physics.point import Reason
+from ..schema import Reason
 
 SCHEMA_VERSION = "1"
 MARKER = "sweepcli_schema"

@@ -5,7 +5,7 @@ import numpy as np
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.physics.point import Reason
+from sweepcli.schema import Reason
 from sweepcli.store import Results
 from sweepcli.store.results import FILL_INT
 

@@ -14,7 +14,7 @@ from scipy.linalg import expm
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.run.consistency import edge_sign, evaluate, rules_for
+from sweepcli.physics.measurements.consistency import edge_sign, evaluate, rules_for
 from sweepcli.store import Results
 
 SX = np.array([[0, 1], [1, 0]], complex)

@@ -12,11 +12,11 @@ import tomli_w
 
 from sweepcli.errors import ResultsError
 from sweepcli.jobfile import build_job, load_job
-from sweepcli.physics.point import Reason
 from sweepcli.report.maps import at_notes, default_variable, map_figure
 from sweepcli.report.terminal import terminal_map
+from sweepcli.run.layout import results_for_job
+from sweepcli.schema import Reason
 from sweepcli.store import FILL_INT
-from sweepcli.store.provenance import new_results
 
 from ..conftest import JOBS
 
@@ -45,7 +45,7 @@ def fill(job, values, *, done_fraction=1.0, gap_closed=()):
     through ``values`` over the grid; floats are positive ramps. The first ``done_fraction`` of
     the points (flat order) are evaluated; integer variables are missing with reason
     gap_closed at the flat indices ``gap_closed``."""
-    r = new_results(job)
+    r = results_for_job(job)
     n = r.size
     done = np.arange(n) < round(done_fraction * n)
     for name, v in r.variables.items():
@@ -225,14 +225,14 @@ def test_main_names_a_measured_quantity(write_job):
                                          r"'chen'\. Did you mean 'chern'\?"):
         load_job(write_job(base + 'main = "chen"\n'))
     job = load_job(write_job(base + 'main = "chern_kmesh"\n'))
-    assert new_results(job).attrs["main_variable"] == "chern_kmesh"
+    assert results_for_job(job).attrs["main_variable"] == "chern_kmesh"
     # [output] is no part of the job's identity
     assert job.sha256 == load_job(write_job(base + 'path = "x.h5"\n', "b.toml")).sha256
 
 
 @pytest.mark.parametrize("name", DEMOS)
 def test_every_axis_of_every_demo_is_described(name):
-    r = new_results(tiny_job(name))
+    r = results_for_job(tiny_job(name))
     for a in r.axes:
         assert a.long_name != a.name and a.long_name, (name, a.name)
         assert a.units, (name, a.name)
@@ -244,7 +244,7 @@ def test_sweep_doc_and_units_label_the_axis_without_changing_the_hash(write_job)
     plain = load_job(write_job(base.format("")))
     labelled = load_job(write_job(base.format(', doc = "mass", units = "eV"'), "b.toml"))
     assert plain.sha256 == labelled.sha256
-    axis = new_results(labelled).axes[0]
+    axis = results_for_job(labelled).axes[0]
     assert (axis.long_name, axis.units) == ("mass", "eV")
     with pytest.raises(Exception, match=r"\[sweep.m\] units must be a string; got 3\."):
         load_job(write_job(base.format(", units = 3"), "c.toml"))

@@ -19,7 +19,7 @@ from scipy.sparse.linalg import eigsh
 from sweepcli.physics import boundary as bd
 from sweepcli.physics.boundary import counts
 from sweepcli.physics.lattice import TightBinding
-from sweepcli.physics.point import Reason
+from sweepcli.schema import Reason
 
 S0 = np.eye(2)
 SX = np.array([[0, 1], [1, 0]], complex)

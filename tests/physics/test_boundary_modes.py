@@ -19,7 +19,8 @@ from sweepcli.physics.boundary import counts
 from sweepcli.physics.invariants import chern_number, winding_number
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
-from sweepcli.physics.point import Point, Reason
+from sweepcli.physics.point import Point
+from sweepcli.schema import Reason
 
 
 def model(name: str, **kw):

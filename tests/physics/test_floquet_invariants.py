@@ -18,7 +18,8 @@ from sweepcli.physics.drive import HarmonicDrive, StepDrive, floquet_operator
 from sweepcli.physics.lattice import assemble, pauli
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
-from sweepcli.physics.point import Point, Reason
+from sweepcli.physics.point import Point
+from sweepcli.schema import Reason
 
 SZ = pauli("z")
 

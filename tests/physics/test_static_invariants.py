@@ -14,8 +14,9 @@ from sweepcli.physics import invariants as inv
 from sweepcli.physics.lattice import kmesh, pauli
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
-from sweepcli.physics.point import Point, Reason
+from sweepcli.physics.point import Point
 from sweepcli.physics.spectrum import band_gap
+from sweepcli.schema import Reason
 
 RNG = np.random.default_rng(7)
 

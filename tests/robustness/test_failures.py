@@ -10,9 +10,9 @@ from sweepcli.errors import ResultsError
 from sweepcli.jobfile import load_job
 from sweepcli.physics.measurements import MEASUREMENTS
 from sweepcli.physics.registry import Entry
+from sweepcli.run.layout import results_for_job
 from sweepcli.run.runner import run_sweep
 from sweepcli.store import Results
-from sweepcli.store.provenance import new_results
 
 JOB = """
 [model]
@@ -61,7 +61,7 @@ def test_unwritable_checkpoint_keeps_the_previous_file(tmp_path, monkeypatch):
     out = tmp_path / "out.h5"
     job_path.write_text(JOB.replace("OUT", str(out)))
     job = load_job(job_path)
-    results = new_results(job)
+    results = results_for_job(job)
     results.write(out)
     before = out.read_bytes()
 

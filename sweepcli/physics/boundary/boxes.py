@@ -24,7 +24,7 @@ from .. import floquet as fl
 from .. import samples
 from ..drive import evolve
 from ..lattice import TightBinding
-from ..point import Reason
+from ...schema import Reason
 from . import counts
 from .ribbons import ribbon_kgrid
 from .solvers import floquet_levels, sample_steps, static_levels

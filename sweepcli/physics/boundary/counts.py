@@ -62,7 +62,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..point import Reason
+from ...schema import Reason
 
 TAIL_TOL = 0.05
 INTEGER_TOL = 0.15

@@ -24,7 +24,7 @@ from .. import floquet as fl
 from .. import samples
 from ..drive import evolve
 from ..lattice import TightBinding
-from ..point import Reason
+from ...schema import Reason
 from .windows import Window
 
 #: Offset of the ribbon k grid, in grid steps: irrational, so that high-symmetry momenta, where

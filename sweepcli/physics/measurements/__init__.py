@@ -3,7 +3,7 @@
 A measurement is registered with
 
 * ``params``: its options, declared with constraints (validated once, at job load);
-* ``quantities``: the stored variables, a tuple of :class:`~sweepcli.physics.point.Quantity` or a
+* ``quantities``: the stored variables, a tuple of :class:`~sweepcli.schema.Quantity` or a
   callable ``quantities(dim, driven=False) -> tuple`` when they depend on the lattice dimension
   or on whether the job is driven;
 * ``dims``: the lattice dimensions it applies to; ``driven``: ``False`` (static jobs only),
@@ -11,13 +11,13 @@ A measurement is registered with
   model must provide (``"chiral"``, ``"spin"``);
 
 and its function ``f(point, **options) -> dict`` returns one value per quantity plus
-``"reason"`` (a :class:`~sweepcli.physics.point.Reason`). A missing float is ``nan``, a missing
+``"reason"`` (a :class:`~sweepcli.schema.Reason`). A missing float is ``nan``, a missing
 integer ``None``; the reason says why. The variable ``<name>_reason`` is added by the store.
 """
 
 from __future__ import annotations
 
-from ..point import Quantity
+from ...schema import Quantity
 from ..registry import Registry
 
 MEASUREMENTS: Registry = Registry("measurement")

@@ -31,10 +31,11 @@ import math
 from dataclasses import replace
 from typing import Any
 
+from ...schema import Quantity, Reason
 from .. import boundary as bd
 from .. import samples
 from ..drive import StepDrive
-from ..point import Point, Quantity, Reason
+from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
 from .driven import point_gaps, point_slicing

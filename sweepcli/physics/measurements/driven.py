@@ -19,11 +19,12 @@ from typing import Any
 
 import numpy as np
 
+from ...schema import Quantity, Reason
 from .. import floquet as fl
 from .. import invariants as inv
 from ..drive import Slicing, decide_slicing
 from ..lattice import pauli
-from ..point import Point, Quantity, Reason
+from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
 

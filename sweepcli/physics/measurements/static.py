@@ -12,8 +12,9 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from ...schema import Quantity, Reason
 from .. import invariants as inv
-from ..point import Point, Quantity, Reason
+from ..point import Point
 from ..registry import Param
 from ..spectrum import GapResult, band_gap
 from . import MEASUREMENTS

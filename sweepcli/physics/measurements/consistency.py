@@ -38,7 +38,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from ..physics.point import Quantity
+from ...schema import Quantity
 
 CORNERS = ("00", "10", "01", "11")
 

@@ -1,0 +1,49 @@
+"""The results layout of a job: its axes, stored variables and job attributes.
+
+This is where the job meets the store: the axes take their units and long names from the job
+file or, failing that, from the model's declared parameters, and every measurement adds its
+quantities and a ``<measurement>_reason`` variable (results-schema.md).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..jobfile import Job
+from ..physics.models import MODELS
+from ..store import Results, Variable
+from ..store.provenance import new_results
+from ..store.results import AxisData
+
+
+def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
+    """Preallocated results for every grid point of ``job``, nothing computed yet."""
+    axes = []
+    for a in job.axes:
+        param = MODELS[job.model].param(a.name) if job.model in MODELS else None
+        units = a.units or (param.units if param is not None and param.units else "1")
+        long_name = a.doc or (param.doc if param is not None and param.doc else a.name)
+        axes.append(AxisData(a.name, np.array(a.values), units, long_name, a.spacing))
+    variables = []
+    for measurement, quantities in job.quantities():
+        for q in quantities:
+            variables.append(Variable(q.name, q.dtype, q.units, q.long_name, measurement))
+        variables.append(Variable(f"{measurement}_reason", "uint8", "1",
+                                  f"why {measurement} is missing (0 = not missing)", measurement))
+    for rule in job.consistency_rules():
+        q = rule.quantity
+        variables.append(Variable(q.name, q.dtype, q.units, q.long_name, "consistency"))
+    attrs = {
+        "title": job.title,
+        "job_name": job.name,
+        "job_path": job.path,
+        "job_text": job.text,
+        "job_normalised": job.normalised,
+        "job_sha256": job.sha256,
+    }
+    if job.main is not None:
+        attrs["main_variable"] = job.main
+    if job.refine is not None:
+        attrs["refine_by"] = job.refine.by
+        attrs["refine_stride"] = str(job.refine.stride)
+    return new_results(axes, variables, attrs, argv)

@@ -1,0 +1,171 @@
+"""One `sweepcli run` and one `sweepcli merge`, start to finish, as library calls.
+
+:class:`RunSession` decides which file a run writes and whether it may (``force``, ``resume``,
+the job's sha256 and shard label must match the file it continues), connects dask when asked,
+runs the sweep with checkpoints and, when it finishes, adds the predicted transitions and the
+finish time. :func:`merge_shards` merges shard files and, for a complete grid, adds what shards
+skip. The command line only turns options into these calls and their results into text.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..errors import SweepError
+from ..jobfile import Job, job_from_results, load_job
+from ..store import Results
+from ..store.merge import MergeReport, merge_results
+from ..store.provenance import now
+from .layout import results_for_job
+from .runner import RunSummary, run_job
+from .shards import Shard, parse_shard
+
+
+@dataclass(frozen=True)
+class SessionSummary:
+    """What a run did: its counts (:class:`RunSummary`), where it wrote and how to go on."""
+
+    run: RunSummary
+    output: Path
+    resume_command: str  # the command that continues an interrupted run
+
+
+@dataclass
+class RunSession:
+    """Evaluate every grid point of a job file (or one shard of them) into one results file.
+
+    Parameters mirror ``sweepcli run``: ``output`` defaults to the job's ``[output] path`` with
+    the shard suffix for a shard; ``force`` starts afresh over an existing file, ``resume``
+    continues one written by the same job (same sha256) and shard; ``shard`` is ``I/N``,
+    ``auto`` or ``auto/N`` (:func:`sweepcli.run.shards.parse_shard`); ``scheduler`` or
+    ``dask_cluster`` run on dask (:func:`sweepcli.run.executors.connect_dask`); ``argv`` is the
+    command line recorded in the file (default ``sys.argv``).
+    """
+
+    job_file: Path
+    output: Path | None = None
+    workers: int = 1
+    force: bool = False
+    resume: bool = False
+    shard: str | None = None
+    chunk_size: int | None = None
+    checkpoint_every: float = 60.0
+    progress: bool = True
+    scheduler: str | None = None
+    dask_cluster: str | None = None
+    argv: list[str] = field(default_factory=lambda: list(sys.argv))
+
+    def run(self, say: Callable[[str], None] | None = None) -> SessionSummary:
+        """Run the session; ``say`` (if given) receives one line on what is about to be computed.
+
+        Raises
+        ------
+        SweepError
+            On a bad job file or option, an existing output without ``force`` or ``resume``, a
+            file of another job or shard to resume, or a dask cluster that does not start.
+        """
+        job = load_job(self.job_file)
+        part = parse_shard(self.shard) if self.shard is not None else None
+        out = self.output or Path(job.output)
+        if part is not None and self.output is None:
+            out = out.with_name(out.stem + part.suffix() + out.suffix)
+        if self.force and self.resume:
+            raise SweepError("--force and --resume exclude each other: --force starts afresh, "
+                             "--resume continues the existing file.")
+        if self.scheduler and self.dask_cluster:
+            raise SweepError("give --scheduler or --dask-cluster, not both.")
+        results = self._open(job, part, out)
+        client = cluster = executor = None
+        try:
+            if self.scheduler or self.dask_cluster:
+                from .executors import DaskExecutor, connect_dask
+
+                client, cluster = connect_dask(self.scheduler, self.dask_cluster)
+                executor = DaskExecutor(client)
+            out.parent.mkdir(parents=True, exist_ok=True)
+            results.write(out)
+            if say is not None:
+                todo = results.size - results.n_done
+                say(f"{job.path}: {job.title}; {results.n_done} of {results.size} points done, "
+                    f"{todo} to go" + (f" (shard {part.label()})" if part else "")
+                    + f"; {executor.workers if executor else self.workers} worker(s); "
+                    f"measurements: {', '.join(n for n, _ in job.measurements)}; -> {out}")
+            summary = run_job(job, results, workers=self.workers, chunk_size=self.chunk_size,
+                              checkpoint=lambda r: r.write(out),
+                              checkpoint_every=self.checkpoint_every, progress=self.progress,
+                              executor=executor,
+                              selection=part.indices(job.size) if part else None)
+            if not summary.interrupted:
+                if job.predict is not None and part is None:
+                    from .predict import predict_transitions
+
+                    results.tables["transitions"] = predict_transitions(job)
+                results.attrs["finished"] = now()
+                results.write(out)
+        finally:
+            if client is not None:
+                client.close()
+            if cluster is not None:
+                cluster.close()
+        again = " ".join(["sweepcli run", str(self.job_file), "-o", str(out), "--resume"]
+                         + (["--shard", part.label()] if part else []))
+        return SessionSummary(summary, out, again)
+
+    def _open(self, job: Job, part: Shard | None, out: Path) -> Results:
+        """The results to continue (``resume`` and the file exists) or a fresh one."""
+        if self.resume and out.exists():
+            results = Results.read(out)
+            if results.attrs.get("job_sha256") != job.sha256:
+                raise SweepError(f"{out}: was written by a different job (sha256 "
+                                 f"{results.attrs.get('job_sha256', '?')[:12]}, this job "
+                                 f"{job.sha256[:12]}); refusing to resume. Run without --resume "
+                                 "and with -o NEW_FILE, or --force to start afresh.")
+            if results.attrs.get("shard", "") != (part.label() if part else ""):
+                raise SweepError(f"{out}: holds shard {results.attrs.get('shard') or 'none'!r}, "
+                                 f"not {part.label() if part else 'none'!r}; refusing to resume.")
+            results.attrs["command_line"] += " ; " + " ".join(self.argv)
+            return results
+        if out.exists() and not self.force:
+            raise SweepError(f"{out}: exists; refusing to overwrite it. Use --force to start "
+                             "afresh or --resume to continue it.")
+        results = results_for_job(job, self.argv)
+        if part is not None:
+            results.attrs["shard"] = part.label()
+        return results
+
+
+def merge_shards(shards: list[Path], output: Path, *, partial: bool = False,
+                 force: bool = False) -> tuple[MergeReport, list[str]]:
+    """Merge the shard files of one job into ``output``; returns the report and warnings.
+
+    A complete merged grid gets the predicted transitions that shards skip, as a full run.
+
+    Raises
+    ------
+    SweepError
+        If ``output`` exists without ``force``, the shards do not belong together, or points
+        are missing without ``partial``.
+    """
+    if output.exists() and not force:
+        raise SweepError(f"{output}: exists; refusing to overwrite it. Use --force.")
+    merged, report = merge_results(shards)
+    warnings = []
+    if not report.complete:
+        first = "; ".join(", ".join(f"{k}={v:g}" for k, v in p.items()) for p in report.missing)
+        msg = (f"{report.n_missing} of {report.total} points are in none of the {report.files} "
+               f"shards (first: {first})")
+        if not partial:
+            raise SweepError(msg + "; refusing to merge an incomplete set (use --partial).")
+        warnings.append(f"warning: {msg}.")
+    else:
+        job = job_from_results(merged, str(shards[0]))
+        if job.predict is not None:
+            from .predict import predict_transitions
+
+            merged.tables["transitions"] = predict_transitions(job)
+    output.parent.mkdir(parents=True, exist_ok=True)
+    merged.write(output)
+    return report, warnings
