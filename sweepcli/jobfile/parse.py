@@ -16,6 +16,7 @@ import tomli_w
 
 from ..errors import JobError, sentence, suggest
 from ..expressions import Expression, ExpressionError, parse
+from ..physics.drives import DRIVES
 from ..physics.measurements import MEASUREMENTS, quantities_of
 from ..physics.models import MODELS
 from ..physics.registry import Param
@@ -29,7 +30,7 @@ LATTICES = {
     "square": np.eye(2),
     "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
 }
-DRIVE_KINDS = ("static", "steps", "harmonic", "kicks")
+DRIVE_KINDS = ("static", *DRIVES.names())
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
 MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
@@ -308,19 +309,18 @@ def _finer(axis: Axis, depth: int) -> Axis:
     return replace(axis, values=tuple(float(v) for v in vals))
 
 
-def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
-    kind = t.get("kind", "static")
-    if kind not in DRIVE_KINDS:
-        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
-                      kind, suggest(str(kind), DRIVE_KINDS))
-    allowed = {"static": ["kind"], "steps": ["kind", "period", "omega", "step"],
-               "harmonic": ["kind", "period", "omega", "term", "tol", "max_slices", "scheme"],
-               "kicks": ["kind", "period", "omega", "kick"]}[kind]
-    ck.only("drive", t, allowed)
-    if kind == "static":
-        return DriveSpec()
+class _DriveReader:
+    """What a drive protocol's ``parse`` hook may use to read its part of the ``[drive]`` table
+    (the contract is in :mod:`sweepcli.physics.drives.base`)."""
 
-    def expr(table: str, key: str, value: object) -> Expression:
+    def __init__(self, ck: Checker, t: dict, known: set[str], model_params: set[str]) -> None:
+        self.ck, self.t, self.known, self.model_params = ck, t, known, model_params
+        self.only, self.number, self.fail = ck.only, ck.number, ck.fail
+        self.suggest = suggest
+
+    def expr(self, table: str, key: str, value: object) -> Expression:
+        """An arithmetic expression of the job's parameters."""
+        ck = self.ck
         if isinstance(value, bool) or not isinstance(value, (int, float, str)):
             raise ck.fail(table, key, "a number or an arithmetic expression", value)
         try:
@@ -329,81 +329,53 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
             raise ck.fail(table, key, "a number or an arithmetic expression", value,
                           " " + sentence(exc)) from None
         for n in sorted(e.names):
-            if n not in known:
+            if n not in self.known:
                 raise ck.fail(table, key, "an expression of defined parameters", value,
-                              f" {n!r} is not defined in [params] or [sweep].{suggest(n, known)}")
+                              f" {n!r} is not defined in [params] or [sweep]."
+                              f"{suggest(n, self.known)}")
         return e
 
-    def overrides(table: str, value: object) -> tuple:
+    def overrides(self, table: str, value: object) -> tuple:
+        """A ``set = { param = expression, ... }`` table of model parameters."""
         if value is None:
             return ()
         if not isinstance(value, dict):
-            raise ck.fail(table, "set", "a table of model parameters and values, e.g. "
-                          "{ m = \"m1\" }", value)
+            raise self.ck.fail(table, "set", "a table of model parameters and values, e.g. "
+                               "{ m = \"m1\" }", value)
         out = []
         for key, v in value.items():
-            if key not in model_params:
-                raise ck.unknown(f"{table}.set", key, sorted(model_params), what="model parameter")
-            out.append((key, expr(f"{table}.set", key, v)))
+            if key not in self.model_params:
+                raise self.ck.unknown(f"{table}.set", key, sorted(self.model_params),
+                                      what="model parameter")
+            out.append((key, self.expr(f"{table}.set", key, v)))
         return tuple(out)
 
-    def entries(key: str) -> list[dict]:
-        value = t.get(key)
+    def entries(self, key: str) -> list[dict]:
+        """The ``[[drive.KEY]]`` tables (at least one)."""
+        value = self.t.get(key)
         if not isinstance(value, list) or not value or not all(isinstance(v, dict) for v in value):
-            raise ck.fail("drive", key, f"one or more tables [[drive.{key}]]", value)
+            raise self.ck.fail("drive", key, f"one or more tables [[drive.{key}]]", value)
         return value
 
+
+def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
+    """The ``[drive]`` table: ``kind`` picks the registered protocol, whose hook reads the rest."""
+    kind = t.get("kind", "static")
+    if kind not in DRIVE_KINDS:
+        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
+                      kind, suggest(str(kind), DRIVE_KINDS))
+    if kind == "static":
+        ck.only("drive", t, ["kind"])
+        return DriveSpec()
+    entry = DRIVES[kind]
+    ck.only("drive", t, ["kind", "period", "omega", *entry.extra["keys"]])
+    reader = _DriveReader(ck, t, known, model_params)
     if ("period" in t) == ("omega" in t):
         raise ck.fail("drive", "period", "given, or omega instead (exactly one of them)",
                       None if "period" not in t else "both")
-    period = expr("drive", "period", t["period"]) if "period" in t else None
-    omega = expr("drive", "omega", t["omega"]) if "omega" in t else None
-    spec: dict[str, Any] = {"kind": kind, "period": period, "omega": omega}
-    if kind == "steps":
-        steps = []
-        for i, step in enumerate(entries("step")):
-            table = f"drive.step.{i}"
-            ck.only(table, step, ["span", "set"])
-            if "span" not in step:
-                raise ck.fail(table, "span", "the fraction of the period this step lasts", None)
-            steps.append((expr(table, "span", step["span"]), overrides(table, step.get("set"))))
-        spec["steps"] = tuple(steps)
-    elif kind == "kicks":
-        kicks = []
-        for i, kick in enumerate(entries("kick")):
-            table = f"drive.kick.{i}"
-            ck.only(table, kick, ["time", "strength", "set"])
-            if "time" not in kick:
-                raise ck.fail(table, "time", "the kick time as a fraction of the period, in [0, 1)",
-                              None)
-            kicks.append((expr(table, "time", kick["time"]),
-                          expr(table, "strength", kick.get("strength", 1)),
-                          overrides(table, kick.get("set"))))
-        spec["kicks"] = tuple(kicks)
-    else:
-        terms = []
-        for i, term in enumerate(entries("term")):
-            table = f"drive.term.{i}"
-            ck.only(table, term, ["param", "amplitude", "harmonic", "phase"])
-            param = term.get("param")
-            if param not in model_params:
-                raise ck.fail(table, "param",
-                              "a model parameter (" + ", ".join(sorted(model_params))
-                              + ")", param, suggest(str(param), model_params))
-            n = ck.number(table, "harmonic", term.get("harmonic", 1),
-                          Param("harmonic", kind="int", low=1))
-            terms.append((param, expr(table, "amplitude", term.get("amplitude")),
-                          n, expr(table, "phase", term.get("phase", 0))))
-        spec["terms"] = tuple(terms)
-        spec["tol"] = float(ck.number("drive", "tol", t.get("tol", 1e-8),
-                                      Param("tol", low=0, open_low=True)))
-        spec["max_slices"] = ck.number("drive", "max_slices", t.get("max_slices", 4096),
-                                       Param("max_slices", kind="int", low=8))
-        scheme = t.get("scheme", "magnus4")
-        if scheme not in ("magnus4", "midpoint"):
-            raise ck.fail("drive", "scheme", "\"magnus4\" or \"midpoint\"", scheme)
-        spec["scheme"] = scheme
-    return DriveSpec(**spec, source=tuple(t.items()))
+    period = reader.expr("drive", "period", t["period"]) if "period" in t else None
+    omega = reader.expr("drive", "omega", t["omega"]) if "omega" in t else None
+    return DriveSpec(kind, period, omega, entry.extra["parse"](t, reader), source=tuple(t.items()))
 
 
 def _plain(value: Any) -> Any:

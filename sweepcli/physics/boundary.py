@@ -69,9 +69,10 @@ from scipy.optimize import minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh, splu
 
 from . import boundary_counts as counts
-from . import floquet as fl
+from . import quasienergy as qe
 from . import samples
-from .drive import Drive, Slicing, decide_slicing, evolve
+from .drives.base import Drive
+from .drives.evolution import Slicing, decide_slicing, evolve
 from .lattice import TightBinding
 from .point import Reason
 from .spectrum import band_edges, band_gap
@@ -213,7 +214,7 @@ def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = W
 
 
 def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
-                    gaps: fl.FloquetGaps | None = None, slicing: Slicing | None = None
+                    gaps: qe.FloquetGaps | None = None, slicing: Slicing | None = None
                     ) -> dict[str, Window]:
     """Windows at quasienergy 0 and ``pi/T`` of a drive, from its bulk quasienergy gaps.
 
@@ -232,9 +233,9 @@ def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
     docstring (``gap_0`` and ``gap_pi`` of the bulk).
     """
     if gaps is None:
-        mesh = fl.floquet_mesh(drive, fl.GAP_KMESH, drive.dim,
+        mesh = qe.floquet_mesh(drive, qe.GAP_KMESH, drive.dim,
                                slicing if slicing is not None else decide_slicing(drive))
-        gaps = fl.floquet_gaps(drive, mesh)
+        gaps = qe.floquet_gaps(drive, mesh)
     period = drive.period
     out = {}
     for name, gap, centre in (("0", gaps.gap_0, 0.0), ("pi", gaps.gap_pi, np.pi / period)):
@@ -497,8 +498,8 @@ def box_modes(tb: TightBinding, shape: Sequence[int], window: Window, *,
 # ----------------------------------------------------------------------------------------------
 
 def _wrap(x: np.ndarray, period: float) -> np.ndarray:
-    """Quasienergy differences reduced to ``(-pi/T, pi/T]`` (:func:`fl.wrap_quasienergy`)."""
-    return fl.wrap_quasienergy(x, period)
+    """Quasienergy differences reduced to ``(-pi/T, pi/T]`` (:func:`qe.wrap_quasienergy`)."""
+    return qe.wrap_quasienergy(x, period)
 
 
 def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, method: str
@@ -727,7 +728,7 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
 
     def eig(k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if k.size not in cache:
-            phases, v = fl.unitary_eig(operator(k))
+            phases, v = qe.unitary_eig(operator(k))
             cache[k.size] = (-phases / period, v)
         return cache[k.size]
 
@@ -739,11 +740,11 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
 
         def spectrum(k: np.ndarray, c: float = window.centre) -> tuple[np.ndarray, np.ndarray]:
             eps, v = eig(k)
-            return fl.wrap_quasienergy(eps - c, period), v
+            return qe.wrap_quasienergy(eps - c, period), v
 
         def levels_at(x: float, c: float = window.centre) -> np.ndarray:
-            eps = fl.quasienergy_values(operator(np.array([x])), period)
-            return fl.wrap_quasienergy(eps - c, period)
+            eps = qe.quasienergy_values(operator(np.array([x])), period)
+            return qe.wrap_quasienergy(eps - c, period)
 
         out[name] = _edge_modes(spectrum, levels_at, low, window, nk, nk_max)
     return out

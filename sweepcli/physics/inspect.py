@@ -21,7 +21,7 @@ import numpy as np
 
 from . import boundary as bd
 from . import samples
-from .drive import evolve
+from .drives.evolution import evolve
 from .lattice import TightBinding
 
 

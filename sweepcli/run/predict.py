@@ -19,9 +19,9 @@ import itertools
 import numpy as np
 
 from ..jobfile import Job
-from ..physics.drive import Slicing, floquet_operator, hermitian_exponential
-from ..physics.floquet import transition_points
+from ..physics.drives.evolution import Slicing, floquet_operator, hermitian_exponential
 from ..physics.measurements.driven import point_slicing
+from ..physics.transitions import transition_points
 
 
 def _operator(job: Job, k: np.ndarray):

@@ -231,7 +231,7 @@ def test_driven_chain_pi_modes_at_low_frequency_are_counted_by_chiral_charge():
     # charge in the chiral-symmetric frame, checked against expm of the open chain.
     from scipy.linalg import expm
 
-    from sweepcli.physics.drive import StepDrive
+    from sweepcli.physics.drives.steps import StepDrive
 
     period = 7.55
     a = as_model(*ssh_cell(1.0, 0.37))
