@@ -157,7 +157,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
             raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
                            f"and must be {p.expectation()}; it is neither in [params] nor "
                            "in [sweep]" + (" nor set by every [[drive.step]]."
-                                           if drive.kind == "steps" else "."))
+                                           if drive.protocol is not None
+                                           and drive.protocol.covers_period else "."))
     used = set(declared).union(*(e.names for e in exprs.values())).union(drive.names)
     for key in list(params_t) + list(sweep_t):
         if key not in used:

@@ -30,8 +30,8 @@ to raise) and ``model_params``. The returned spec is frozen and hashable and off
 
 * ``expressions()``: every expression it holds; ``overrides()``: the parameter sets its parts
   apply (``((name, expression), ...)`` each); ``varied()``: the model parameters it changes in
-  time; ``covers_period``: whether the Hamiltonian is at all times one of those parts (then a
-  parameter that every part sets needs no value of its own);
+  time; ``covers_period``: whether the parameters are at all times those of the parts (or
+  between two of them), so that a parameter every part sets needs no value of its own;
 * ``check(values, period, fail)``: values at one grid point, ``fail("[drive.x] key must ...;
   it is VALUE")`` raising the job error;
 * ``compile(values, period, build)``: the :class:`Drive` at one grid point, ``build`` mapping

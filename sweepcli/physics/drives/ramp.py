@@ -37,7 +37,7 @@ class RampSpec:
     max_slices: int = 4096
     scheme: str = "magnus4"
 
-    covers_period = False  # during a ramp the parameters are between two steps' values
+    covers_period = True  # at every time the parameters are the steps' values or between two
 
     def expressions(self) -> list:
         return [*self.steps.expressions(), self.ramp]
