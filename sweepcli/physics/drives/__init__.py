@@ -9,9 +9,13 @@ plus its test. The time evolution shared by all of them is in
 
 from __future__ import annotations
 
+import importlib
+import pkgutil
+
 from ..registry import Registry
 
 DRIVES: Registry = Registry("drive")
 
-# Importing the modules fills the registry.
-from . import harmonic, kicks, ramp, steps  # noqa: E402,F401
+# Importing every module of the package fills the registry: a new protocol needs no line here.
+for _module in pkgutil.iter_modules(__path__):
+    importlib.import_module(f"{__name__}.{_module.name}")
