@@ -78,118 +78,28 @@ def load_job(path: str | Path) -> Job:
 
 
 def build_job(doc: dict, *, text: str, path: str) -> Job:
+    """Validate a parsed job file: each table in turn, then values at sample grid points."""
     ck = Checker(path)
     for key in doc:
         if key not in TABLES:
             raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
                            f"{suggest(key, TABLES)}")
-    job_t = ck.table(doc, "job")
-    ck.only("job", job_t, ["name", "title", "description"])
-    name = job_t.get("name", Path(path).stem)
-    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
-        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
-    title = job_t.get("title", name)
-    if not isinstance(title, str):
-        raise ck.fail("job", "title", "a string", title)
-    description = job_t.get("description", "")
-    if not isinstance(description, str):
-        raise ck.fail("job", "description", "a string", description)
-
+    name, title, description = _job_table(ck, doc)
     model_t = ck.table(doc, "model")
-    if "name" not in model_t:
-        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
-                      f"(built-in: {', '.join(MODELS.names())})", None)
-    model = model_t["name"]
-    if model != "custom" and model not in MODELS:
-        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
-                      f"(built-in: {', '.join(MODELS.names())})", model,
-                      suggest(str(model), MODELS.names() + ["custom"]))
-    if model == "custom":
-        custom = _custom_model(ck, model_t)
-        model_params: tuple[str, ...] = ()
-        declared: dict[str, Param] = {n: Param(n) for n in sorted(custom.names)}
-        dim, norb = len(custom.lattice), len(custom.positions)
-    else:
-        for key in model_t:
-            if key != "name":
-                raise ck.unknown("model", key, ["name"],
-                                 what="key (model parameters go in [params] or [sweep])")
-        custom = None
-        entry = MODELS[model]
-        model_params = tuple(p.name for p in entry.params)
-        declared = {p.name: p for p in entry.params}
-        dim, norb = entry.extra["dim"], entry.extra["norb"]
-
-    params_t = ck.table(doc, "params")
-    sweep_t = ck.table(doc, "sweep")
-    if not sweep_t:
-        raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
-                      "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
-    axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
-    fixed: dict[str, float] = {}
-    exprs: dict[str, Expression] = {}
-    for key, value in params_t.items():
-        if key in sweep_t:
-            raise JobError(f"{path}: [params] {key} is also swept in [sweep]; give it in one "
-                           "place only.")
-        if isinstance(value, str):
-            try:
-                exprs[key] = parse(value, "params", key)
-            except ExpressionError as exc:
-                raise ck.fail("params", key, "a number or an arithmetic expression",
-                              value, " " + sentence(exc)) from None
-        else:
-            param = declared.get(key, Param(key))
-            fixed[key] = ck.number("params", key, value, param)
-    missing = []
-    for p in declared.values():
-        if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
-            if p.required:
-                missing.append(p)
-            else:
-                fixed[p.name] = p.default
+    model, custom, model_params, declared, dim, norb = _model_table(ck, model_t)
+    params_t, sweep_t = ck.table(doc, "params"), ck.table(doc, "sweep")
+    axes, fixed, exprs, missing = _parameters(ck, params_t, sweep_t, declared)
     known = set(fixed) | set(exprs) | {a.name for a in axes}
     derived = _order_expressions(ck, exprs, known)
-    drive = _drive(ck, ck.table(doc, "drive"), known, set(declared))
-    for p in missing:
-        if p.name not in drive.always_set:
-            what = f" ({p.doc})" if p.doc else ""
-            raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
-                           f"and must be {p.expectation()}; it is neither in [params] nor "
-                           "in [sweep]" + (" nor set by every [[drive.step]]."
-                                           if drive.protocol is not None
-                                           and drive.protocol.covers_period else "."))
+    drive = _drive_table(ck, doc, known, declared, missing, model)
     used = set(declared).union(*(e.names for e in exprs.values())).union(drive.names)
     for key in list(params_t) + list(sweep_t):
         if key not in used:
             table = "params" if key in params_t else "sweep"
             raise ck.unknown(table, key, sorted(declared), what="parameter")
-
-    measure_t = ck.table(doc, "measure")
-    settings: dict[str, Any] = {}
-    measurements: list[tuple[str, tuple[tuple[str, Any], ...]]] = []
-    setting_names = [p.name for p in MEASURE_SETTINGS]
-    for key, value in measure_t.items():
-        if isinstance(value, dict):
-            measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
-                                                   driven=drive.kind != "static")))
-        elif key in setting_names:
-            param = next(p for p in MEASURE_SETTINGS if p.name == key)
-            settings[key] = ck.option("measure", key, value, param)
-        else:
-            raise ck.unknown("measure", key, setting_names + MEASUREMENTS.names(),
-                             what="setting or measurement")
-    if not measurements:
-        raise ck.fail("measure", "", "a table with at least one measurement such as "
-                      "[measure.gap] (available: " + ", ".join(MEASUREMENTS.names()) + ")",
-                      "no measurement")
-    filling = settings.get("filling")
-    if filling is not None and filling >= norb:
-        raise ck.fail("measure", "filling", f"an integer in [1, {norb - 1}] for a model with "
-                      f"{norb} bands", filling)
-    gap_tol = float(settings.get("gap_tol", 1e-6))
-
-    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes, drive.kind != "static")
+    driven = drive.kind != "static"
+    measurements, filling, gap_tol = _measure_table(ck, doc, dim, norb, custom, model, driven)
+    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes, driven)
     predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
         axes = tuple(_finer(a, refine.depth) for a in axes)
@@ -201,9 +111,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         raise ck.fail("output", "path", "a file path", output)
     main = output_t.get("main")
 
-    axis_names = {a.name for a in axes}
-    clash = axis_names & {q.name for m, _ in measurements
-                          for q in quantities_of(m, dim, drive.kind != "static")}
+    clash = {a.name for a in axes} & {q.name for m, _ in measurements
+                                      for q in quantities_of(m, dim, driven)}
     if clash:
         raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
                        "measured quantity; rename it.")
@@ -212,7 +121,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "job": {"name": name, "title": title, "description": description},
         "model": _normalised_model(model, model_t),
         "params": {k: (v if not isinstance(v, complex) else str(v))
-                   for k, v in sorted(fixed.items())}
+                   for k, v in sorted(fixed.items()) if v is not None}
                   | {k: e.text for k, e in sorted(exprs.items())},
         # Labels (doc, units) describe an axis and are no part of the job's identity.
         "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
@@ -226,7 +135,6 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                    | {m: {k: _plain(v) for k, v in opts if v is not None}
                       for m, opts in measurements},
     }
-    normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
     job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
@@ -241,6 +149,122 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                           suggest(main, stored) if isinstance(main, str) else "")
     check_values(ck, job, declared, exprs)
     return job
+
+
+def _job_table(ck: Checker, doc: dict) -> tuple[str, str, str]:
+    """``[job]``: name (default the file's stem), title and description."""
+    job_t = ck.table(doc, "job")
+    ck.only("job", job_t, ["name", "title", "description"])
+    name = job_t.get("name", Path(ck.path).stem)
+    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
+    title = job_t.get("title", name)
+    if not isinstance(title, str):
+        raise ck.fail("job", "title", "a string", title)
+    description = job_t.get("description", "")
+    if not isinstance(description, str):
+        raise ck.fail("job", "description", "a string", description)
+    return name, title, description
+
+
+def _model_table(ck: Checker, model_t: dict) -> tuple:
+    """``[model]``: a built-in model or a custom one; returns ``(name, custom model or None,
+    the built-in factory's parameter names, declared parameters, dim, norb)``."""
+    if "name" not in model_t:
+        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", None)
+    model = model_t["name"]
+    if model != "custom" and model not in MODELS:
+        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", model,
+                      suggest(str(model), MODELS.names() + ["custom"]))
+    if model == "custom":
+        custom = _custom_model(ck, model_t)
+        declared = {n: Param(n) for n in sorted(custom.names)}
+        return model, custom, (), declared, len(custom.lattice), len(custom.positions)
+    for key in model_t:
+        if key != "name":
+            raise ck.unknown("model", key, ["name"],
+                             what="key (model parameters go in [params] or [sweep])")
+    entry = MODELS[model]
+    return (model, None, tuple(p.name for p in entry.params), {p.name: p for p in entry.params},
+            entry.extra["dim"], entry.extra["norb"])
+
+
+def _parameters(ck: Checker, params_t: dict, sweep_t: dict, declared: dict[str, Param]
+                ) -> tuple:
+    """``[sweep]`` axes and ``[params]`` values; returns ``(axes, fixed values, expressions,
+    required parameters given nowhere)`` (defaults of the others are filled in)."""
+    if not sweep_t:
+        raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
+                      "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
+    axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
+    fixed: dict[str, float] = {}
+    exprs: dict[str, Expression] = {}
+    for key, value in params_t.items():
+        if key in sweep_t:
+            raise JobError(f"{ck.path}: [params] {key} is also swept in [sweep]; give it in one "
+                           "place only.")
+        if isinstance(value, str):
+            try:
+                exprs[key] = parse(value, "params", key)
+            except ExpressionError as exc:
+                raise ck.fail("params", key, "a number or an arithmetic expression",
+                              value, " " + sentence(exc)) from None
+        else:
+            fixed[key] = ck.number("params", key, value, declared.get(key, Param(key)))
+    missing = []
+    for p in declared.values():
+        if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
+            if p.required:
+                missing.append(p)
+            else:
+                fixed[p.name] = p.default
+    return axes, fixed, exprs, missing
+
+
+def _drive_table(ck: Checker, doc: dict, known: set[str], declared: dict[str, Param],
+                 missing: list[Param], model: str) -> DriveSpec:
+    """``[drive]``, and the required model parameters given nowhere unless the drive sets
+    them at all times."""
+    drive = _drive(ck, ck.table(doc, "drive"), known, set(declared))
+    for p in missing:
+        if p.name not in drive.always_set:
+            what = f" ({p.doc})" if p.doc else ""
+            raise JobError(f"{ck.path}: [params] {p.name} is required by model {model!r}{what} "
+                           f"and must be {p.expectation()}; it is neither in [params] nor "
+                           "in [sweep]" + (" nor set by every [[drive.step]]."
+                                           if drive.protocol is not None
+                                           and drive.protocol.covers_period else "."))
+    return drive
+
+
+def _measure_table(ck: Checker, doc: dict, dim: int, norb: int, custom: CustomModel | None,
+                   model: str, driven: bool) -> tuple:
+    """``[measure]``: the measurements with their options, ``filling`` and ``gap_tol``."""
+    measure_t = ck.table(doc, "measure")
+    settings: dict[str, Any] = {}
+    measurements: list[tuple[str, tuple[tuple[str, Any], ...]]] = []
+    setting_names = [p.name for p in MEASURE_SETTINGS]
+    for key, value in measure_t.items():
+        if isinstance(value, dict):
+            measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
+                                                   driven=driven)))
+        elif key in setting_names:
+            param = next(p for p in MEASURE_SETTINGS if p.name == key)
+            settings[key] = ck.option("measure", key, value, param)
+        else:
+            raise ck.unknown("measure", key, setting_names + MEASUREMENTS.names(),
+                             what="setting or measurement")
+    if not measurements:
+        raise ck.fail("measure", "", "a table with at least one measurement such as "
+                      "[measure.gap] (available: " + ", ".join(MEASUREMENTS.names()) + ")",
+                      "no measurement")
+    filling = settings.get("filling")
+    if filling is not None and filling >= norb:
+        raise ck.fail("measure", "filling", f"an integer in [1, {norb - 1}] for a model with "
+                      f"{norb} bands", filling)
+    return measurements, filling, float(settings.get("gap_tol", 1e-6))
 
 
 def _refine(ck: Checker, t: dict, measurements: list, dim: int, axes: tuple,
