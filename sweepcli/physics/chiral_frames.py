@@ -201,7 +201,8 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
     kmesh_n, max_kmesh, phase_tol : the mesh is doubled until the largest phase step of the
         determinants is below ``phase_tol`` on two meshes that agree.
     slicing : the drive's time slicing if already decided
-        (:func:`~sweepcli.physics.drive.decide_slicing`); otherwise converged per frame and mesh.
+        (:func:`~sweepcli.physics.drives.evolution.decide_slicing`); otherwise converged per frame
+        and mesh.
 
     Raises
     ------

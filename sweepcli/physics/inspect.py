@@ -5,7 +5,7 @@ The count and its in-window eigenvectors come from the measurement's own
 densities of those states, the whole spectrum of the sample (where the window lies in it) and
 the ribbon bands with their weight on the low edge, composed here from
 :func:`~sweepcli.physics.samples.open_hamiltonian`, :func:`~sweepcli.physics.samples.ribbon` and
-:func:`~sweepcli.physics.drive.evolve`.
+:func:`~sweepcli.physics.drives.evolution.evolve`.
 
 Conventions are those of :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.samples`:
 sample orbital ``I = c * n + o`` (C order over cells), levels relative to the window centre,
@@ -53,7 +53,7 @@ def floquet_box_spectrum(factors: Sequence[tuple[float, TightBinding]], shape: S
     """All quasienergies of the driven open box sample, ascending in ``[-pi/T, pi/T]``.
 
     ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)`` formed densely by
-    :func:`~sweepcli.physics.drive.evolve`; ``eps = -arg(lambda) / T``. Returns ``(N,)``.
+    :func:`~sweepcli.physics.drives.evolution.evolve`; ``eps = -arg(lambda) / T``. Returns ``(N,)``.
     """
     period = float(sum(t for t, _ in factors))
     u = evolve([(t, h.toarray()) for t, h in bd.sample_steps(factors, shape)])

@@ -118,7 +118,8 @@ class FloquetMesh:
     eps : (N, ..., N, n) quasienergies, ascending, energy units.
     vectors : (N, ..., N, n, n) orthonormal eigenvectors (columns).
     u : (N, ..., N, n, n) the Floquet operator.
-    error, slices, converged : of the time integration (:class:`~sweepcli.physics.drive.Evolution`).
+    error, slices, converged : of the time integration
+        (:class:`~sweepcli.physics.drives.evolution.Evolution`).
     """
 
     k: np.ndarray
@@ -134,7 +135,8 @@ def floquet_mesh(drive: Drive, n: int, dim: int, slicing: Slicing | None = None)
     """Diagonalise ``U(k)`` on an ``n^dim`` mesh.
 
     ``slicing``: the drive's time slicing if already decided
-    (:func:`~sweepcli.physics.drive.decide_slicing`); otherwise it is converged on this mesh.
+    (:func:`~sweepcli.physics.drives.evolution.decide_slicing`); otherwise it is converged on
+    this mesh.
     """
     k = kmesh(n, dim)
     ev = floquet_evolution(drive, k, slicing=slicing)

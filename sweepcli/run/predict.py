@@ -2,7 +2,7 @@
 -1 (a closing of the quasienergy gap at 0 or pi), located between neighbouring grid values.
 
 For each swept parameter and each line of the grid along it (the other parameters at their
-grid values), :func:`sweepcli.physics.floquet.transition_points` follows every eigenphase of
+grid values), :func:`sweepcli.physics.transitions.transition_points` follows every eigenphase of
 ``U(k*)`` by eigenvector overlap and finds its crossings of 0 and pi by root finding. A static
 job uses ``U = exp(-i tau H(k*))`` with ``tau`` small enough that phases stay within (-pi/2,
 pi/2): its 0 crossings are the zero-energy closings.

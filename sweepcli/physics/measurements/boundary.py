@@ -2,8 +2,8 @@
 
 Static jobs build the samples from ``point.tb``; driven jobs from the steps of
 ``point.drive.factors()`` (``(duration, TightBinding)`` in time order), evolved with
-:func:`sweepcli.physics.drive.evolve`. Conventions, windows and the classification criterion
-are in :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.boundary_counts`.
+:func:`sweepcli.physics.drives.evolution.evolve`. Conventions, windows and the classification
+criterion are in :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.boundary_counts`.
 
 Layout of the stored variables (``g`` is ``0``, plus ``pi`` for driven jobs):
 

@@ -1,6 +1,6 @@
 """Measurements of periodically driven lattices: quasienergy gaps and Floquet invariants.
 
-``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drive`), ``point.tb`` the
+``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drives`), ``point.tb`` the
 static model (its cell operators, e.g. ``"chiral"``, are used by the chiral invariants). The
 time slicing of a smooth drive is decided once per point (:func:`point_slicing`, memoised under
 ``("drive_slicing",)``) and used by every evolution of every measurement, open samples
@@ -46,7 +46,8 @@ def _dim(point: Point) -> int:
 
 
 def point_slicing(point: Point) -> Slicing:
-    """The drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), memoised."""
+    """The drive's time slicing (:func:`~sweepcli.physics.drives.evolution.decide_slicing`),
+    memoised."""
     return point.memo(("drive_slicing",), lambda: decide_slicing(point.drive))
 
 
@@ -227,7 +228,7 @@ def frame_times_valid(times: Any) -> bool:
 
 def _times(times: Any, period: float) -> list[float] | None:
     """Fractions of the period (the job-file convention, as for step spans and kick times) to
-    the absolute times of :func:`sweepcli.physics.floquet.frame_times`."""
+    the absolute times of :func:`sweepcli.physics.chiral_frames.frame_times`."""
     if times is None:
         return None
     if not frame_times_valid(times):
@@ -263,7 +264,7 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     """``nu_0 = (nu + nu')/2``, ``nu_pi = (nu - nu')/2`` from the two symmetric frames.
 
     ``nu`` belongs to the first symmetric time ``t1`` (the earliest segment centre or boundary
-    that is a mirror point, :meth:`~sweepcli.physics.drive.StepDrive.symmetric_times`); the
+    that is a mirror point, :meth:`~sweepcli.physics.drives.steps.StepDrive.symmetric_times`); the
     number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
     """
     _need_drive(point)
