@@ -16,9 +16,10 @@ import time
 import numpy as np
 import scipy.linalg as sl
 
-from sweepcli.physics import floquet as fl
+from sweepcli.physics import floquet_chern as fc
 from sweepcli.physics import invariants as inv
-from sweepcli.physics.drive import StepDrive
+from sweepcli.physics import quasienergy as qe
+from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.lattice import assemble, fourier_term, kmesh, pauli
 
 N = 64
@@ -38,9 +39,9 @@ def drive(mix: float) -> StepDrive:
 
 
 def batched(d: StepDrive):
-    mesh = fl.floquet_mesh(d, N, 2)
-    d0, dpi = fl.gap_distances(mesh.eps, d.period)
-    lower, upper = fl.band_groups(mesh.eps, mesh.vectors)
+    mesh = qe.floquet_mesh(d, N, 2)
+    d0, dpi = qe.gap_distances(mesh.eps, d.period)
+    lower, upper = fc.band_groups(mesh.eps, mesh.vectors)
     return 2 * d0.min(), 2 * dpi.min(), inv.fhs_chern(upper)[0], inv.fhs_chern(lower)[0]
 
 

@@ -30,7 +30,7 @@ import argparse  # noqa: E402
 import time  # noqa: E402
 
 from sweepcli.physics import boundary as bd  # noqa: E402
-from sweepcli.physics.drive import StepDrive  # noqa: E402
+from sweepcli.physics.drives.steps import StepDrive  # noqa: E402
 from sweepcli.physics.models import MODELS  # noqa: E402
 
 

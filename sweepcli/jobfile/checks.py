@@ -10,11 +10,12 @@ import numpy as np
 
 from ..errors import JobError
 from ..expressions import EvaluationError
-from ..physics.floquet import commutator_violation
+from ..physics.drives.base import real
+from ..physics.line_symmetry import commutator_violation
 from ..physics.point import Point
 from ..physics.registry import Param
 from .checker import Checker
-from .spec import Job, real
+from .spec import Job
 
 SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
 DRIVE_BUILDS = 20  # of which the drive is built at the first few
@@ -22,7 +23,8 @@ DRIVE_BUILDS = 20  # of which the drive is built at the first few
 
 def _check_drive(ck: Checker, job: Job, values: Mapping[str, complex], index: int,
                  build: bool) -> None:
-    """Period, spans and kick times at one grid point; the drive must compile there."""
+    """Period and the protocol's own values (spans, kick times, ...) at one grid point; the
+    drive must compile there."""
     d = job.drive
     where = f" at grid point {index}"
     period = d.period_at(values)
@@ -30,21 +32,7 @@ def _check_drive(ck: Checker, job: Job, values: Mapping[str, complex], index: in
     if not (math.isfinite(period) and period > 0):
         raise JobError(f"{ck.path}: [drive] {key} must give a positive, finite period; it gives "
                        f"{period:g}{where}.")
-    if d.kind == "steps":
-        spans = [real(span(values)) for span, _ in d.steps]
-        for i, sp in enumerate(spans):
-            if not sp >= 0:
-                raise JobError(f"{ck.path}: [drive.step.{i}] span must be a non-negative "
-                               f"fraction of the period; it is {sp:g}{where}.")
-        if abs(sum(spans) - 1) > 1e-9:
-            raise JobError(f"{ck.path}: [[drive.step]] spans must add up to one period (1); "
-                           f"they add up to {sum(spans):.12g}{where}.")
-    if d.kind == "kicks":
-        for i, (time, _, _) in enumerate(d.kicks):
-            tv = real(time(values))
-            if not 0 <= tv < 1:
-                raise JobError(f"{ck.path}: [drive.kick.{i}] time must be a fraction of the "
-                               f"period in [0, 1); it is {tv:g}{where}.")
+    d.protocol.check(values, period, lambda msg: JobError(f"{ck.path}: {msg}{where}."))
     try:
         if build:
             d.compile(values, job.build_model)
@@ -90,8 +78,8 @@ def _check_frame_times(ck: Checker, job: Job) -> None:
 def _check_frames_symmetric(ck: Checker, job: Job, point: Point) -> None:
     """The frames of given ``chiral_windings`` times must be chiral symmetric, G U G = U^+,
     at the first grid point (checked at a few momenta); otherwise every point would fail."""
-    from ..physics.drive import floquet_evolution
-    from ..physics.floquet import SYMMETRY_TOL
+    from ..physics.chiral_frames import SYMMETRY_TOL
+    from ..physics.drives.evolution import floquet_evolution
 
     opts = dict(job.measurements).get("chiral_windings", ())
     times = dict(opts).get("times")
@@ -188,8 +176,8 @@ def _check_hermitian(ck: Checker, job: Job, values: Mapping[str, complex], index
     that every step sets needs no value of its own and takes that of the first step, as in
     :meth:`Job.point`) and the model with the overrides of each step or kick."""
     d = job.drive
-    static = tuple((k, e) for k, e in d.steps[0][1] if k not in values) if d.always_set else ()
-    for over in [static] + [s[-1] for s in d.steps + d.kicks]:
+    static = tuple((k, e) for k, e in d.overrides[0] if k not in values) if d.always_set else ()
+    for over in [static] + d.overrides:
         err = job.build_model({**values, **{k: e(values) for k, e in over}}).hermiticity_error()
         if err > 1e-10:
             raise JobError(f"{ck.path}: [[model.onsite]] terms must add up to a Hermitian "

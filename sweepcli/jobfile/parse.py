@@ -16,6 +16,7 @@ import tomli_w
 
 from ..errors import JobError, sentence, suggest
 from ..expressions import Expression, ExpressionError, parse
+from ..physics.drives import DRIVES
 from ..physics.measurements import MEASUREMENTS, quantities_of
 from ..physics.models import MODELS
 from ..physics.registry import Param
@@ -29,7 +30,7 @@ LATTICES = {
     "square": np.eye(2),
     "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
 }
-DRIVE_KINDS = ("static", "steps", "harmonic", "kicks")
+DRIVE_KINDS = ("static", *DRIVES.names())
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
 MEASURE_SETTINGS = (
     Param("filling", kind="int", default=None, low=1, doc="number of occupied bands"),
@@ -77,117 +78,28 @@ def load_job(path: str | Path) -> Job:
 
 
 def build_job(doc: dict, *, text: str, path: str) -> Job:
+    """Validate a parsed job file: each table in turn, then values at sample grid points."""
     ck = Checker(path)
     for key in doc:
         if key not in TABLES:
             raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
                            f"{suggest(key, TABLES)}")
-    job_t = ck.table(doc, "job")
-    ck.only("job", job_t, ["name", "title", "description"])
-    name = job_t.get("name", Path(path).stem)
-    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
-        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
-    title = job_t.get("title", name)
-    if not isinstance(title, str):
-        raise ck.fail("job", "title", "a string", title)
-    description = job_t.get("description", "")
-    if not isinstance(description, str):
-        raise ck.fail("job", "description", "a string", description)
-
+    name, title, description = _job_table(ck, doc)
     model_t = ck.table(doc, "model")
-    if "name" not in model_t:
-        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
-                      f"(built-in: {', '.join(MODELS.names())})", None)
-    model = model_t["name"]
-    if model != "custom" and model not in MODELS:
-        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
-                      f"(built-in: {', '.join(MODELS.names())})", model,
-                      suggest(str(model), MODELS.names() + ["custom"]))
-    if model == "custom":
-        custom = _custom_model(ck, model_t)
-        model_params: tuple[str, ...] = ()
-        declared: dict[str, Param] = {n: Param(n) for n in sorted(custom.names)}
-        dim, norb = len(custom.lattice), len(custom.positions)
-    else:
-        for key in model_t:
-            if key != "name":
-                raise ck.unknown("model", key, ["name"],
-                                 what="key (model parameters go in [params] or [sweep])")
-        custom = None
-        entry = MODELS[model]
-        model_params = tuple(p.name for p in entry.params)
-        declared = {p.name: p for p in entry.params}
-        dim, norb = entry.extra["dim"], entry.extra["norb"]
-
-    params_t = ck.table(doc, "params")
-    sweep_t = ck.table(doc, "sweep")
-    if not sweep_t:
-        raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
-                      "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
-    axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
-    fixed: dict[str, float] = {}
-    exprs: dict[str, Expression] = {}
-    for key, value in params_t.items():
-        if key in sweep_t:
-            raise JobError(f"{path}: [params] {key} is also swept in [sweep]; give it in one "
-                           "place only.")
-        if isinstance(value, str):
-            try:
-                exprs[key] = parse(value, "params", key)
-            except ExpressionError as exc:
-                raise ck.fail("params", key, "a number or an arithmetic expression",
-                              value, " " + sentence(exc)) from None
-        else:
-            param = declared.get(key, Param(key))
-            fixed[key] = ck.number("params", key, value, param)
-    missing = []
-    for p in declared.values():
-        if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
-            if p.required:
-                missing.append(p)
-            else:
-                fixed[p.name] = p.default
+    model, custom, model_params, declared, dim, norb = _model_table(ck, model_t)
+    params_t, sweep_t = ck.table(doc, "params"), ck.table(doc, "sweep")
+    axes, fixed, exprs, missing = _parameters(ck, params_t, sweep_t, declared)
     known = set(fixed) | set(exprs) | {a.name for a in axes}
     derived = _order_expressions(ck, exprs, known)
-    drive = _drive(ck, ck.table(doc, "drive"), known, set(declared))
-    for p in missing:
-        if p.name not in drive.always_set:
-            what = f" ({p.doc})" if p.doc else ""
-            raise JobError(f"{path}: [params] {p.name} is required by model {model!r}{what} "
-                           f"and must be {p.expectation()}; it is neither in [params] nor "
-                           "in [sweep]" + (" nor set by every [[drive.step]]."
-                                           if drive.kind == "steps" else "."))
+    drive = _drive_table(ck, doc, known, declared, missing, model)
     used = set(declared).union(*(e.names for e in exprs.values())).union(drive.names)
     for key in list(params_t) + list(sweep_t):
         if key not in used:
             table = "params" if key in params_t else "sweep"
             raise ck.unknown(table, key, sorted(declared), what="parameter")
-
-    measure_t = ck.table(doc, "measure")
-    settings: dict[str, Any] = {}
-    measurements: list[tuple[str, tuple[tuple[str, Any], ...]]] = []
-    setting_names = [p.name for p in MEASURE_SETTINGS]
-    for key, value in measure_t.items():
-        if isinstance(value, dict):
-            measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
-                                                   driven=drive.kind != "static")))
-        elif key in setting_names:
-            param = next(p for p in MEASURE_SETTINGS if p.name == key)
-            settings[key] = ck.option("measure", key, value, param)
-        else:
-            raise ck.unknown("measure", key, setting_names + MEASUREMENTS.names(),
-                             what="setting or measurement")
-    if not measurements:
-        raise ck.fail("measure", "", "a table with at least one measurement such as "
-                      "[measure.gap] (available: " + ", ".join(MEASUREMENTS.names()) + ")",
-                      "no measurement")
-    filling = settings.get("filling")
-    if filling is not None and filling >= norb:
-        raise ck.fail("measure", "filling", f"an integer in [1, {norb - 1}] for a model with "
-                      f"{norb} bands", filling)
-    gap_tol = float(settings.get("gap_tol", 1e-6))
-
-    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes, drive.kind != "static")
+    driven = drive.kind != "static"
+    measurements, filling, gap_tol = _measure_table(ck, doc, dim, norb, custom, model, driven)
+    refine = _refine(ck, ck.table(doc, "refine"), measurements, dim, axes, driven)
     predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
         axes = tuple(_finer(a, refine.depth) for a in axes)
@@ -199,9 +111,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         raise ck.fail("output", "path", "a file path", output)
     main = output_t.get("main")
 
-    axis_names = {a.name for a in axes}
-    clash = axis_names & {q.name for m, _ in measurements
-                          for q in quantities_of(m, dim, drive.kind != "static")}
+    clash = {a.name for a in axes} & {q.name for m, _ in measurements
+                                      for q in quantities_of(m, dim, driven)}
     if clash:
         raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
                        "measured quantity; rename it.")
@@ -210,7 +121,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "job": {"name": name, "title": title, "description": description},
         "model": _normalised_model(model, model_t),
         "params": {k: (v if not isinstance(v, complex) else str(v))
-                   for k, v in sorted(fixed.items())}
+                   for k, v in sorted(fixed.items()) if v is not None}
                   | {k: e.text for k, e in sorted(exprs.items())},
         # Labels (doc, units) describe an axis and are no part of the job's identity.
         "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
@@ -224,7 +135,6 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                    | {m: {k: _plain(v) for k, v in opts if v is not None}
                       for m, opts in measurements},
     }
-    normalised["params"] = {k: v for k, v in normalised["params"].items() if v is not None}
     job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
@@ -239,6 +149,122 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                           suggest(main, stored) if isinstance(main, str) else "")
     check_values(ck, job, declared, exprs)
     return job
+
+
+def _job_table(ck: Checker, doc: dict) -> tuple[str, str, str]:
+    """``[job]``: name (default the file's stem), title and description."""
+    job_t = ck.table(doc, "job")
+    ck.only("job", job_t, ["name", "title", "description"])
+    name = job_t.get("name", Path(ck.path).stem)
+    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
+    title = job_t.get("title", name)
+    if not isinstance(title, str):
+        raise ck.fail("job", "title", "a string", title)
+    description = job_t.get("description", "")
+    if not isinstance(description, str):
+        raise ck.fail("job", "description", "a string", description)
+    return name, title, description
+
+
+def _model_table(ck: Checker, model_t: dict) -> tuple:
+    """``[model]``: a built-in model or a custom one; returns ``(name, custom model or None,
+    the built-in factory's parameter names, declared parameters, dim, norb)``."""
+    if "name" not in model_t:
+        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", None)
+    model = model_t["name"]
+    if model != "custom" and model not in MODELS:
+        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", model,
+                      suggest(str(model), MODELS.names() + ["custom"]))
+    if model == "custom":
+        custom = _custom_model(ck, model_t)
+        declared = {n: Param(n) for n in sorted(custom.names)}
+        return model, custom, (), declared, len(custom.lattice), len(custom.positions)
+    for key in model_t:
+        if key != "name":
+            raise ck.unknown("model", key, ["name"],
+                             what="key (model parameters go in [params] or [sweep])")
+    entry = MODELS[model]
+    return (model, None, tuple(p.name for p in entry.params), {p.name: p for p in entry.params},
+            entry.extra["dim"], entry.extra["norb"])
+
+
+def _parameters(ck: Checker, params_t: dict, sweep_t: dict, declared: dict[str, Param]
+                ) -> tuple:
+    """``[sweep]`` axes and ``[params]`` values; returns ``(axes, fixed values, expressions,
+    required parameters given nowhere)`` (defaults of the others are filled in)."""
+    if not sweep_t:
+        raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
+                      "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
+    axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
+    fixed: dict[str, float] = {}
+    exprs: dict[str, Expression] = {}
+    for key, value in params_t.items():
+        if key in sweep_t:
+            raise JobError(f"{ck.path}: [params] {key} is also swept in [sweep]; give it in one "
+                           "place only.")
+        if isinstance(value, str):
+            try:
+                exprs[key] = parse(value, "params", key)
+            except ExpressionError as exc:
+                raise ck.fail("params", key, "a number or an arithmetic expression",
+                              value, " " + sentence(exc)) from None
+        else:
+            fixed[key] = ck.number("params", key, value, declared.get(key, Param(key)))
+    missing = []
+    for p in declared.values():
+        if p.name not in fixed and p.name not in exprs and p.name not in sweep_t:
+            if p.required:
+                missing.append(p)
+            else:
+                fixed[p.name] = p.default
+    return axes, fixed, exprs, missing
+
+
+def _drive_table(ck: Checker, doc: dict, known: set[str], declared: dict[str, Param],
+                 missing: list[Param], model: str) -> DriveSpec:
+    """``[drive]``, and the required model parameters given nowhere unless the drive sets
+    them at all times."""
+    drive = _drive(ck, ck.table(doc, "drive"), known, set(declared))
+    for p in missing:
+        if p.name not in drive.always_set:
+            what = f" ({p.doc})" if p.doc else ""
+            raise JobError(f"{ck.path}: [params] {p.name} is required by model {model!r}{what} "
+                           f"and must be {p.expectation()}; it is neither in [params] nor "
+                           "in [sweep]" + (" nor set by every [[drive.step]]."
+                                           if drive.protocol is not None
+                                           and drive.protocol.covers_period else "."))
+    return drive
+
+
+def _measure_table(ck: Checker, doc: dict, dim: int, norb: int, custom: CustomModel | None,
+                   model: str, driven: bool) -> tuple:
+    """``[measure]``: the measurements with their options, ``filling`` and ``gap_tol``."""
+    measure_t = ck.table(doc, "measure")
+    settings: dict[str, Any] = {}
+    measurements: list[tuple[str, tuple[tuple[str, Any], ...]]] = []
+    setting_names = [p.name for p in MEASURE_SETTINGS]
+    for key, value in measure_t.items():
+        if isinstance(value, dict):
+            measurements.append((key, _measurement(ck, key, value, dim, norb, custom, model,
+                                                   driven=driven)))
+        elif key in setting_names:
+            param = next(p for p in MEASURE_SETTINGS if p.name == key)
+            settings[key] = ck.option("measure", key, value, param)
+        else:
+            raise ck.unknown("measure", key, setting_names + MEASUREMENTS.names(),
+                             what="setting or measurement")
+    if not measurements:
+        raise ck.fail("measure", "", "a table with at least one measurement such as "
+                      "[measure.gap] (available: " + ", ".join(MEASUREMENTS.names()) + ")",
+                      "no measurement")
+    filling = settings.get("filling")
+    if filling is not None and filling >= norb:
+        raise ck.fail("measure", "filling", f"an integer in [1, {norb - 1}] for a model with "
+                      f"{norb} bands", filling)
+    return measurements, filling, float(settings.get("gap_tol", 1e-6))
 
 
 def _refine(ck: Checker, t: dict, measurements: list, dim: int, axes: tuple,
@@ -308,19 +334,18 @@ def _finer(axis: Axis, depth: int) -> Axis:
     return replace(axis, values=tuple(float(v) for v in vals))
 
 
-def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
-    kind = t.get("kind", "static")
-    if kind not in DRIVE_KINDS:
-        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
-                      kind, suggest(str(kind), DRIVE_KINDS))
-    allowed = {"static": ["kind"], "steps": ["kind", "period", "omega", "step"],
-               "harmonic": ["kind", "period", "omega", "term", "tol", "max_slices", "scheme"],
-               "kicks": ["kind", "period", "omega", "kick"]}[kind]
-    ck.only("drive", t, allowed)
-    if kind == "static":
-        return DriveSpec()
+class _DriveReader:
+    """What a drive protocol's ``parse`` hook may use to read its part of the ``[drive]`` table
+    (the contract is in :mod:`sweepcli.physics.drives.base`)."""
 
-    def expr(table: str, key: str, value: object) -> Expression:
+    def __init__(self, ck: Checker, t: dict, known: set[str], model_params: set[str]) -> None:
+        self.ck, self.t, self.known, self.model_params = ck, t, known, model_params
+        self.only, self.number, self.fail = ck.only, ck.number, ck.fail
+        self.suggest = suggest
+
+    def expr(self, table: str, key: str, value: object) -> Expression:
+        """An arithmetic expression of the job's parameters."""
+        ck = self.ck
         if isinstance(value, bool) or not isinstance(value, (int, float, str)):
             raise ck.fail(table, key, "a number or an arithmetic expression", value)
         try:
@@ -329,81 +354,53 @@ def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> Dri
             raise ck.fail(table, key, "a number or an arithmetic expression", value,
                           " " + sentence(exc)) from None
         for n in sorted(e.names):
-            if n not in known:
+            if n not in self.known:
                 raise ck.fail(table, key, "an expression of defined parameters", value,
-                              f" {n!r} is not defined in [params] or [sweep].{suggest(n, known)}")
+                              f" {n!r} is not defined in [params] or [sweep]."
+                              f"{suggest(n, self.known)}")
         return e
 
-    def overrides(table: str, value: object) -> tuple:
+    def overrides(self, table: str, value: object) -> tuple:
+        """A ``set = { param = expression, ... }`` table of model parameters."""
         if value is None:
             return ()
         if not isinstance(value, dict):
-            raise ck.fail(table, "set", "a table of model parameters and values, e.g. "
-                          "{ m = \"m1\" }", value)
+            raise self.ck.fail(table, "set", "a table of model parameters and values, e.g. "
+                               "{ m = \"m1\" }", value)
         out = []
         for key, v in value.items():
-            if key not in model_params:
-                raise ck.unknown(f"{table}.set", key, sorted(model_params), what="model parameter")
-            out.append((key, expr(f"{table}.set", key, v)))
+            if key not in self.model_params:
+                raise self.ck.unknown(f"{table}.set", key, sorted(self.model_params),
+                                      what="model parameter")
+            out.append((key, self.expr(f"{table}.set", key, v)))
         return tuple(out)
 
-    def entries(key: str) -> list[dict]:
-        value = t.get(key)
+    def entries(self, key: str) -> list[dict]:
+        """The ``[[drive.KEY]]`` tables (at least one)."""
+        value = self.t.get(key)
         if not isinstance(value, list) or not value or not all(isinstance(v, dict) for v in value):
-            raise ck.fail("drive", key, f"one or more tables [[drive.{key}]]", value)
+            raise self.ck.fail("drive", key, f"one or more tables [[drive.{key}]]", value)
         return value
 
+
+def _drive(ck: Checker, t: dict, known: set[str], model_params: set[str]) -> DriveSpec:
+    """The ``[drive]`` table: ``kind`` picks the registered protocol, whose hook reads the rest."""
+    kind = t.get("kind", "static")
+    if kind not in DRIVE_KINDS:
+        raise ck.fail("drive", "kind", "one of " + ", ".join(repr(k) for k in DRIVE_KINDS),
+                      kind, suggest(str(kind), DRIVE_KINDS))
+    if kind == "static":
+        ck.only("drive", t, ["kind"])
+        return DriveSpec()
+    entry = DRIVES[kind]
+    ck.only("drive", t, ["kind", "period", "omega", *entry.extra["keys"]])
+    reader = _DriveReader(ck, t, known, model_params)
     if ("period" in t) == ("omega" in t):
         raise ck.fail("drive", "period", "given, or omega instead (exactly one of them)",
                       None if "period" not in t else "both")
-    period = expr("drive", "period", t["period"]) if "period" in t else None
-    omega = expr("drive", "omega", t["omega"]) if "omega" in t else None
-    spec: dict[str, Any] = {"kind": kind, "period": period, "omega": omega}
-    if kind == "steps":
-        steps = []
-        for i, step in enumerate(entries("step")):
-            table = f"drive.step.{i}"
-            ck.only(table, step, ["span", "set"])
-            if "span" not in step:
-                raise ck.fail(table, "span", "the fraction of the period this step lasts", None)
-            steps.append((expr(table, "span", step["span"]), overrides(table, step.get("set"))))
-        spec["steps"] = tuple(steps)
-    elif kind == "kicks":
-        kicks = []
-        for i, kick in enumerate(entries("kick")):
-            table = f"drive.kick.{i}"
-            ck.only(table, kick, ["time", "strength", "set"])
-            if "time" not in kick:
-                raise ck.fail(table, "time", "the kick time as a fraction of the period, in [0, 1)",
-                              None)
-            kicks.append((expr(table, "time", kick["time"]),
-                          expr(table, "strength", kick.get("strength", 1)),
-                          overrides(table, kick.get("set"))))
-        spec["kicks"] = tuple(kicks)
-    else:
-        terms = []
-        for i, term in enumerate(entries("term")):
-            table = f"drive.term.{i}"
-            ck.only(table, term, ["param", "amplitude", "harmonic", "phase"])
-            param = term.get("param")
-            if param not in model_params:
-                raise ck.fail(table, "param",
-                              "a model parameter (" + ", ".join(sorted(model_params))
-                              + ")", param, suggest(str(param), model_params))
-            n = ck.number(table, "harmonic", term.get("harmonic", 1),
-                          Param("harmonic", kind="int", low=1))
-            terms.append((param, expr(table, "amplitude", term.get("amplitude")),
-                          n, expr(table, "phase", term.get("phase", 0))))
-        spec["terms"] = tuple(terms)
-        spec["tol"] = float(ck.number("drive", "tol", t.get("tol", 1e-8),
-                                      Param("tol", low=0, open_low=True)))
-        spec["max_slices"] = ck.number("drive", "max_slices", t.get("max_slices", 4096),
-                                       Param("max_slices", kind="int", low=8))
-        scheme = t.get("scheme", "magnus4")
-        if scheme not in ("magnus4", "midpoint"):
-            raise ck.fail("drive", "scheme", "\"magnus4\" or \"midpoint\"", scheme)
-        spec["scheme"] = scheme
-    return DriveSpec(**spec, source=tuple(t.items()))
+    period = reader.expr("drive", "period", t["period"]) if "period" in t else None
+    omega = reader.expr("drive", "omega", t["omega"]) if "omega" in t else None
+    return DriveSpec(kind, period, omega, entry.extra["parse"](t, reader), source=tuple(t.items()))
 
 
 def _plain(value: Any) -> Any:

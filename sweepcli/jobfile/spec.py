@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 
 from ..expressions import Expression
+from ..physics.drives.base import real
 from ..physics.lattice import TightBinding, assemble
 from ..physics.measurements import quantities_of
 from ..physics.measurements.consistency import Rule, rules_for
@@ -73,46 +74,48 @@ class CustomModel:
 
 @dataclass(frozen=True)
 class DriveSpec:
-    """The ``[drive]`` table: the period (or angular frequency) and the protocol.
+    """The ``[drive]`` table: the kind, the period (or angular frequency) and the protocol.
 
-    ``steps``: ``(span, overrides)`` with the span a fraction of the period; ``terms``
-    (harmonic): ``(parameter, amplitude, harmonic n, phase)`` adding
-    ``amplitude * cos(n omega t + phase)`` to the parameter; ``kicks``: ``(time, strength,
-    overrides)`` with the time a fraction of the period and the kick ``exp(-i strength H)``, H the
-    model at the overridden parameters. All entries are expressions of the job's parameters.
+    ``protocol`` is what the kind's registered ``parse`` hook made of the rest of the table
+    (:data:`sweepcli.physics.drives.DRIVES`; the hook contract is in
+    :mod:`sweepcli.physics.drives.base`): expressions of the job's parameters, compiled into the
+    physics core's drive at each grid point. ``None`` for a static job.
     """
 
     kind: str = "static"
     period: Expression | None = None
     omega: Expression | None = None
-    steps: tuple = ()
-    terms: tuple = ()
-    kicks: tuple = ()
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
+    protocol: Any = None
     source: tuple = ()  # the table as given, for normalisation
 
     @property
     def names(self) -> frozenset[str]:
         exprs = [e for e in (self.period, self.omega) if e is not None]
-        for span, over in self.steps:
-            exprs += [span, *(e for _, e in over)]
-        for _, amp, _, phase in self.terms:
-            exprs += [amp, phase]
-        for time, strength, over in self.kicks:
-            exprs += [time, strength, *(e for _, e in over)]
+        if self.protocol is not None:
+            exprs += self.protocol.expressions()
         return frozenset().union(*(e.names for e in exprs)) if exprs else frozenset()
 
     def normalised(self) -> dict:
         return dict(self.source) if self.kind != "static" else {"kind": "static"}
 
     @property
+    def overrides(self) -> list[tuple]:
+        """The parameter sets the drive's parts apply, ``((name, expression), ...)`` each."""
+        return self.protocol.overrides() if self.protocol is not None else []
+
+    @property
+    def varied(self) -> frozenset[str]:
+        """Model parameters the drive changes in time."""
+        return frozenset(self.protocol.varied()) if self.protocol is not None else frozenset()
+
+    @property
     def always_set(self) -> frozenset[str]:
-        """Model parameters that every step sets (they need no value of their own)."""
-        if self.kind != "steps":
+        """Model parameters that every part sets when the parts cover the whole period (steps):
+        they need no value of their own."""
+        if self.protocol is None or not self.protocol.covers_period:
             return frozenset()
-        return frozenset.intersection(*(frozenset(k for k, _ in over) for _, over in self.steps))
+        return frozenset.intersection(*(frozenset(k for k, _ in over)
+                                        for over in self.overrides))
 
     def period_at(self, values: Mapping[str, complex]) -> float:
         if self.period is not None:
@@ -122,32 +125,7 @@ class DriveSpec:
 
     def compile(self, values: Mapping[str, complex], build):
         """The drive at one grid point, as the physics core's drive object."""
-        from ..physics import drive as dr
-
-        period = self.period_at(values)
-
-        def at(overrides) -> TightBinding:
-            return build({**values, **{k: e(values) for k, e in overrides}})
-
-        if self.kind == "steps":
-            return dr.StepDrive(period, tuple((real(span(values)) * period, at(over))
-                                              for span, over in self.steps))
-        if self.kind == "kicks":
-            kicks = tuple((real(time(values)) * period,
-                           dr.combine([(real(strength(values)), at(over))]))
-                          for time, strength, over in self.kicks)
-            return dr.KickDrive(period, build(values), kicks)
-        omega = 2 * math.pi / period
-        terms = [(p, real(a(values)), n, real(ph(values))) for p, a, n, ph in self.terms]
-
-        def hamiltonian_at(t: float) -> TightBinding:
-            shifted = dict(values)
-            for p, amp, n, phase in terms:
-                shifted[p] = real(shifted[p]) + amp * math.cos(n * omega * t + phase)
-            return build(shifted)
-
-        return dr.HarmonicDrive(period, hamiltonian_at, tol=self.tol, max_slices=self.max_slices,
-                                scheme=self.scheme)
+        return self.protocol.compile(values, self.period_at(values), build)
 
 
 @dataclass(frozen=True, eq=False)
@@ -223,10 +201,6 @@ class Job:
                  else None)
         if self.drive.always_set:
             # Parameters that only the steps set: the static model is that of the first step.
-            values.update({k: e(values) for k, e in self.drive.steps[0][1] if k not in values})
+            values.update({k: e(values) for k, e in self.drive.overrides[0] if k not in values})
         return Point(params=values, build=self.build_model, drive=drive,
                      filling=self.filling, gap_tol=self.gap_tol)
-
-
-def real(value: complex) -> float:
-    return float(value.real) if isinstance(value, complex) else float(value)

@@ -5,7 +5,7 @@ The count and its in-window eigenvectors come from the measurement's own
 densities of those states, the whole spectrum of the sample (where the window lies in it) and
 the ribbon bands with their weight on the low edge, composed here from
 :func:`~sweepcli.physics.samples.open_hamiltonian`, :func:`~sweepcli.physics.samples.ribbon` and
-:func:`~sweepcli.physics.drive.evolve`.
+:func:`~sweepcli.physics.drives.evolution.evolve`.
 
 Conventions are those of :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.samples`:
 sample orbital ``I = c * n + o`` (C order over cells), levels relative to the window centre,
@@ -20,9 +20,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import boundary as bd
-from . import floquet as fl
+from . import quasienergy as qe
 from . import samples
-from .drive import evolve
+from .drives.evolution import evolve
 from .lattice import TightBinding
 
 
@@ -54,13 +54,13 @@ def floquet_box_spectrum(factors: Sequence[tuple[float, TightBinding]], shape: S
     """All quasienergies of the driven open box sample, ascending in ``(-pi/T, pi/T]``.
 
     ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)`` formed densely by
-    :func:`~sweepcli.physics.drive.evolve`; ``eps = -arg(lambda) / T``
-    (:func:`~sweepcli.physics.floquet.quasienergy_values`). ``period`` is the drive's period
+    :func:`~sweepcli.physics.drives.evolution.evolve`; ``eps = -arg(lambda) / T``
+    (:func:`~sweepcli.physics.quasienergy.quasienergy_values`). ``period`` is the drive's period
     ``T``, not the sum of the factors' durations (a kick is a factor of its own). Returns
     ``(N,)``.
     """
     u = evolve([(t, h.toarray()) for t, h in bd.sample_steps(factors, shape)])
-    return fl.quasienergy_values(u, period)
+    return qe.quasienergy_values(u, period)
 
 
 @dataclass(frozen=True)
@@ -101,12 +101,12 @@ def floquet_ribbon_bands(factors: Sequence[tuple[float, TightBinding]], width: i
 
     ``U(k_par)`` is the time-ordered product of the steps' ribbon Bloch Hamiltonians, batched
     over ``k`` (as in :func:`~sweepcli.physics.boundary.floquet_ribbon_modes`), diagonalised by
-    :func:`~sweepcli.physics.floquet.quasienergies` (orthonormal eigenvectors inside degenerate
+    :func:`~sweepcli.physics.quasienergy.quasienergies` (orthonormal eigenvectors inside degenerate
     clusters, as the driven ribbon count uses); ``eps = -arg(lambda) / T`` in ``(-pi/T, pi/T]``,
     ascending per k, with the low-edge weight of each state.
     """
     k = np.asarray(k, dtype=float)
     ribbons = [(float(t), samples.ribbon(f, width, open_axis)) for t, f in factors]
-    eps, v = fl.quasienergies(evolve([(t, r.bloch(k[:, None])) for t, r in ribbons]), period)
+    eps, v = qe.quasienergies(evolve([(t, r.bloch(k[:, None])) for t, r in ribbons]), period)
     low = bd.low_edge_mask(width, factors[0][1].norb)
     return RibbonBands(k, eps, np.sum(np.abs(v[:, low, :]) ** 2, axis=1), period)

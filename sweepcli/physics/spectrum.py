@@ -5,7 +5,7 @@ by an amount of order (velocity x mesh spacing). :func:`band_gap` therefore poli
 continuous k, every local minimum of the mesh that could hide a lower gap than the best one
 found, using a Lipschitz bound on the gap (:func:`velocity_bound`); the same mesh-minima and
 polish helpers (:func:`local_minima`, :func:`polish_minima`) serve the band edges of
-:func:`band_edges` and the quasienergy gaps of :mod:`sweepcli.physics.floquet`.
+:func:`band_edges` and the quasienergy gaps of :mod:`sweepcli.physics.quasienergy`.
 """
 
 from __future__ import annotations

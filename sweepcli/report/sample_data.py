@@ -18,7 +18,7 @@ the result:
 The windows and the drive's time slicing are those of the boundary measurements
 (:mod:`sweepcli.physics.measurements.boundary`), so with the job's own sample options the
 counts found are the counts stored in the file. Quasienergies are in ``(-pi/T, pi/T]``
-(:func:`sweepcli.physics.floquet.wrap_quasienergy`).
+(:func:`sweepcli.physics.quasienergy.wrap_quasienergy`).
 """
 
 from __future__ import annotations
@@ -218,8 +218,8 @@ def _match(full: np.ndarray, targets: np.ndarray, period: float | None) -> np.nd
 
 
 def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) -> dict:
-    from ..physics import floquet as fl
     from ..physics import inspect as ins
+    from ..physics import quasienergy as qe
     from ..physics import samples
     from ..physics.boundary import counts as boundary_counts
     from ..physics.measurements import boundary as mb
@@ -236,7 +236,7 @@ def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) 
     period = windows["0"].period
     n = math.prod(shape) * tb.norb
     absolute = {g: (s.levels + s.window.centre if not driven else
-                    fl.wrap_quasienergy(s.levels + s.window.centre, period))
+                    qe.wrap_quasienergy(s.levels + s.window.centre, period))
                 for g, s in states.items() if s.shape == shape}
     full = n <= (FULL_SPECTRUM_MAX_DRIVEN if driven else FULL_SPECTRUM_MAX)
     if full:
@@ -310,7 +310,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
     drawing : SampleDrawing
         The summary.
     """
-    from ..physics import floquet as fl
+    from ..physics import quasienergy as qe
     from ..physics.measurements import boundary as mb
 
     job = job_from_results(results, label)
@@ -339,7 +339,7 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
         w = windows[gap]
         rel = bands.levels - w.centre
         if driven:
-            rel = fl.wrap_quasienergy(rel, w.period)
+            rel = qe.wrap_quasienergy(rel, w.period)
         inside = (np.abs(rel) <= w.halfwidth if np.isfinite(w.halfwidth)
                   else np.zeros(rel.shape, bool))
         win = np.flatnonzero(inside)

@@ -35,8 +35,7 @@ def _gap_label(g: str) -> str:
 def _title(job, drawing: SampleDrawing, options: dict) -> str:
     where = ", ".join(f"{k} = {v:g}" for k, v in drawing.params.items())
     # Parameters a drive step or kick sets are not fixed; they are shown by the drive.
-    driven_set = {k for _, over in job.drive.steps for k, _ in over} | {
-        k for _, _, over in job.drive.kicks for k, _ in over} | {p for p, *_ in job.drive.terms}
+    driven_set = job.drive.varied
     fixed = ", ".join(f"{k} = {v:g}" for k, v in job.fixed if isinstance(v, (int, float))
                       and k not in drawing.params and k not in driven_set)
     lines = [job.title, f"{where}" + (f"   (fixed: {fixed})" if fixed else "")]

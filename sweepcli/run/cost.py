@@ -95,9 +95,9 @@ def _scaled(kernel: Callable[[int], object], dim: int, sizes) -> float:
 def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, memo: dict
                          ) -> float:
     """Estimated seconds of measurement ``name`` at a typical point (module docstring)."""
-    from ..physics import floquet as fl
+    from ..physics import floquet_chern as fc
     from ..physics import invariants as inv
-    from ..physics.drive import HarmonicDrive
+    from ..physics import quasienergy as qe
     from ..physics.measurements import MEASUREMENTS
     from ..physics.spectrum import band_gap
 
@@ -108,7 +108,7 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
         if drive is None:
             gap = band_gap(tb, point.nocc, inv.GAP_KMESH).gap
         else:
-            g = memo.get("gaps") or fl.floquet_gaps(drive, fl.floquet_mesh(drive, PROBE_MESH[1],
+            g = memo.get("gaps") or qe.floquet_gaps(drive, qe.floquet_mesh(drive, PROBE_MESH[1],
                                                                              dim))
             gap = min(g.gap_0, g.gap_pi)
         if gap >= point.gap_tol:
@@ -124,22 +124,22 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
             tb, point.nocc, tb.operators["spin"], gap=math.inf, kmesh_n=n, max_kmesh=n), two)
     if name == "quasienergy_gaps":
         def gaps(n: int) -> object:
-            mesh = fl.floquet_mesh(drive, n, dim)
+            mesh = qe.floquet_mesh(drive, n, dim)
             memo["slices"] = mesh.slices
-            memo["gaps"] = fl.floquet_gaps(drive, mesh)
+            memo["gaps"] = qe.floquet_gaps(drive, mesh)
         return _scaled(gaps, dim, [kmesh]) if dim == 2 else _at_meshes(gaps, [kmesh])
     if name == "floquet_chern":
         def chern(n: int) -> object:
-            mesh = fl.floquet_mesh(drive, n, dim)
-            groups = fl.band_groups(mesh.eps, mesh.vectors)
+            mesh = qe.floquet_mesh(drive, n, dim)
+            groups = fc.band_groups(mesh.eps, mesh.vectors)
             return [inv.fhs_chern(g) for g in groups or () if g.shape[-1]]
         return _scaled(chern, dim, two)
     if name == "rudner_winding":
         slices = None
-        if isinstance(drive, HarmonicDrive):
-            slices = memo.get("slices") or fl.floquet_mesh(drive, PROBE_MESH[0], dim).slices
-        levels = [lv for lv in fl.RUDNER_LEVELS if kmesh <= lv[0] <= opts["max_kmesh"]][:2]
-        return sum(_scaled(lambda n, q=q: fl.rudner_integral(drive, n, q, slices=slices), dim,
+        if not drive.exact:
+            slices = memo.get("slices") or qe.floquet_mesh(drive, PROBE_MESH[0], dim).slices
+        levels = [lv for lv in fc.RUDNER_LEVELS if kmesh <= lv[0] <= opts["max_kmesh"]][:2]
+        return sum(_scaled(lambda n, q=q: fc.rudner_integral(drive, n, q, slices=slices), dim,
                            [n_level]) for n_level, q in levels)
     func = MEASUREMENTS[name].func
     if kmesh is not None and "max_kmesh" in opts:

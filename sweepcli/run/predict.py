@@ -2,7 +2,7 @@
 -1 (a closing of the quasienergy gap at 0 or pi), located between neighbouring grid values.
 
 For each swept parameter and each line of the grid along it (the other parameters at their
-grid values), :func:`sweepcli.physics.floquet.transition_points` follows every eigenphase of
+grid values), :func:`sweepcli.physics.transitions.transition_points` follows every eigenphase of
 ``U(k*)`` by eigenvector overlap and finds its crossings of 0 and pi by root finding. A static
 job uses ``U = exp(-i tau H(k*))`` with ``tau`` small enough that phases stay within (-pi/2,
 pi/2): its 0 crossings are the zero-energy closings.
@@ -19,9 +19,9 @@ import itertools
 import numpy as np
 
 from ..jobfile import Job
-from ..physics.drive import Slicing, floquet_operator, hermitian_exponential
-from ..physics.floquet import transition_points
+from ..physics.drives.evolution import Slicing, floquet_operator, hermitian_exponential
 from ..physics.measurements.driven import point_slicing
+from ..physics.transitions import transition_points
 
 
 def _operator(job: Job, k: np.ndarray):

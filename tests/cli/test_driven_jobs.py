@@ -10,8 +10,8 @@ from typer.testing import CliRunner
 
 from sweepcli.cli import app
 from sweepcli.jobfile import load_job
-from sweepcli.physics import floquet as fl
-from sweepcli.physics.drive import StepDrive
+from sweepcli.physics import chiral_frames as cf
+from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.models import MODELS
 from sweepcli.store import Results
 
@@ -58,7 +58,7 @@ def test_step_drive_from_the_job_equals_the_physics_drive(tmp_path):
     for i, T in enumerate((3.0, 7.55)):
         for j, a in enumerate((0.37, 1.2)):
             d = StepDrive(T, ((T / 2, ssh(v=1.0, w=a)), (T / 2, ssh(v=-0.8, w=1.4))))
-            ref = fl.chiral_windings(d, ssh(v=1.0).operators["chiral"])
+            ref = cf.chiral_windings(d, ssh(v=1.0).operators["chiral"])
             assert (r.data["nu_0"][i, j], r.data["nu_pi"][i, j]) == (ref.nu_0, ref.nu_pi)
     # T = 7.55, a = 0.37 is one of the low-frequency points where an invariant reaches 2.
     assert max(abs(r.data["nu_0"][1, 0]), abs(r.data["nu_pi"][1, 0])) == 2

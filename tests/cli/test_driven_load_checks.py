@@ -8,7 +8,7 @@ from typer.testing import CliRunner
 
 from sweepcli.cli import app
 from sweepcli.jobfile import load_job
-from sweepcli.physics.drive import evolve
+from sweepcli.physics.drives.evolution import evolve
 from sweepcli.store import Results
 
 # The two-step chiral chain of jobs/driven-chain.toml: SSH bonds (v intra-cell, w inter-cell),

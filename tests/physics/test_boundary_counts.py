@@ -248,7 +248,7 @@ def test_driven_chain_modes_at_low_frequency_are_counted_by_chiral_charge(period
     # (7.55, 0.37) one of nu_0, nu_pi is 2. The chain is doubled until the modes fit, and each end
     # is credited its chiral charge |tr(Gamma P_end)| in the chiral-symmetric frame, which the
     # diagonalisation here computes independently.
-    from sweepcli.physics.drive import StepDrive
+    from sweepcli.physics.drives.steps import StepDrive
 
     a = as_model(*ssh_cell(1.0, bond))
     b = as_model(*ssh_cell(-0.8, 1.4))

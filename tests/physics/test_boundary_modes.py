@@ -245,7 +245,7 @@ def test_too_large_flake_measurement_fails_before_bulk_work(monkeypatch):
 
 from scipy.linalg import expm  # noqa: E402
 
-from sweepcli.physics.drive import StepDrive  # noqa: E402
+from sweepcli.physics.drives.steps import StepDrive  # noqa: E402
 from sweepcli.physics.lattice import assemble  # noqa: E402
 
 

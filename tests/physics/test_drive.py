@@ -12,19 +12,19 @@ import scipy.linalg as sl
 import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
-from sweepcli.physics.drive import (
+from sweepcli.physics.drives.evolution import (
     FactorStack,
-    HarmonicDrive,
-    KickDrive,
-    StepDrive,
     evolve,
     floquet_evolution,
     floquet_operator,
     hermitian_exponential,
 )
-from sweepcli.physics.floquet import quasienergies, unitary_eig
+from sweepcli.physics.drives.harmonic import HarmonicDrive
+from sweepcli.physics.drives.kicks import KickDrive
+from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.lattice import assemble, fourier_term, pauli
 from sweepcli.physics.models import MODELS
+from sweepcli.physics.quasienergy import quasienergies, unitary_eig
 
 RNG = np.random.default_rng(11)
 
@@ -77,7 +77,7 @@ def test_closed_form_equals_eigendecomposition(tb):
 
 
 def test_non_dirac_model_falls_back_to_eigh():
-    from sweepcli.physics.drive import _dirac_exponential
+    from sweepcli.physics.drives.evolution import _dirac_exponential
 
     k = RNG.uniform(0, 2 * np.pi, size=(5, 2))
     assert _dirac_exponential(four_band(1.0, 0.4).bloch(k), 1.0, 1e-10) is None

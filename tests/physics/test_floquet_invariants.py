@@ -12,9 +12,15 @@ import numpy as np
 import pytest
 import scipy.linalg as sl
 
-from sweepcli.physics import floquet as fl
+from sweepcli.physics import chiral_frames as cf
+from sweepcli.physics import floquet_chern as fc
 from sweepcli.physics import invariants as inv
-from sweepcli.physics.drive import HarmonicDrive, StepDrive, floquet_operator
+from sweepcli.physics import line_symmetry as ls
+from sweepcli.physics import quasienergy as qe
+from sweepcli.physics import transitions as tr
+from sweepcli.physics.drives.evolution import floquet_operator
+from sweepcli.physics.drives.harmonic import HarmonicDrive
+from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.lattice import assemble, pauli
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
@@ -79,7 +85,7 @@ def end_modes(steps, T, gap0, gappi, cells=80):
 def test_chiral_chain_dispersion():
     th1, th2, T = 0.7, 2.1, 1.3
     k = np.linspace(0, 2 * np.pi, 41)[:, None]
-    eps = fl.quasienergy_values(floquet_operator(vw_drive(th1, th2, T), k), T)
+    eps = qe.quasienergy_values(floquet_operator(vw_drive(th1, th2, T), k), T)
     phi = np.arccos(np.cos(th1) * np.cos(th2) - np.sin(th1) * np.sin(th2) * np.cos(k[:, 0]))
     np.testing.assert_allclose(eps, np.stack([-phi / T, phi / T], -1), atol=1e-10)
 
@@ -88,7 +94,7 @@ def test_chiral_chain_dispersion():
                                       (0.6 * np.pi, 0.8 * np.pi), (0.8 * np.pi, 0.6 * np.pi),
                                       (2.9, 1.0), (1.0, 1.4), (-0.4, 1.2)])
 def test_chiral_chain_phase_diagram(th1, th2):
-    r = fl.chiral_windings(vw_drive(th1, th2), SZ)
+    r = cf.chiral_windings(vw_drive(th1, th2), SZ)
     assert r.reason == Reason.OK
     assert (r.nu_0, r.nu_pi) == vw_analytic(th1, th2)
     assert (r.nu, r.nu_prime) == (r.nu_0 + r.nu_pi, r.nu_0 - r.nu_pi)
@@ -98,7 +104,7 @@ def test_one_frame_alone_is_not_enough():
     # th1 = 0.6 pi, th2 = 0.8 pi: nu_0 = 1, nu_pi = -1 (analytic, above) but the frame at
     # t1 = T/4 has nu = 0: only the pair of frames sees both kinds of end modes.
     th1, th2, T = 0.6 * np.pi, 0.8 * np.pi, 1.0
-    r = fl.chiral_windings(vw_drive(th1, th2, T), SZ)
+    r = cf.chiral_windings(vw_drive(th1, th2, T), SZ)
     assert (r.nu, r.nu_prime) == (0, 2) and (r.nu_0, r.nu_pi) == (1, -1)
     modes = end_modes([(T / 2, (2 * th1 / T, 0.0)), (T / 2, (0.0, 2 * th2 / T))], T,
                       r.gap_0, r.gap_pi)
@@ -113,7 +119,7 @@ def test_low_frequency_invariants_beyond_one(v1, w1, v2, w2, T):
     # spans several cells and |nu| = 2 appears. Reference: the end modes of an 80-cell open
     # chain (2 |nu_0| zero modes and 2 |nu_pi| pi modes, both ends).
     d = StepDrive(T, ((T / 2, model("ssh", v=v1, w=w1)), (T / 2, model("ssh", v=v2, w=w2))))
-    r = fl.chiral_windings(d, SZ)
+    r = cf.chiral_windings(d, SZ)
     assert r.reason == Reason.OK and max(abs(r.nu_0), abs(r.nu_pi)) == 2
     modes = end_modes([(T / 2, (v1, w1)), (T / 2, (v2, w2))], T, r.gap_0, r.gap_pi)
     assert modes == (2 * abs(r.nu_0), 2 * abs(r.nu_pi))
@@ -140,12 +146,12 @@ def test_half_period_route_equals_frames_route():
         T = rng.uniform(1.0, 3.0)
         d = StepDrive(T, ((T / 2, chiral_tb()), (T / 2, chiral_tb())))
         t1, t2 = d.symmetric_times(g)
-        k = fl._line(np.zeros(1), np.ones(1), 512)
-        u1, u2, f, _ = fl._frames_on(d, k, t1, t2)
-        r, step = fl.chiral_from_frames(u1, u2, f, g, T)
+        k = cf.line_momenta(np.zeros(1), np.ones(1), 512)
+        u1, u2, f, _ = cf.frames_on(d, k, t1, t2)
+        r, step = cf.chiral_from_frames(u1, u2, f, g, T)
         if r.reason != Reason.OK or step > 0.5:
             continue
-        assert fl.half_period_windings(f, g) == (r.nu_0, r.nu_pi)
+        assert cf.half_period_windings(f, g) == (r.nu_0, r.nu_pi)
         checked += 1
     assert checked >= 3
 
@@ -163,15 +169,15 @@ def test_frequency_sweep_closes_pi_gap_at_analytic_frequency():
     for omega in (1.3, 1.45, 1.5, 1.56, 1.7):
         d = drive(omega)
         T = d.period
-        g = fl.floquet_gaps(d, fl.floquet_mesh(d, 33, 1))
+        g = qe.floquet_gaps(d, qe.floquet_mesh(d, 33, 1))
         assert g.gap_pi == pytest.approx(2 / T * abs(np.pi - (v + w) * T / 2), abs=1e-9)
         assert abs(g.k_pi[0]) < 1e-6
-    assert fl.floquet_gaps(drive(1.5), fl.floquet_mesh(drive(1.5), 33, 1)).gap_pi < 1e-9
+    assert qe.floquet_gaps(drive(1.5), qe.floquet_mesh(drive(1.5), 33, 1)).gap_pi < 1e-9
     grid = np.linspace(1.2, 1.8, 7)
-    found = fl.transition_points(lambda om: floquet_operator(drive(om), np.zeros((1, 1))), grid)
+    found = tr.transition_points(lambda om: floquet_operator(drive(om), np.zeros((1, 1))), grid)
     assert [(t.gap, round(t.value, 10)) for t in found] == [("pi", v + w)]
     # At the closing the pi invariant is missing, the 0 invariant still defined (half period).
-    r = fl.chiral_windings(drive(1.5), SZ)
+    r = cf.chiral_windings(drive(1.5), SZ)
     assert r.reason == Reason.GAP_CLOSED and r.nu_pi is None and r.nu_0 == 1
 
 
@@ -183,12 +189,12 @@ def test_high_frequency_limit_reproduces_static_qwz():
     T, m = 0.5, 1.0
     d = HarmonicDrive(T, lambda t: model("qwz", m=m + 0.3 * np.cos(2 * np.pi * t / T)),
                       tol=1e-7)
-    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
-    c = fl.floquet_chern(d, g)
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
     static = inv.chern_number(model("qwz", m=m), 1).value
     assert static == -1  # Qi, Wu and Zhang 2006 in this project's sign (invariants module)
     assert c.reason == Reason.OK and (c.lower, c.upper) == (static, -static)
-    w = fl.rudner_winding(d, g)
+    w = fc.rudner_winding(d, g)
     assert w.reason == Reason.OK and (w.w_0, w.w_pi) == (static, 0) and w.residue < 1e-3
 
 
@@ -205,15 +211,15 @@ def test_anomalous_five_step_drive():
     d = five_step(5 * np.pi / (2 * T), delta, T)
     np.testing.assert_allclose(floquet_operator(d, np.array([[0.3, 1.7]]), start=0.0)[0],
                                sl.expm(-1j * T / 5 * delta * SZ), atol=1e-12)
-    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 16, 2))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 16, 2))
     assert g.gap_0 == pytest.approx(2 * delta / 5) and g.gap_pi == pytest.approx(
         2 * (np.pi - delta / 5))
-    c = fl.floquet_chern(d, g)
+    c = fc.floquet_chern(d, g)
     assert c.reason == Reason.OK and (c.upper, c.lower) == (0, 0)
-    w = fl.rudner_winding(d, g)
+    w = fc.rudner_winding(d, g)
     assert w.reason == Reason.OK and (w.w_0, w.w_pi) == (1, 1) and w.residue < 1e-9
     rev = five_step(5 * np.pi / (2 * T), delta, T, order=(4, 3, 2, 1))
-    w = fl.rudner_winding(rev, fl.floquet_gaps(rev, fl.floquet_mesh(rev, 16, 2)))
+    w = fc.rudner_winding(rev, qe.floquet_gaps(rev, qe.floquet_mesh(rev, 16, 2)))
     assert (w.w_0, w.w_pi) == (-1, -1)
 
 
@@ -223,9 +229,9 @@ def test_band_chern_is_difference_of_gap_windings(a, b, T):
     # between the 0 gap (below) and the pi gap (above). Two-step QWZ drives at low frequency
     # have |C| up to 2 here.
     d = StepDrive(T, ((T / 2, model("qwz", m=a)), (T / 2, model("qwz", m=b))))
-    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
-    c = fl.floquet_chern(d, g)
-    w = fl.rudner_winding(d, g)
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    w = fc.rudner_winding(d, g)
     assert c.reason == Reason.OK and w.reason == Reason.OK
     assert c.upper == w.w_pi - w.w_0 and c.lower == w.w_0 - w.w_pi
 
@@ -234,11 +240,11 @@ def test_closed_gap_gives_missing_values():
     # m alternating 1 and 3: at k = (pi, pi) both steps are (m - 2) sz and commute, the mean
     # mass vanishes and U = 1 there: the 0 gap is closed exactly, the pi gap open.
     d = StepDrive(1.0, ((0.5, model("qwz", m=1.0)), (0.5, model("qwz", m=3.0))))
-    g = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
     assert g.gap_0 < 1e-9 and np.allclose(np.abs(g.k_0), np.pi) and g.gap_pi > 0.1
-    c = fl.floquet_chern(d, g)
+    c = fc.floquet_chern(d, g)
     assert c.reason == Reason.GAP_CLOSED and c.upper is None and c.lower is None
-    w = fl.rudner_winding(d, g)
+    w = fc.rudner_winding(d, g)
     assert w.reason == Reason.GAP_CLOSED and w.w_0 is None and w.w_pi is not None
 
 
@@ -269,7 +275,7 @@ def test_line_sector_windings():
     th = ((0.3, 0.9), (0.6 * np.pi, 0.8 * np.pi))  # analytic (1, 0) and (1, -1)
     s = np.diag([1.0, 1, -1, -1])
     g = np.diag([1.0, -1, 1, -1])
-    secs = fl.line_sector_windings(leg_drive(th, (1,)), s, g, origin=[0.0], direction=[1])
+    secs = ls.line_sector_windings(leg_drive(th, (1,)), s, g, origin=[0.0], direction=[1])
     # sectors ordered by the phase of the eigenvalue of S: +1 (leg 1) first, then -1 (leg 2)
     assert np.allclose([sec.eigenvalue for sec in secs], [1, -1]) and secs[0].size == 2
     assert [(x.result.nu_0, x.result.nu_pi) for x in secs] == [vw_analytic(*th[0]),
@@ -277,12 +283,12 @@ def test_line_sector_windings():
     # 2D legs hopping along a1 + a2: on the diagonal k = s (1, 1) the Bloch phase is e^{2is},
     # so each sector's windings double; along k = s (1, 0) they are the chain's.
     d2 = leg_drive(th, (1, 1))
-    diag = fl.line_sector_windings(d2, s, g, origin=[0.0, 0.0], direction=[1, 1])
+    diag = ls.line_sector_windings(d2, s, g, origin=[0.0, 0.0], direction=[1, 1])
     assert [(x.result.nu_0, x.result.nu_pi) for x in diag] == [(2, 0), (2, -2)]
-    side = fl.line_sector_windings(d2, s, g, origin=[0.0, 0.3], direction=[1, 0])
+    side = ls.line_sector_windings(d2, s, g, origin=[0.0, 0.3], direction=[1, 0])
     assert [(x.result.nu_0, x.result.nu_pi) for x in side] == [(1, 0), (1, -1)]
     # A static model: the winding of each sector's chiral block (SSH: 1 for |v| < |w|).
-    static = fl.line_sector_windings(two_chains(((0.3, 1.0), (1.5, 1.0)), (1,)), s, g,
+    static = ls.line_sector_windings(two_chains(((0.3, 1.0), (1.5, 1.0)), (1,)), s, g,
                                      origin=[0.0], direction=[1])
     assert [x.result.nu_0 for x in static] == [1, 0]
 
@@ -292,14 +298,14 @@ def test_line_winding_rejects_bad_operators():
     g = np.diag([1.0, -1, 1, -1])
     mixing = np.kron(pauli("x"), np.eye(2))  # swaps the legs, which differ
     with pytest.raises(ValueError, match="does not commute with U\\(k\\)"):
-        fl.line_sector_windings(d, mixing, g, origin=[0.0], direction=[1])
+        ls.line_sector_windings(d, mixing, g, origin=[0.0], direction=[1])
     with pytest.raises(ValueError, match="does not commute with the chiral operator"):
-        fl.line_sector_windings(d, np.kron(np.eye(2), pauli("x")), g, origin=[0.0],
+        ls.line_sector_windings(d, np.kron(np.eye(2), pauli("x")), g, origin=[0.0],
                                 direction=[1])
     with pytest.raises(ValueError, match="must be unitary"):
-        fl.line_sector_windings(d, 2 * np.eye(4), g, origin=[0.0], direction=[1])
+        ls.line_sector_windings(d, 2 * np.eye(4), g, origin=[0.0], direction=[1])
     with pytest.raises(ValueError, match="nonzero integer vector"):
-        fl.line_sector_windings(d, np.eye(4), g, origin=[0.0], direction=[0.5])
+        ls.line_sector_windings(d, np.eye(4), g, origin=[0.0], direction=[0.5])
 
 
 # ---------------------------------------------------------------------------------------------

@@ -13,8 +13,9 @@ from scipy.linalg import expm
 from scipy.optimize import minimize, minimize_scalar
 
 from sweepcli.physics import boundary as bd
-from sweepcli.physics import floquet as fl
-from sweepcli.physics.drive import HarmonicDrive, StepDrive
+from sweepcli.physics import quasienergy as qe
+from sweepcli.physics.drives.harmonic import HarmonicDrive
+from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.lattice import assemble, fourier_term, pauli
 from sweepcli.physics.measurements import MEASUREMENTS
 from sweepcli.physics.measurements import driven as md
@@ -125,14 +126,14 @@ def test_quasienergy_at_exactly_pi_over_t_is_plus_pi_over_t():
     # A constant onsite energy pi/T for one period: U = exp(-i pi) = -1 exactly.
     tb = assemble(np.eye(1), np.zeros((2, 1)), np.pi / T * np.eye(2), [])
     u = expm(-1j * T * tb.bloch(np.zeros((1, 1))))
-    eps, _ = fl.quasienergies(u, T)
+    eps, _ = qe.quasienergies(u, T)
     np.testing.assert_array_equal(eps, np.pi / T)
-    np.testing.assert_array_equal(fl.quasienergy_values(-np.eye(2)[None], T), np.pi / T)
-    assert fl.wrap_quasienergy(-np.pi / T, T) == np.pi / T
-    assert fl.wrap_quasienergy(np.pi / T, T) == np.pi / T
+    np.testing.assert_array_equal(qe.quasienergy_values(-np.eye(2)[None], T), np.pi / T)
+    assert qe.wrap_quasienergy(-np.pi / T, T) == np.pi / T
+    assert qe.wrap_quasienergy(np.pi / T, T) == np.pi / T
     assert bd.solvers._wrap(np.array([-np.pi / T]), T)[0] == np.pi / T
     x = np.linspace(-3 * np.pi / T, 3 * np.pi / T, 1001)
-    w = fl.wrap_quasienergy(x, T)
+    w = qe.wrap_quasienergy(x, T)
     assert np.all((w > -np.pi / T) & (w <= np.pi / T))
     np.testing.assert_allclose(np.exp(-1j * w * T), np.exp(-1j * x * T), atol=1e-12)
 

@@ -13,8 +13,9 @@ import math
 import numpy as np
 import pytest
 
-from sweepcli.physics import floquet as fl
-from sweepcli.physics.drive import HarmonicDrive
+from sweepcli.physics import floquet_chern as fc
+from sweepcli.physics import quasienergy as qe
+from sweepcli.physics.drives.harmonic import HarmonicDrive
 from sweepcli.physics.invariants import fhs_chern
 from sweepcli.physics.lattice import kmesh
 from sweepcli.physics.models import MODELS
@@ -57,8 +58,8 @@ def test_circular_drive_chern_equals_effective_hamiltonian(sense):
     assert abs(c_eff) == 1  # the light-induced gap is topological (Oka and Aoki 2009)
 
     d = drive(amplitude, omega, sense)
-    gaps = fl.floquet_gaps(d, fl.floquet_mesh(d, 24, 2))
-    chern = fl.floquet_chern(d, gaps)
+    gaps = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    chern = fc.floquet_chern(d, gaps)
     assert chern.lower == c_eff and chern.upper == -c_eff
     # Reversing the circulation reverses the Chern number.
     assert c_eff == sense * lower_band_chern(effective_hamiltonian(amplitude, omega, k, +1))

@@ -17,7 +17,7 @@ boundary as bd; bd.box_modes(...)``); by concern they live in
   (:class:`EdgeModes`, :func:`ribbon_modes`, :func:`floquet_ribbon_modes`).
 
 Quasienergies are ``eps = -arg(lambda) / T`` in ``(-pi/T, pi/T]``
-(:func:`sweepcli.physics.floquet.wrap_quasienergy`); levels are given relative to the centre
+(:func:`sweepcli.physics.quasienergy.wrap_quasienergy`); levels are given relative to the centre
 of their window.
 """
 

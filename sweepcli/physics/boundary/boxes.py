@@ -20,11 +20,11 @@ import numpy as np
 from scipy.optimize import minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence
 
-from .. import floquet as fl
-from .. import samples
-from ..drive import evolve
-from ..lattice import TightBinding
 from ...schema import Reason
+from .. import quasienergy as qe
+from .. import samples
+from ..drives.evolution import evolve
+from ..lattice import TightBinding
 from . import counts
 from .ribbons import ribbon_kgrid
 from .solvers import floquet_levels, sample_steps, static_levels
@@ -130,7 +130,7 @@ def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: 
     def dist(parts: list, k: np.ndarray) -> np.ndarray:
         u = evolve([(t, h.bloch(k[:, None])) for t, h in parts])
         eps = -np.angle(np.linalg.eigvals(u)) / period
-        return np.min(np.abs(fl.wrap_quasienergy(eps - centre, period)), axis=-1)
+        return np.min(np.abs(qe.wrap_quasienergy(eps - centre, period)), axis=-1)
 
     per_step = [_geometries(f, width) for _, f in factors]
     found = []

@@ -20,11 +20,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from .. import floquet as fl
-from .. import samples
-from ..drive import evolve
-from ..lattice import TightBinding
 from ...schema import Reason
+from .. import quasienergy as qe
+from .. import samples
+from ..drives.evolution import evolve
+from ..lattice import TightBinding
 from .windows import Window
 
 #: Offset of the ribbon k grid, in grid steps: irrational, so that high-symmetry momenta, where
@@ -154,9 +154,9 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
     """Chiral edge modes and edge gaps of a driven ribbon at quasienergy 0 and ``pi/T``.
 
     ``U(k_par)`` of the ribbon is the time-ordered product of the steps' ribbon Bloch
-    Hamiltonians (:func:`~sweepcli.physics.drive.evolve`, batched over ``k_par``), diagonalised
-    by :func:`sweepcli.physics.floquet.unitary_eig`, whose eigenvectors stay orthonormal inside
-    degenerate clusters (the overlaps that follow levels from one ``k_par`` to the next need
+    Hamiltonians (:func:`~sweepcli.physics.drives.evolution.evolve`, batched over ``k_par``),
+    diagonalised by :func:`sweepcli.physics.quasienergy.unitary_eig`, whose eigenvectors stay
+    orthonormal inside degenerate clusters (the overlaps that follow levels from one ``k_par`` to the next need
     that). The period is that of the windows (from :func:`floquet_windows`). Returns
     ``{"0": EdgeModes, "pi": EdgeModes}``; conventions as :func:`ribbon_modes`.
     """
@@ -170,7 +170,7 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
 
     def eig(k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if k.size not in cache:
-            phases, v = fl.unitary_eig(operator(k))
+            phases, v = qe.unitary_eig(operator(k))
             cache[k.size] = (-phases / period, v)
         return cache[k.size]
 
@@ -182,11 +182,11 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
 
         def spectrum(k: np.ndarray, c: float = window.centre) -> tuple[np.ndarray, np.ndarray]:
             eps, v = eig(k)
-            return fl.wrap_quasienergy(eps - c, period), v
+            return qe.wrap_quasienergy(eps - c, period), v
 
         def levels_at(x: float, c: float = window.centre) -> np.ndarray:
-            eps = fl.quasienergy_values(operator(np.array([x])), period)
-            return fl.wrap_quasienergy(eps - c, period)
+            eps = qe.quasienergy_values(operator(np.array([x])), period)
+            return qe.wrap_quasienergy(eps - c, period)
 
         out[name] = _edge_modes(spectrum, levels_at, low, window, nk, nk_max)
     return out

@@ -5,9 +5,9 @@
 Static samples: dense ``eigh`` (eigenvectors of the window only), or shift-invert Lanczos
 (``scipy.sparse.linalg.eigsh`` with ``sigma`` at the gap centre, one LU factorisation and a
 fixed start vector), asking for more levels until the farthest one found lies outside the
-window. Driven samples: dense ``U`` from :func:`sweepcli.physics.drive.evolve`, or the extremal
-eigenvalues of the Hermitian ``A = (U + U^dagger)/2`` (eigenvalue ``cos(eps T)``: near +1 is
-quasienergy near 0, near -1 is near ``pi/T``) by Lanczos on a linear operator that applies
+window. Driven samples: dense ``U`` from :func:`sweepcli.physics.drives.evolution.evolve`,
+or the extremal eigenvalues of the Hermitian ``A = (U + U^dagger)/2`` (eigenvalue
+``cos(eps T)``: near +1 is quasienergy near 0, near -1 is near ``pi/T``) by Lanczos on a linear operator that applies
 ``U`` and ``U^dagger`` to vectors through ``evolve``, never forming ``U``. Both driven paths
 then diagonalise ``Q^dagger U Q`` on the subspace found (invariant under ``U``, as a union of
 eigenspaces of ``A``), which separates ``+eps`` from ``-eps``.
@@ -23,9 +23,9 @@ import scipy.linalg as sla
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh, splu
 
-from .. import floquet as fl
+from .. import quasienergy as qe
 from .. import samples
-from ..drive import evolve
+from ..drives.evolution import evolve
 from ..lattice import TightBinding
 from .windows import Window
 
@@ -96,8 +96,8 @@ def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarr
 
 
 def _wrap(x: np.ndarray, period: float) -> np.ndarray:
-    """Quasienergy differences reduced to ``(-pi/T, pi/T]`` (:func:`fl.wrap_quasienergy`)."""
-    return fl.wrap_quasienergy(x, period)
+    """Quasienergy differences reduced to ``(-pi/T, pi/T]`` (:func:`qe.wrap_quasienergy`)."""
+    return qe.wrap_quasienergy(x, period)
 
 
 def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, method: str
@@ -109,7 +109,7 @@ def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, m
     steps : ``(duration, H)`` pairs in time order, ``H`` an ``(N, N)`` sparse sample matrix;
         ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)``.
     window : from :func:`floquet_windows`.
-    method : ``"dense"`` (``U`` formed by :func:`~sweepcli.physics.drive.evolve`, all of
+    method : ``"dense"`` (``U`` formed by :func:`~sweepcli.physics.drives.evolution.evolve`, all of
         ``A = (U + U^dagger)/2`` diagonalised) or ``"sparse"`` (Lanczos for the extremal
         eigenvalues of ``A`` with ``U`` and ``U^dagger`` applied to vectors).
 

@@ -25,8 +25,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .. import floquet as fl
-from ..drive import Drive, Slicing, decide_slicing
+from .. import quasienergy as qe
+from ..drives.base import Drive
+from ..drives.evolution import Slicing, decide_slicing
 from ..lattice import TightBinding
 from ..spectrum import band_edges, band_gap
 
@@ -87,7 +88,7 @@ def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = W
 
 
 def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
-                    gaps: fl.FloquetGaps | None = None, slicing: Slicing | None = None
+                    gaps: qe.FloquetGaps | None = None, slicing: Slicing | None = None
                     ) -> dict[str, Window]:
     """Windows at quasienergy 0 and ``pi/T`` of a drive, from its bulk quasienergy gaps.
 
@@ -95,10 +96,11 @@ def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
     ----------
     drive : the compiled drive (its period sets ``pi/T``).
     fraction : as :func:`static_window`.
-    gaps : the bulk gaps (:func:`sweepcli.physics.floquet.floquet_gaps`, refined in continuous
+    gaps : the bulk gaps (:func:`sweepcli.physics.quasienergy.floquet_gaps`, refined in continuous
         k); computed on the default quasienergy-gap mesh at ``slicing`` when omitted.
-    slicing : the drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), used
-        only when ``gaps`` is omitted.
+    slicing : the drive's time slicing
+        (:func:`~sweepcli.physics.drives.evolution.decide_slicing`), used only when ``gaps`` is
+        omitted.
 
     Returns
     -------
@@ -106,9 +108,9 @@ def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,
     docstring (``gap_0`` and ``gap_pi`` of the bulk).
     """
     if gaps is None:
-        mesh = fl.floquet_mesh(drive, fl.GAP_KMESH, drive.dim,
+        mesh = qe.floquet_mesh(drive, qe.GAP_KMESH, drive.dim,
                                slicing if slicing is not None else decide_slicing(drive))
-        gaps = fl.floquet_gaps(drive, mesh)
+        gaps = qe.floquet_gaps(drive, mesh)
     period = drive.period
     out = {}
     for name, gap, centre in (("0", gaps.gap_0, 0.0), ("pi", gaps.gap_pi, np.pi / period)):

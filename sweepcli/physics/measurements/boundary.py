@@ -2,8 +2,8 @@
 
 Static jobs build the samples from ``point.tb``; driven jobs from the steps of
 ``point.drive.factors()`` (``(duration, TightBinding)`` in time order), evolved with
-:func:`sweepcli.physics.drive.evolve`. Conventions, windows and the classification criterion
-are in :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.boundary.counts`.
+:func:`sweepcli.physics.drives.evolution.evolve`. Conventions, windows and the classification
+criterion are in :mod:`sweepcli.physics.boundary` and :mod:`sweepcli.physics.boundary.counts`.
 
 Layout of the stored variables (``g`` is ``0``, plus ``pi`` for driven jobs):
 
@@ -34,7 +34,6 @@ from typing import Any
 from ...schema import Quantity, Reason
 from .. import boundary as bd
 from .. import samples
-from ..drive import StepDrive
 from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
@@ -170,20 +169,21 @@ def _method_code(results: dict[str, bd.ModeCount]) -> int | None:
 def _chiral_frame(point: Point) -> tuple[list | None, Any]:
     """Factors in a chiral-symmetric frame and the chiral operator, or ``(None, None)``.
 
-    Static models: the model's own ``"chiral"`` operator. Step drives: the frame starting at
-    the first chiral-symmetric time (Asboth and Obuse, PRB 88, 121406 (2013)), where
-    ``Gamma U Gamma = U^dagger``; other drives are counted without chiral charges.
+    Static models: the model's own ``"chiral"`` operator. Drives: the frame starting at the
+    first chiral-symmetric time the drive finds (``symmetric_times``; Asboth and Obuse, PRB 88,
+    121406 (2013)), where ``Gamma U Gamma = U^dagger``; drives without one are counted without
+    chiral charges.
     """
     if point.drive is None:
         return None, point.tb.operators.get("chiral")
     chiral = point_factors(point)[0][1].operators.get("chiral")
-    if chiral is None or not isinstance(point.drive, StepDrive):
+    if chiral is None:
         return None, None
     try:
         t1, _ = point.drive.symmetric_times(chiral)
     except ValueError:
         return None, None
-    return point.drive.factors(start=t1), chiral
+    return point.drive.factors(start=t1, slices=point_slicing(point).slices), chiral
 
 
 def box_counts(point: Point, measurement: str, options: dict[str, Any]

@@ -1,6 +1,6 @@
 """Measurements of periodically driven lattices: quasienergy gaps and Floquet invariants.
 
-``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drive`), ``point.tb`` the
+``point.drive`` holds the compiled drive (:mod:`sweepcli.physics.drives`), ``point.tb`` the
 static model (its cell operators, e.g. ``"chiral"``, are used by the chiral invariants). The
 time slicing of a smooth drive is decided once per point (:func:`point_slicing`, memoised under
 ``("drive_slicing",)``) and used by every evolution of every measurement, open samples
@@ -20,16 +20,19 @@ from typing import Any
 import numpy as np
 
 from ...schema import Quantity, Reason
-from .. import floquet as fl
+from .. import chiral_frames as cf
+from .. import floquet_chern as fc
 from .. import invariants as inv
-from ..drive import Slicing, decide_slicing
+from .. import line_symmetry as ls
+from .. import quasienergy as qe
+from ..drives.evolution import Slicing, decide_slicing
 from ..lattice import pauli
 from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
 
 #: Default mesh of the quasienergy-gap search (points per direction; minima are refined).
-GAP_KMESH = fl.GAP_KMESH
+GAP_KMESH = qe.GAP_KMESH
 #: Largest number of symmetry sectors ``line_winding`` stores.
 MAX_SECTORS = 4
 
@@ -44,20 +47,21 @@ def _dim(point: Point) -> int:
 
 
 def point_slicing(point: Point) -> Slicing:
-    """The drive's time slicing (:func:`~sweepcli.physics.drive.decide_slicing`), memoised."""
+    """The drive's time slicing (:func:`~sweepcli.physics.drives.evolution.decide_slicing`),
+    memoised."""
     return point.memo(("drive_slicing",), lambda: decide_slicing(point.drive))
 
 
-def point_mesh(point: Point, n: int) -> fl.FloquetMesh:
+def point_mesh(point: Point, n: int) -> qe.FloquetMesh:
     """``U(k)`` diagonalised on an ``n^d`` mesh at the point's slicing, memoised."""
     return point.memo(("floquet_mesh", n),
-                      lambda: fl.floquet_mesh(point.drive, n, _dim(point), point_slicing(point)))
+                      lambda: qe.floquet_mesh(point.drive, n, _dim(point), point_slicing(point)))
 
 
-def point_gaps(point: Point, kmesh: int = GAP_KMESH, refine: bool = True) -> fl.FloquetGaps:
+def point_gaps(point: Point, kmesh: int = GAP_KMESH, refine: bool = True) -> qe.FloquetGaps:
     """Quasienergy gaps at 0 and pi/T, memoised."""
     return point.memo(("floquet_gaps", kmesh, bool(refine)),
-                      lambda: fl.floquet_gaps(point.drive, point_mesh(point, kmesh),
+                      lambda: qe.floquet_gaps(point.drive, point_mesh(point, kmesh),
                                               refine=refine))
 
 
@@ -146,11 +150,11 @@ def floquet_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
     """
     _need_drive(point)
     g = point_gaps(point)
-    r = fl.floquet_chern(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
+    r = fc.floquet_chern(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
                          max_kmesh=max_kmesh, flux_tol=flux_tol,
                          mesh_of=lambda n: point_mesh(point, n))
     if not g.converged:
-        r = fl.FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
+        r = fc.FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
     return {"floquet_chern_upper": r.upper, "floquet_chern_lower": r.lower,
             "floquet_chern_kmesh": r.kmesh, "floquet_chern_max_flux": r.max_flux,
             "reason": r.reason}
@@ -164,7 +168,7 @@ def floquet_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
     params=(Param("kmesh", kind="int", default=16, low=4, doc=_KMESH_DOC, sweepable=False),
             Param("max_kmesh", kind="int", default=128, low=4,
                   doc="largest k-mesh (points per direction)", sweepable=False),
-            Param("residue_tol", default=fl.RESIDUE_TOL, low=0.0, high=0.5, open_low=True,
+            Param("residue_tol", default=fc.RESIDUE_TOL, low=0.0, high=0.5, open_low=True,
                   open_high=True,
                   doc="largest accepted distance of the raw integral from an integer",
                   sweepable=False)),
@@ -176,7 +180,7 @@ def floquet_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
     dims=(2,), driven=True, operators=(),
 )
 def rudner_winding(point: Point, *, kmesh: int = 16, max_kmesh: int = 128,
-                   residue_tol: float = fl.RESIDUE_TOL) -> dict[str, Any]:
+                   residue_tol: float = fc.RESIDUE_TOL) -> dict[str, Any]:
     """``W_0``, ``W_pi``; sign such that ``C(band) = W(gap above) - W(gap below)``.
 
     A winding is missing when its gap is closed (``GAP_CLOSED``; the other one is still given)
@@ -184,7 +188,7 @@ def rudner_winding(point: Point, *, kmesh: int = 16, max_kmesh: int = 128,
     """
     _need_drive(point)
     g = point_gaps(point)
-    r = fl.rudner_winding(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
+    r = fc.rudner_winding(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
                           max_kmesh=max_kmesh, residue_tol=residue_tol)
     return {"w_0": r.w_0, "w_pi": r.w_pi, "w_residue": r.residue, "w_kmesh": r.kmesh,
             "reason": r.reason}
@@ -225,7 +229,7 @@ def frame_times_valid(times: Any) -> bool:
 
 def _times(times: Any, period: float) -> list[float] | None:
     """Fractions of the period (the job-file convention, as for step spans and kick times) to
-    the absolute times of :func:`sweepcli.physics.floquet.frame_times`."""
+    the absolute times of :func:`sweepcli.physics.chiral_frames.frame_times`."""
     if times is None:
         return None
     if not frame_times_valid(times):
@@ -261,11 +265,11 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     """``nu_0 = (nu + nu')/2``, ``nu_pi = (nu - nu')/2`` from the two symmetric frames.
 
     ``nu`` belongs to the first symmetric time ``t1`` (the earliest segment centre or boundary
-    that is a mirror point, :meth:`~sweepcli.physics.drive.StepDrive.symmetric_times`); the
+    that is a mirror point, :meth:`~sweepcli.physics.drives.steps.StepDrive.symmetric_times`); the
     number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
     """
     _need_drive(point)
-    r = fl.chiral_windings(point.drive, _chiral_op(point),
+    r = cf.chiral_windings(point.drive, _chiral_op(point),
                            times=_times(times, point.drive.period),
                            gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
                            phase_tol=phase_tol, slicing=point_slicing(point))
@@ -339,7 +343,7 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
     s = _matrix(operator, n, point.tb.operators)
     org = np.zeros(source.dim) if origin is None else np.asarray(origin, dtype=float)
     slicing = point_slicing(point) if point.drive is not None else None
-    sectors = fl.line_sector_windings(source, s, _chiral_op(point), origin=org,
+    sectors = ls.line_sector_windings(source, s, _chiral_op(point), origin=org,
                                       direction=direction,
                                       times=None if point.drive is None
                                       else _times(times, point.drive.period),

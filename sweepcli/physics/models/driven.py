@@ -47,7 +47,7 @@ def bipartite_square(*, j1: float = 0.0, j2: float = 0.0, j3: float = 0.0, j4: f
     around a plaquette, +x, -y, -x, +y (clockwise), and is back after four steps:
     ``U(k, 4T/5) = 1``, every Floquet band is flat and trivial, yet the drive has one chiral
     edge mode in each gap (Rudner et al. 2013). With this order the winding of
-    :func:`sweepcli.physics.floquet.rudner_integral` is ``W_0 = W_pi = +1``; reversing the
+    :func:`sweepcli.physics.floquet_chern.rudner_integral` is ``W_0 = W_pi = +1``; reversing the
     order of the steps reverses the circulation and the sign.
     """
     onsite = delta * pauli("z")
