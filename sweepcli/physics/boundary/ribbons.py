@@ -156,9 +156,9 @@ def floquet_ribbon_modes(factors: Sequence[tuple[float, TightBinding]], width: i
     ``U(k_par)`` of the ribbon is the time-ordered product of the steps' ribbon Bloch
     Hamiltonians (:func:`~sweepcli.physics.drives.evolution.evolve`, batched over ``k_par``),
     diagonalised by :func:`sweepcli.physics.quasienergy.unitary_eig`, whose eigenvectors stay
-    orthonormal inside degenerate clusters (the overlaps that follow levels from one ``k_par`` to the next need
-    that). The period is that of the windows (from :func:`floquet_windows`). Returns
-    ``{"0": EdgeModes, "pi": EdgeModes}``; conventions as :func:`ribbon_modes`.
+    orthonormal inside degenerate clusters (the overlaps that follow levels from one ``k_par``
+    to the next need that). The period is that of the windows (from :func:`floquet_windows`).
+    Returns ``{"0": EdgeModes, "pi": EdgeModes}``; conventions as :func:`ribbon_modes`.
     """
     period = next(iter(windows.values())).period
     ribbons = [(float(t), samples.ribbon(f, width, open_axis)) for t, f in factors]

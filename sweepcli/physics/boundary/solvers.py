@@ -5,12 +5,12 @@
 Static samples: dense ``eigh`` (eigenvectors of the window only), or shift-invert Lanczos
 (``scipy.sparse.linalg.eigsh`` with ``sigma`` at the gap centre, one LU factorisation and a
 fixed start vector), asking for more levels until the farthest one found lies outside the
-window. Driven samples: dense ``U`` from :func:`sweepcli.physics.drives.evolution.evolve`,
-or the extremal eigenvalues of the Hermitian ``A = (U + U^dagger)/2`` (eigenvalue
-``cos(eps T)``: near +1 is quasienergy near 0, near -1 is near ``pi/T``) by Lanczos on a linear operator that applies
-``U`` and ``U^dagger`` to vectors through ``evolve``, never forming ``U``. Both driven paths
-then diagonalise ``Q^dagger U Q`` on the subspace found (invariant under ``U``, as a union of
-eigenspaces of ``A``), which separates ``+eps`` from ``-eps``.
+window. Driven samples: dense ``U`` from :func:`sweepcli.physics.drives.evolution.evolve`, or
+the extremal eigenvalues of the Hermitian ``A = (U + U^dagger)/2`` (eigenvalue ``cos(eps T)``:
+near +1 is quasienergy near 0, near -1 is near ``pi/T``) by Lanczos on a linear operator that
+applies ``U`` and ``U^dagger`` to vectors through ``evolve``, never forming ``U``. Both driven
+paths then diagonalise ``Q^dagger U Q`` on the subspace found (invariant under ``U``, as a union
+of eigenspaces of ``A``), which separates ``+eps`` from ``-eps``.
 """
 
 from __future__ import annotations
