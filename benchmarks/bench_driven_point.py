@@ -17,8 +17,8 @@ import numpy as np
 import scipy.linalg as sl
 
 from sweepcli.physics import floquet_chern as fc
-from sweepcli.physics import invariants as inv
 from sweepcli.physics import quasienergy as qe
+from sweepcli.physics.chern import fhs_chern
 from sweepcli.physics.drives.steps import StepDrive
 from sweepcli.physics.lattice import assemble, fourier_term, kmesh, pauli
 
@@ -42,7 +42,7 @@ def batched(d: StepDrive):
     mesh = qe.floquet_mesh(d, N, 2)
     d0, dpi = qe.gap_distances(mesh.eps, d.period)
     lower, upper = fc.band_groups(mesh.eps, mesh.vectors)
-    return 2 * d0.min(), 2 * dpi.min(), inv.fhs_chern(upper)[0], inv.fhs_chern(lower)[0]
+    return 2 * d0.min(), 2 * dpi.min(), fhs_chern(upper)[0], fhs_chern(lower)[0]
 
 
 def loop_chern(vecs):

@@ -19,11 +19,12 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 
 import numpy as np  # noqa: E402
 
-from sweepcli.physics.invariants import chern_number, fhs_chern, spin_chern_number  # noqa: E402
+from sweepcli.physics.chern import chern_number, fhs_chern  # noqa: E402
 from sweepcli.physics.lattice import kmesh  # noqa: E402
 from sweepcli.physics.measurements import MEASUREMENTS  # noqa: E402
 from sweepcli.physics.models import MODELS  # noqa: E402
 from sweepcli.physics.point import Point  # noqa: E402
+from sweepcli.physics.spin_chern import spin_chern_number  # noqa: E402
 
 SAMPLE = {"bhz": dict(M=1.0, mix=0.1), "bbh": dict(gamma=0.4),
           "bhz_corner": dict(m=1.0, delta2=0.5),

@@ -1,7 +1,7 @@
 """Invariants ``nu_0``, ``nu_pi`` of chiral 1D drives from the two symmetric time frames.
 
 Asboth and Obuse, PRB 88, 121406 (2013); Asboth, Tarasinski and Delplace, PRB 90, 125143
-(2014). 1D windings use :func:`sweepcli.physics.invariants.det_winding` of the block
+(2014). 1D windings use :func:`sweepcli.physics.chiral_winding.det_winding` of the block
 ``P_- X P_+`` of the chiral operator's eigenspaces (SSH: +1 for ``|v| < |w|``). Conventions of
 quasienergies and gaps: :mod:`sweepcli.physics.quasienergy`.
 """
@@ -15,9 +15,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from . import invariants as inv
+from .chiral_winding import chiral_blocks, chiral_eigenbasis, det_winding
 from .drives.base import Drive
 from .drives.evolution import Slicing, floquet_evolution
+from .invariant_base import PHASE_TOL, WINDING_KMESH, mesh_sequence
 from .quasienergy import dagger, gap_distances, quasienergy_values
 
 #: Largest accepted ``|[S, X]|`` (symmetry on a line) and ``|G U G - U^dagger|`` (chiral frame).
@@ -58,7 +59,7 @@ def check_chiral_frame(u: np.ndarray, g: np.ndarray, what: str) -> None:
 
 def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np.ndarray,
                        period: float, *, gap_tol: float = 1e-6,
-                       phase_tol: float = inv.PHASE_TOL) -> tuple[ChiralWindings, float]:
+                       phase_tol: float = PHASE_TOL) -> tuple[ChiralWindings, float]:
     """``nu_0, nu_pi`` from the frames ``U_1 = U(t1 + T, t1)``, ``U_2`` and ``F = U(t1 + T/2, t1)``.
 
     Construction (Asboth and Obuse 2013; Asboth, Tarasinski and Delplace 2014): in a symmetric
@@ -91,10 +92,10 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
     n = u1.shape[0]
     if not (open0 or openpi):
         return ChiralWindings(None, None, None, None, gap0, gappi, n, Reason.GAP_CLOSED), 0.0
-    pm, pp = inv.chiral_eigenbasis(g)
+    pm, pp = chiral_eigenbasis(g)
     if open0 and openpi:
-        nu, s1 = inv.det_winding(inv.chiral_blocks(u1, g))
-        nup, s2 = inv.det_winding(inv.chiral_blocks(u2, g))
+        nu, s1 = det_winding(chiral_blocks(u1, g))
+        nup, s2 = det_winding(chiral_blocks(u2, g))
         step = max(s1, s2)
         if (nu + nup) % 2:
             return ChiralWindings(None, None, nu, nup, gap0, gappi, n,
@@ -102,17 +103,17 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
         return ChiralWindings((nu + nup) // 2, (nu - nup) // 2, nu, nup, gap0, gappi, n,
                               Reason.OK), step
     if open0:
-        v, step = inv.det_winding(np.conj(pm.T) @ f @ pp)
+        v, step = det_winding(np.conj(pm.T) @ f @ pp)
         return ChiralWindings(v, None, None, None, gap0, gappi, n, Reason.GAP_CLOSED), step
-    v, step = inv.det_winding(np.conj(pp.T) @ f @ pp)
+    v, step = det_winding(np.conj(pp.T) @ f @ pp)
     return ChiralWindings(None, v, None, None, gap0, gappi, n, Reason.GAP_CLOSED), step
 
 
 def half_period_windings(f: np.ndarray, chiral: np.ndarray) -> tuple[int, int]:
     """``(wind det P_- F P_+, wind det P_+ F P_+)`` of a half-period operator on a loop."""
-    pm, pp = inv.chiral_eigenbasis(chiral)
-    return (inv.det_winding(np.conj(pm.T) @ f @ pp)[0],
-            inv.det_winding(np.conj(pp.T) @ f @ pp)[0])
+    pm, pp = chiral_eigenbasis(chiral)
+    return (det_winding(np.conj(pm.T) @ f @ pp)[0],
+            det_winding(np.conj(pp.T) @ f @ pp)[0])
 
 
 def line_momenta(origin: Sequence[float], direction: Sequence[float], n: int) -> np.ndarray:
@@ -163,7 +164,7 @@ def refine_windings(measure: Callable[[int], tuple[ChiralWindings, float]], kmes
     ``phase_tol``; ``measure(n)`` returns the windings on ``n`` points and the largest step."""
     prev = None
     last = None
-    for n in inv.mesh_sequence(kmesh_n, max_kmesh, 2.0):
+    for n in mesh_sequence(kmesh_n, max_kmesh, 2.0):
         r, step = measure(n)
         last = r
         if r.reason == Reason.GAP_CLOSED and r.nu_0 is None and r.nu_pi is None:
@@ -179,8 +180,8 @@ def refine_windings(measure: Callable[[int], tuple[ChiralWindings, float]], kmes
 def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] | None = None,
                     origin: Sequence[float] | None = None,
                     direction: Sequence[float] | None = None, gap_tol: float = 1e-6,
-                    kmesh_n: int = inv.WINDING_KMESH, max_kmesh: int = 4096,
-                    phase_tol: float = inv.PHASE_TOL, slicing: Slicing | None = None
+                    kmesh_n: int = WINDING_KMESH, max_kmesh: int = 4096,
+                    phase_tol: float = PHASE_TOL, slicing: Slicing | None = None
                     ) -> ChiralWindings:
     """``nu_0`` and ``nu_pi`` of a chiral 1D drive (or along a line of a 2D drive).
 

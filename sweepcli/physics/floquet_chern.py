@@ -6,7 +6,7 @@ Conventions
 * Floquet bands are grouped *between the gaps*: the "upper" group has ``eps`` in ``(0, pi/T)``,
   the "lower" group ``(-pi/T, 0)``; when both gaps are open the size of each group is the same
   at every k and each group is a smooth vector bundle.
-* Chern numbers use :func:`sweepcli.physics.invariants.fhs_chern` (sign: the lower band of
+* Chern numbers use :func:`sweepcli.physics.chern.fhs_chern` (sign: the lower band of
   ``d.sigma`` has the degree of ``d_hat``).
 
 Published method
@@ -24,9 +24,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from . import invariants as inv
+from .chern import fhs_chern
 from .drives.base import Drive
 from .drives.evolution import evolve, hermitian_exponential
+from .invariant_base import (
+    CHERN_KMESH,
+    CHERN_MAX_KMESH,
+    FLUX_TOL,
+    GROWTH,
+    gap_rule_kmesh,
+    mesh_sequence,
+)
 from .lattice import kmesh
 from .quasienergy import FloquetGaps, FloquetMesh, dagger, floquet_mesh, quasienergies
 
@@ -58,7 +66,7 @@ class FloquetChern:
     ----------
     upper, lower : int or None
         Chern numbers of the bands with quasienergy in ``(0, pi/T)`` and ``(-pi/T, 0)``
-        (sign of :func:`sweepcli.physics.invariants.fhs_chern`); ``None`` if missing. A group
+        (sign of :func:`sweepcli.physics.chern.fhs_chern`); ``None`` if missing. A group
         with no bands has Chern number 0.
     kmesh : mesh used last, or None.
     max_flux : largest plaquette flux on that mesh (rad), nan if missing.
@@ -73,23 +81,23 @@ class FloquetChern:
 
 
 def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
-                  kmesh_n: int = inv.CHERN_KMESH, max_kmesh: int = inv.CHERN_MAX_KMESH,
-                  flux_tol: float = inv.FLUX_TOL,
+                  kmesh_n: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
+                  flux_tol: float = FLUX_TOL,
                   mesh_of: Callable[[int], FloquetMesh] | None = None) -> FloquetChern:
     """Chern numbers of both Floquet band groups of a 2D drive, with a convergence policy.
 
     Both gaps must be open (``>= gap_tol``). The first mesh is
     ``max(kmesh_n, gap_rule_kmesh(min(gap_0, gap_pi)))``; the answer is accepted when two
     successive meshes (growth 1.5) have the largest plaquette flux below ``flux_tol`` and agree,
-    as for static bands (:mod:`sweepcli.physics.invariants`).
+    as for static bands (:mod:`sweepcli.physics.chern`).
     """
     if not (gaps.gap_0 >= gap_tol and gaps.gap_pi >= gap_tol):
         return FloquetChern(None, None, None, math.nan, Reason.GAP_CLOSED)
     mesh_of = mesh_of or (lambda n: floquet_mesh(drive, n, 2))
-    start = max(kmesh_n, inv.gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)))
+    start = max(kmesh_n, gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)))
     prev = None
     last_n, last_flux = None, math.nan
-    for n in inv.mesh_sequence(min(start, max_kmesh), max_kmesh, inv.GROWTH):
+    for n in mesh_sequence(min(start, max_kmesh), max_kmesh, GROWTH):
         mesh = mesh_of(n)
         if not mesh.converged:
             return FloquetChern(None, None, n, math.nan, Reason.NOT_CONVERGED)
@@ -101,7 +109,7 @@ def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
             if g.shape[-1] == 0:
                 values.append(0)
                 continue
-            c, f = inv.fhs_chern(g)
+            c, f = fhs_chern(g)
             values.append(c)
             flux = max(flux, f)
         last_n, last_flux = n, flux
@@ -136,7 +144,7 @@ def rudner_integral(drive: Drive, n: int, nodes: int, *, slices: int | None = No
     kick is a factor of unit length) is a homotopy and does not change it.
 
     Sign: the overall minus sign makes ``C = W(gap above) - W(gap below)`` hold for every
-    Floquet band with this project's Chern sign (:func:`~sweepcli.physics.invariants.fhs_chern`,
+    Floquet band with this project's Chern sign (:func:`~sweepcli.physics.chern.fhs_chern`,
     which is minus the ``(1/2 pi i) int Tr P [d_1 P, d_2 P]`` convention), so that in the
     high-frequency limit ``W_0`` equals the static Chern number of the bands below zero and
     ``W_pi = 0``. Both statements are checked by the tests.

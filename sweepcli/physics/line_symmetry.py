@@ -15,7 +15,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from . import invariants as inv
 from .chiral_frames import (
     SYMMETRY_TOL,
     ChiralWindings,
@@ -27,8 +26,10 @@ from .chiral_frames import (
     line_momenta,
     refine_windings,
 )
+from .chiral_winding import chiral_blocks, det_winding
 from .drives.base import Drive
 from .drives.evolution import Slicing
+from .invariant_base import PHASE_TOL, WINDING_KMESH
 from .lattice import TightBinding
 from .quasienergy import dagger, unitary_eig
 
@@ -96,8 +97,8 @@ def _commutator_check(s: np.ndarray, x: np.ndarray, what: str, line: str) -> Non
 def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                          chiral: np.ndarray, *, origin: Sequence[float],
                          direction: Sequence[float], times: Sequence[float] | None = None,
-                         gap_tol: float = 1e-6, kmesh_n: int = inv.WINDING_KMESH,
-                         max_kmesh: int = 4096, phase_tol: float = inv.PHASE_TOL,
+                         gap_tol: float = 1e-6, kmesh_n: int = WINDING_KMESH,
+                         max_kmesh: int = 4096, phase_tol: float = PHASE_TOL,
                          slicing: Slicing | None = None) -> list[SectorWinding]:
     """Windings at the 0 and pi gaps of each eigen-sector of ``S`` on a line of the BZ.
 
@@ -172,7 +173,7 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                 if not gap0 >= gap_tol:
                     return ChiralWindings(None, None, None, None, gap0, math.nan, n,
                                           Reason.GAP_CLOSED), 0.0
-                v, step = inv.det_winding(inv.chiral_blocks(hs, gs))
+                v, step = det_winding(chiral_blocks(hs, gs))
                 return ChiralWindings(v, None, None, None, gap0, math.nan, n, Reason.OK), step
             if not ok:
                 return ChiralWindings(None, None, None, None, math.nan, math.nan, n,

@@ -96,31 +96,33 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
                          ) -> float:
     """Estimated seconds of measurement ``name`` at a typical point (module docstring)."""
     from ..physics import floquet_chern as fc
-    from ..physics import invariants as inv
     from ..physics import quasienergy as qe
+    from ..physics.chern import chern_number, fhs_chern
+    from ..physics.invariant_base import GAP_KMESH, GROWTH, gap_rule_kmesh
     from ..physics.measurements import MEASUREMENTS
     from ..physics.spectrum import band_gap
+    from ..physics.spin_chern import spin_chern_number
 
     tb, drive, dim = point.tb, point.drive, job.dim
     kmesh = opts.get("kmesh")
     if name in ("chern", "spin_chern", "floquet_chern"):
         # The gap rule raises the first mesh of a small gap.
         if drive is None:
-            gap = band_gap(tb, point.nocc, inv.GAP_KMESH).gap
+            gap = band_gap(tb, point.nocc, GAP_KMESH).gap
         else:
             g = memo.get("gaps") or qe.floquet_gaps(drive, qe.floquet_mesh(drive, PROBE_MESH[1],
                                                                              dim))
             gap = min(g.gap_0, g.gap_pi)
         if gap >= point.gap_tol:
-            kmesh = min(max(kmesh, inv.gap_rule_kmesh(gap)), opts["max_kmesh"])
-    two = [kmesh, math.ceil(inv.GROWTH * kmesh)] if kmesh else []
+            kmesh = min(max(kmesh, gap_rule_kmesh(gap)), opts["max_kmesh"])
+    two = [kmesh, math.ceil(GROWTH * kmesh)] if kmesh else []
     if name == "gap":
         return _at_meshes(lambda n: band_gap(tb, point.nocc, n), [kmesh])
     if name == "chern":
-        return _at_meshes(lambda n: inv.chern_number(tb, point.nocc, gap=math.inf, kmesh_n=n,
+        return _at_meshes(lambda n: chern_number(tb, point.nocc, gap=math.inf, kmesh_n=n,
                                                      max_kmesh=n), two)
     if name == "spin_chern":
-        return _at_meshes(lambda n: inv.spin_chern_number(
+        return _at_meshes(lambda n: spin_chern_number(
             tb, point.nocc, tb.operators["spin"], gap=math.inf, kmesh_n=n, max_kmesh=n), two)
     if name == "quasienergy_gaps":
         def gaps(n: int) -> object:
@@ -132,7 +134,7 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
         def chern(n: int) -> object:
             mesh = qe.floquet_mesh(drive, n, dim)
             groups = fc.band_groups(mesh.eps, mesh.vectors)
-            return [inv.fhs_chern(g) for g in groups or () if g.shape[-1]]
+            return [fhs_chern(g) for g in groups or () if g.shape[-1]]
         return _scaled(chern, dim, two)
     if name == "rudner_winding":
         slices = None

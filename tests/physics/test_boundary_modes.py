@@ -16,7 +16,8 @@ import pytest
 from sweepcli.physics import boundary as bd
 from sweepcli.physics import samples
 from sweepcli.physics.boundary import counts
-from sweepcli.physics.invariants import chern_number, winding_number
+from sweepcli.physics.chern import chern_number
+from sweepcli.physics.chiral_winding import winding_number
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
 from sweepcli.physics.point import Point

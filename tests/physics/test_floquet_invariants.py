@@ -14,10 +14,10 @@ import scipy.linalg as sl
 
 from sweepcli.physics import chiral_frames as cf
 from sweepcli.physics import floquet_chern as fc
-from sweepcli.physics import invariants as inv
 from sweepcli.physics import line_symmetry as ls
 from sweepcli.physics import quasienergy as qe
 from sweepcli.physics import transitions as tr
+from sweepcli.physics.chern import chern_number
 from sweepcli.physics.drives.evolution import floquet_operator
 from sweepcli.physics.drives.harmonic import HarmonicDrive
 from sweepcli.physics.drives.steps import StepDrive
@@ -191,8 +191,8 @@ def test_high_frequency_limit_reproduces_static_qwz():
                       tol=1e-7)
     g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
     c = fc.floquet_chern(d, g)
-    static = inv.chern_number(model("qwz", m=m), 1).value
-    assert static == -1  # Qi, Wu and Zhang 2006 in this project's sign (invariants module)
+    static = chern_number(model("qwz", m=m), 1).value
+    assert static == -1  # Qi, Wu and Zhang 2006 in this project's sign (chern module)
     assert c.reason == Reason.OK and (c.lower, c.upper) == (static, -static)
     w = fc.rudner_winding(d, g)
     assert w.reason == Reason.OK and (w.w_0, w.w_pi) == (static, 0) and w.residue < 1e-3

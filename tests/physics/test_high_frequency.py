@@ -15,8 +15,8 @@ import pytest
 
 from sweepcli.physics import floquet_chern as fc
 from sweepcli.physics import quasienergy as qe
+from sweepcli.physics.chern import fhs_chern
 from sweepcli.physics.drives.harmonic import HarmonicDrive
-from sweepcli.physics.invariants import fhs_chern
 from sweepcli.physics.lattice import kmesh
 from sweepcli.physics.models import MODELS
 

@@ -10,12 +10,28 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sweepcli.physics import invariants as inv
+from sweepcli.physics.chern import (
+    chern_number,
+    fhs_chern,
+    fhs_plaquette_phases,
+    grid_plaquette_phases,
+    subdivided_plaquette_phases,
+)
+from sweepcli.physics.chiral_winding import winding_number
+from sweepcli.physics.invariant_base import (
+    CHERN_KMESH,
+    CHERN_MAX_KMESH,
+    FLUX_TOL,
+    GROWTH,
+    gap_rule_kmesh,
+    mesh_sequence,
+)
 from sweepcli.physics.lattice import kmesh, pauli
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
 from sweepcli.physics.models import MODELS
 from sweepcli.physics.point import Point
 from sweepcli.physics.spectrum import band_gap
+from sweepcli.physics.spin_chern import prodan_sectors, spin_chern_number
 from sweepcli.schema import Reason
 
 RNG = np.random.default_rng(7)
@@ -158,13 +174,13 @@ def test_fhs_kernel_is_gauge_invariant():
     # (and, for several bands, of unitary mixing) of the eigenvectors at each k.
     tb = model("bhz", M=1.0, mix=0.3)
     v = np.linalg.eigh(tb.bloch(kmesh(20, 2)))[1][..., :2]
-    up, _, _ = inv.prodan_sectors(v, tb.operators["spin"])
-    c0, f0 = inv.fhs_chern(up)
+    up, _, _ = prodan_sectors(v, tb.operators["spin"])
+    c0, f0 = fhs_chern(up)
     ph = np.exp(1j * RNG.uniform(0, 2 * np.pi, size=up.shape[:2] + (1, 1)))
-    assert inv.fhs_chern(up * ph) == pytest.approx((c0, f0))
+    assert fhs_chern(up * ph) == pytest.approx((c0, f0))
     q, _ = np.linalg.qr(RNG.normal(size=(20, 20, 2, 2)) + 1j * RNG.normal(size=(20, 20, 2, 2)))
-    c1, f1 = inv.fhs_chern(v @ q)
-    c2, f2 = inv.fhs_chern(v)
+    c1, f1 = fhs_chern(v @ q)
+    c2, f2 = fhs_chern(v)
     assert c1 == c2 and np.isclose(f1, f2)
 
 
@@ -173,12 +189,12 @@ def test_qwz_chern(m):
     # Qi, Wu and Zhang 2006 / Asboth et al. 2016: |C| = 1 for 0 < |m| < 2 with opposite signs
     # either side of m = 0, C = 0 for |m| > 2; the sign is fixed by the independent degree
     # of d_hat.
-    r = inv.chern_number(model("qwz", m=m), 1)
+    r = chern_number(model("qwz", m=m), 1)
     assert r.reason == Reason.OK
     assert r.value == (int(np.sign(-m)) if abs(m) < 2 else 0)
     assert r.value == round(qwz_degree(m))
     assert abs(qwz_degree(m) - r.value) < 1e-6
-    assert r.max_step < inv.FLUX_TOL
+    assert r.max_step < FLUX_TOL
 
 
 @pytest.mark.parametrize("phi", [np.pi / 2, -np.pi / 2, 0.7])
@@ -188,14 +204,14 @@ def test_haldane_chern(phi, frac):
     # -> -phi. The sign is checked against the degree of d_hat.
     t2 = 0.12
     mc = 3 * np.sqrt(3) * t2 * np.sin(phi)
-    r = inv.chern_number(model("haldane", t2=t2, phi=phi, M=frac * abs(mc)), 1)
+    r = chern_number(model("haldane", t2=t2, phi=phi, M=frac * abs(mc)), 1)
     deg = haldane_degree(1.0, t2, phi, frac * abs(mc))
     expected = -int(np.sign(np.sin(phi))) if abs(frac) < 1 else 0
     assert r.reason == Reason.OK and r.value == expected == round(deg)
 
 
 def test_closed_gap_is_missing():
-    r = inv.chern_number(model("qwz", m=2.0), 1, gap=band_gap(model("qwz", m=2.0), 1, 25).gap)
+    r = chern_number(model("qwz", m=2.0), 1, gap=band_gap(model("qwz", m=2.0), 1, 25).gap)
     assert r.value is None and r.reason == Reason.GAP_CLOSED
 
 
@@ -205,7 +221,7 @@ def test_near_transition_never_a_wrong_integer(m, truth):
     # the Dirac point at a plaquette centre and the link-variable sum is wrong at m = 1.97 and
     # m = -0.03. The policy must give the right integer or NOT_CONVERGED, whatever max_kmesh.
     tb = model("qwz", m=m)
-    coarse = inv.fhs_chern(np.linalg.eigh(tb.bloch(kmesh(9, 2)))[1][..., :1])[0]
+    coarse = fhs_chern(np.linalg.eigh(tb.bloch(kmesh(9, 2)))[1][..., :1])[0]
     if m in (1.97, -0.03):
         assert coarse != truth  # the test would be vacuous otherwise
     g = band_gap(tb, 1, 64).gap
@@ -213,9 +229,9 @@ def test_near_transition_never_a_wrong_integer(m, truth):
     # bound and the finer-mesh agreement stand between the coarse sum and the answer.
     for gap_hint in (g, 4.0):
         for max_k in (8, 12, 20, 30, 45, 256):
-            r = inv.chern_number(tb, 1, gap=gap_hint, kmesh_n=5, max_kmesh=max_k)
+            r = chern_number(tb, 1, gap=gap_hint, kmesh_n=5, max_kmesh=max_k)
             assert r.value == truth or (r.value is None and r.reason == Reason.NOT_CONVERGED)
-    assert inv.chern_number(tb, 1, gap=g).value == truth
+    assert chern_number(tb, 1, gap=g).value == truth
 
 
 def test_near_haldane_boundary_random_points():
@@ -229,7 +245,7 @@ def test_near_haldane_boundary_random_points():
         tb = model("haldane", t2=t2, phi=phi, M=M)
         g = band_gap(tb, 1, 64).gap
         for gap_hint, max_k in [(g, 16), (g, 40), (g, 100), (4.0, 16), (4.0, 40)]:
-            r = inv.chern_number(tb, 1, gap=gap_hint, kmesh_n=5, max_kmesh=max_k)
+            r = chern_number(tb, 1, gap=gap_hint, kmesh_n=5, max_kmesh=max_k)
             assert r.value == truth or (r.value is None and r.reason == Reason.NOT_CONVERGED)
 
 
@@ -244,10 +260,10 @@ def _uniform_rule_fails(tb, gap):
     # of every mesh of the walk is at or above the flux bound (or two resolved meshes never
     # follow each other), so it could only say NOT_CONVERGED.
     prev_ok = False
-    for n in inv.mesh_sequence(max(inv.CHERN_KMESH, inv.gap_rule_kmesh(gap)),
-                               inv.CHERN_MAX_KMESH, inv.GROWTH):
-        f = inv.fhs_plaquette_phases(np.linalg.eigh(tb.bloch(kmesh(n, 2)))[1][..., :1])
-        ok = np.max(np.abs(f)) < inv.FLUX_TOL
+    for n in mesh_sequence(max(CHERN_KMESH, gap_rule_kmesh(gap)),
+                               CHERN_MAX_KMESH, GROWTH):
+        f = fhs_plaquette_phases(np.linalg.eigh(tb.bloch(kmesh(n, 2)))[1][..., :1])
+        ok = np.max(np.abs(f)) < FLUX_TOL
         if ok and prev_ok:
             return False
         prev_ok = ok
@@ -265,9 +281,9 @@ def test_subdivision_resolves_formerly_missing_haldane_points(phi, mass_ratio):
     tb = model("haldane", t2=t2, phi=phi, M=mass_ratio * 3 * np.sqrt(3) * t2)
     g = band_gap(tb, 1, 64).gap
     assert 0.01 < g < 0.02 and _uniform_rule_fails(tb, g)
-    r = inv.chern_number(tb, 1, gap=g)
+    r = chern_number(tb, 1, gap=g)
     assert r.reason == Reason.OK and r.value == _haldane_truth(phi, mass_ratio)
-    assert r.max_step < inv.FLUX_TOL
+    assert r.max_step < FLUX_TOL
 
 
 def test_subdivision_near_haldane_boundary_never_a_wrong_integer():
@@ -284,11 +300,11 @@ def test_subdivision_near_haldane_boundary_never_a_wrong_integer():
         tb = model("haldane", t2=t2, phi=phi, M=ratio * 3 * np.sqrt(3) * t2)
         truth = _haldane_truth(phi, ratio)
         g = band_gap(tb, 1, 64).gap
-        for gap_hint, first, max_k in [(g, inv.CHERN_KMESH, inv.CHERN_MAX_KMESH), (g, 5, 40),
+        for gap_hint, first, max_k in [(g, CHERN_KMESH, CHERN_MAX_KMESH), (g, 5, 40),
                                        (4.0, 5, 16), (4.0, 5, 40), (4.0, 7, 100)]:
-            r = inv.chern_number(tb, 1, gap=gap_hint, kmesh_n=first, max_kmesh=max_k)
+            r = chern_number(tb, 1, gap=gap_hint, kmesh_n=first, max_kmesh=max_k)
             assert r.value == truth or (r.value is None and r.reason == Reason.NOT_CONVERGED)
-            accepted += r.reason == Reason.OK and max_k == inv.CHERN_MAX_KMESH
+            accepted += r.reason == Reason.OK and max_k == CHERN_MAX_KMESH
     assert accepted >= 20
 
 
@@ -302,8 +318,8 @@ def test_subdivided_plaquette_phases_add_up_to_the_plaquette_phase():
     t = h * np.arange(5) / 4
     v = np.linalg.eigh(tb.bloch(corner + np.stack(np.meshgrid(t, t, indexing="ij"), -1)))[1]
     v = v[..., :1]
-    whole = inv.grid_plaquette_phases(v[::4, ::4])[0, 0]
-    sub, edges = inv.subdivided_plaquette_phases(v)
+    whole = grid_plaquette_phases(v[::4, ::4])[0, 0]
+    sub, edges = subdivided_plaquette_phases(v)
     assert abs(whole) > 2.0
     assert np.exp(1j * (sub.sum() + edges.sum())) == pytest.approx(np.exp(1j * whole), abs=1e-10)
     assert abs(np.exp(1j * sub.sum()) - np.exp(1j * whole)) > 1e-3
@@ -311,15 +327,15 @@ def test_subdivided_plaquette_phases_add_up_to_the_plaquette_phase():
 
 def test_mesh_rule_beyond_max_is_not_converged():
     # A gap of 1e-4 asks for ceil(3.2/sqrt(5e-5)) = 453 points per direction > 256.
-    assert inv.gap_rule_kmesh(1e-4) == 453
-    r = inv.chern_number(model("qwz", m=2 - 5e-5), 1, gap=1e-4)
+    assert gap_rule_kmesh(1e-4) == 453
+    r = chern_number(model("qwz", m=2 - 5e-5), 1, gap=1e-4)
     assert r.value is None and r.reason == Reason.NOT_CONVERGED
 
 
 def test_trivial_total_chern_of_time_reversal_models():
     # T-symmetric BHZ (with spin mixing) and the quadrupole model have zero total Chern number.
-    assert inv.chern_number(model("bhz", M=1.0, mix=0.2), 2).value == 0
-    assert inv.chern_number(model("bbh", gamma=0.3), 2).value == 0
+    assert chern_number(model("bhz", M=1.0, mix=0.2), 2).value == 0
+    assert chern_number(model("bbh", gamma=0.3), 2).value == 0
 
 
 # ---------------------------------------------------------------------------------------------
@@ -330,7 +346,7 @@ def test_trivial_total_chern_of_time_reversal_models():
 def test_ssh_winding(v, expected):
     # Su, Schrieffer and Heeger 1979; Asboth et al. 2016, ch. 1: nu = 1 for |v| < |w|.
     tb = model("ssh", v=v)
-    r = inv.winding_number(tb, tb.operators["chiral"])
+    r = winding_number(tb, tb.operators["chiral"])
     assert r.reason == Reason.OK and r.value == expected
 
 
@@ -342,7 +358,7 @@ def test_ssh_winding_by_hand():
     phases = np.angle(v + w * np.exp(1j * ks))
     total = sum(np.angle(np.exp(1j * (b - a))) for a, b in zip(phases, np.roll(phases, -1)))
     tb = model("ssh", v=v, w=w)
-    assert round(total / (2 * np.pi)) == inv.winding_number(tb, tb.operators["chiral"]).value
+    assert round(total / (2 * np.pi)) == winding_number(tb, tb.operators["chiral"]).value
 
 
 @pytest.mark.parametrize("mu, t, delta", [(0.0, 1.0, 1.0), (1.0, 1.0, -0.3), (-1.5, 1.0, 0.6),
@@ -352,7 +368,7 @@ def test_kitaev_winding(mu, t, delta):
     # Kitaev, Physics-Uspekhi 44, 131 (2001): topological for |mu| < 2|t|; the docstring's
     # block h = -2t cos k - mu - 2i delta sin k winds sign(t delta) times there.
     tb = model("kitaev", mu=mu, t=t, delta=delta)
-    r = inv.winding_number(tb, tb.operators["chiral"])
+    r = winding_number(tb, tb.operators["chiral"])
     assert r.reason == Reason.OK
     assert r.value == (int(np.sign(t * delta)) if abs(mu) < 2 * abs(t) else 0)
 
@@ -360,16 +376,16 @@ def test_kitaev_winding(mu, t, delta):
 def test_winding_near_transition_and_closed():
     tb = model("ssh", v=0.999)
     for max_k in (64, 128, 512):
-        r = inv.winding_number(tb, tb.operators["chiral"], max_kmesh=max_k)
+        r = winding_number(tb, tb.operators["chiral"], max_kmesh=max_k)
         assert r.value == 1 or (r.value is None and r.reason == Reason.NOT_CONVERGED)
-    assert inv.winding_number(tb, tb.operators["chiral"], max_kmesh=64).reason == \
+    assert winding_number(tb, tb.operators["chiral"], max_kmesh=64).reason == \
         Reason.NOT_CONVERGED  # the phase of v + w e^{ik} jumps by ~pi near k = pi
-    assert inv.winding_number(tb, tb.operators["chiral"]).value == 1
+    assert winding_number(tb, tb.operators["chiral"]).value == 1
     tb = model("kitaev", mu=2.0)
-    assert inv.winding_number(tb, tb.operators["chiral"]).reason == Reason.GAP_CLOSED
+    assert winding_number(tb, tb.operators["chiral"]).reason == Reason.GAP_CLOSED
     # sigma_x does not anticommute with the SSH H(k) = (v + w cos k) sigma_x + w sin k sigma_y.
     with pytest.raises(ValueError, match="anticommute"):
-        inv.winding_number(model("ssh", v=0.5), pauli("x"))
+        winding_number(model("ssh", v=0.5), pauli("x"))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -396,7 +412,7 @@ def test_bhz_spin_chern(M, expected, mix):
     # T-symmetric spin mixing (Prodan's projected spin) leaves it unchanged.
     assert round(bhz_up_degree(M)) == expected
     tb = model("bhz", M=M, mix=mix)
-    r = inv.spin_chern_number(tb, 2, tb.operators["spin"])
+    r = spin_chern_number(tb, 2, tb.operators["spin"])
     assert r.reason == Reason.OK
     assert r.spin_chern == expected and r.c_up == expected and r.c_down == -expected
     assert r.z2 == abs(expected)
@@ -405,9 +421,9 @@ def test_bhz_spin_chern(M, expected, mix):
 
 def test_bhz_spin_chern_with_particle_hole_asymmetry():
     tb = model("bhz", M=1.5, B=1.0, D=0.3, C=0.2, mix=0.1)
-    assert inv.spin_chern_number(tb, 2, tb.operators["spin"]).spin_chern == 1
+    assert spin_chern_number(tb, 2, tb.operators["spin"]).spin_chern == 1
     tb = model("bhz", M=-1.5, B=-1.0)  # B < 0: same M/B, opposite sign (M, B -> -M, -B)
-    assert inv.spin_chern_number(tb, 2, tb.operators["spin"]).spin_chern == -1
+    assert spin_chern_number(tb, 2, tb.operators["spin"]).spin_chern == -1
 
 
 def test_projected_spin_gap_closing():
@@ -415,9 +431,9 @@ def test_projected_spin_gap_closing():
     # which vanishes on the band-inversion ring for 0 < M < 4B: no sector gap. For M < 0
     # (d3 < 0 everywhere) it is gapped and both sectors are trivial.
     tau_z = pauli("z0")
-    r = inv.spin_chern_number(model("bhz", M=1.0), 2, tau_z)
+    r = spin_chern_number(model("bhz", M=1.0), 2, tau_z)
     assert r.reason == Reason.SECTOR_GAP_CLOSED and np.isnan(r.spin_chern) and r.z2 is None
-    r = inv.spin_chern_number(model("bhz", M=-1.0), 2, tau_z)
+    r = spin_chern_number(model("bhz", M=-1.0), 2, tau_z)
     assert r.reason == Reason.OK and r.spin_chern == 0
 
 

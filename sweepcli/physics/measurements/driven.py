@@ -22,10 +22,10 @@ import numpy as np
 from ...schema import Quantity, Reason
 from .. import chiral_frames as cf
 from .. import floquet_chern as fc
-from .. import invariants as inv
 from .. import line_symmetry as ls
 from .. import quasienergy as qe
 from ..drives.evolution import Slicing, decide_slicing
+from ..invariant_base import CHERN_KMESH, CHERN_MAX_KMESH, FLUX_TOL, PHASE_TOL, WINDING_KMESH
 from ..lattice import pauli
 from ..point import Point
 from ..registry import Param
@@ -120,12 +120,12 @@ def quasienergy_gaps(point: Point, *, kmesh: int = GAP_KMESH, refine: bool = Tru
     description="Chern numbers of the Floquet bands grouped between the 0 and pi gaps",
     source="Fukui, Hatsugai and Suzuki, J. Phys. Soc. Jpn. 74, 1674 (2005), on Floquet "
            "eigenvectors; band grouping as in " + _RUDNER,
-    params=(Param("kmesh", kind="int", default=inv.CHERN_KMESH, low=4,
+    params=(Param("kmesh", kind="int", default=CHERN_KMESH, low=4,
                   doc=_KMESH_DOC + "; the gap rule ceil(3.2/sqrt(gap/2)) may raise it",
                   sweepable=False),
-            Param("max_kmesh", kind="int", default=inv.CHERN_MAX_KMESH, low=4,
+            Param("max_kmesh", kind="int", default=CHERN_MAX_KMESH, low=4,
                   doc="largest k-mesh (points per direction)", sweepable=False),
-            Param("flux_tol", default=inv.FLUX_TOL, low=0.0, high=math.pi, open_low=True,
+            Param("flux_tol", default=FLUX_TOL, low=0.0, high=math.pi, open_low=True,
                   open_high=True, units="rad",
                   doc="largest accepted Berry flux through one plaquette", sweepable=False)),
     quantities=(Quantity("floquet_chern_upper", "int32", "1",
@@ -137,15 +137,15 @@ def quasienergy_gaps(point: Point, *, kmesh: int = GAP_KMESH, refine: bool = Tru
                          "largest plaquette Berry flux on that mesh")),
     dims=(2,), driven=True, operators=(),
 )
-def floquet_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
-                  max_kmesh: int = inv.CHERN_MAX_KMESH, flux_tol: float = inv.FLUX_TOL
+def floquet_chern(point: Point, *, kmesh: int = CHERN_KMESH,
+                  max_kmesh: int = CHERN_MAX_KMESH, flux_tol: float = FLUX_TOL
                   ) -> dict[str, Any]:
     """Chern numbers of the band groups above and below quasienergy 0.
 
     Fixed layout whatever the number of bands: ``floquet_chern_upper`` is the group with
     ``eps`` in ``(0, pi/T)`` (for two bands: the band above quasienergy 0),
     ``floquet_chern_lower`` the group in ``(-pi/T, 0)``; an empty group has Chern number 0.
-    Both gaps must be open. Sign as :func:`sweepcli.physics.invariants.fhs_chern` (in the
+    Both gaps must be open. Sign as :func:`sweepcli.physics.chern.fhs_chern` (in the
     high-frequency limit the groups are the static bands above and below zero energy).
     """
     _need_drive(point)
@@ -245,11 +245,11 @@ def _times(times: Any, period: float) -> list[float] | None:
                   doc="the two time-symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as "
                       "fractions of the period (or t1 alone); found automatically for step "
                       "drives", units="1", sweepable=False),
-            Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
+            Param("kmesh", kind="int", default=WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4,
                   doc="largest k-mesh", sweepable=False),
-            Param("phase_tol", default=inv.PHASE_TOL, low=0.0, high=math.pi, open_low=True,
+            Param("phase_tol", default=PHASE_TOL, low=0.0, high=math.pi, open_low=True,
                   open_high=True, units="rad",
                   doc="largest accepted phase step of a determinant between neighbouring k",
                   sweepable=False)),
@@ -260,8 +260,8 @@ def _times(times: Any, period: float) -> list[float] | None:
     dims=(1,), driven=True, operators=("chiral",),
 )
 def chiral_windings(point: Point, *, times: list[float] | None = None,
-                    kmesh: int = inv.WINDING_KMESH, max_kmesh: int = 4096,
-                    phase_tol: float = inv.PHASE_TOL) -> dict[str, Any]:
+                    kmesh: int = WINDING_KMESH, max_kmesh: int = 4096,
+                    phase_tol: float = PHASE_TOL) -> dict[str, Any]:
     """``nu_0 = (nu + nu')/2``, ``nu_pi = (nu - nu')/2`` from the two symmetric frames.
 
     ``nu`` belongs to the first symmetric time ``t1`` (the earliest segment centre or boundary
@@ -321,7 +321,7 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
                   doc="symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as fractions of the "
                       "period (found automatically for step drives)", units="1",
                   sweepable=False),
-            Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
+            Param("kmesh", kind="int", default=WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4, doc="largest k-mesh",
                   sweepable=False)),
@@ -329,7 +329,7 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
 )
 def line_winding(point: Point, *, operator: Any, direction: list[float],
                  origin: list[float] | None = None, times: list[float] | None = None,
-                 kmesh: int = inv.WINDING_KMESH, max_kmesh: int = 4096) -> dict[str, Any]:
+                 kmesh: int = WINDING_KMESH, max_kmesh: int = 4096) -> dict[str, Any]:
     """Per-sector ``nu_0``, ``nu_pi`` on the line ``k = origin + s direction``.
 
     Layout: ``line_sectors`` = number of distinct eigenvalues of ``S`` (at most

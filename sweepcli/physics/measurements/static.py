@@ -13,15 +13,26 @@ import math
 from typing import Any
 
 from ...schema import Quantity, Reason
-from .. import invariants as inv
+from ..chern import chern_number
+from ..chiral_winding import winding_number
+from ..invariant_base import (
+    CHERN_KMESH,
+    CHERN_MAX_KMESH,
+    FLUX_TOL,
+    GAP_KMESH,
+    PHASE_TOL,
+    WINDING_KMESH,
+    WINDING_MAX_KMESH,
+)
 from ..point import Point
 from ..registry import Param
 from ..spectrum import GapResult, band_gap
+from ..spin_chern import spin_chern_number
 from . import MEASUREMENTS
 
 #: Default uniform mesh of the gap search (points per direction); the refinement in continuous
 #: k makes a fine mesh unnecessary in any dimension.
-GAP_KMESH = inv.GAP_KMESH
+GAP_KMESH = GAP_KMESH
 
 _FHS = "Fukui, Hatsugai and Suzuki, J. Phys. Soc. Jpn. 74, 1674 (2005)"
 
@@ -69,11 +80,11 @@ def gap(point: Point, *, kmesh: int = GAP_KMESH, refine: bool = True) -> dict[st
 
 
 _CHERN_PARAMS = (
-    Param("kmesh", kind="int", default=inv.CHERN_KMESH, low=4, doc=_KMESH_DOC + "; the gap "
+    Param("kmesh", kind="int", default=CHERN_KMESH, low=4, doc=_KMESH_DOC + "; the gap "
           "rule ceil(3.2/sqrt(gap/2)) may raise it", sweepable=False),
-    Param("max_kmesh", kind="int", default=inv.CHERN_MAX_KMESH, low=4, doc=_MAX_KMESH_DOC,
+    Param("max_kmesh", kind="int", default=CHERN_MAX_KMESH, low=4, doc=_MAX_KMESH_DOC,
           sweepable=False),
-    Param("flux_tol", default=inv.FLUX_TOL, low=0.0, high=math.pi, open_low=True,
+    Param("flux_tol", default=FLUX_TOL, low=0.0, high=math.pi, open_low=True,
           open_high=True, units="rad", doc="largest accepted Berry flux through one plaquette",
           sweepable=False),
 )
@@ -92,11 +103,11 @@ _CHERN_PARAMS = (
                          "subdivision)")),
     dims=(2,), driven=False, operators=(),
 )
-def chern(point: Point, *, kmesh: int = inv.CHERN_KMESH, max_kmesh: int = inv.CHERN_MAX_KMESH,
-          flux_tol: float = inv.FLUX_TOL) -> dict[str, Any]:
-    """Chern number, sign as in :mod:`sweepcli.physics.invariants` (QWZ: +1 for -2 < m < 0)."""
+def chern(point: Point, *, kmesh: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
+          flux_tol: float = FLUX_TOL) -> dict[str, Any]:
+    """Chern number, sign as in :mod:`sweepcli.physics.chern` (QWZ: +1 for -2 < m < 0)."""
     g = point_gap(point).gap
-    r = inv.chern_number(point.tb, point.nocc, gap=g, gap_tol=point.gap_tol, kmesh_n=kmesh,
+    r = chern_number(point.tb, point.nocc, gap=g, gap_tol=point.gap_tol, kmesh_n=kmesh,
                          max_kmesh=max_kmesh, flux_tol=flux_tol)
     return {"chern": r.value, "chern_kmesh": r.kmesh, "chern_max_flux": r.max_step,
             "reason": r.reason}
@@ -107,11 +118,11 @@ def chern(point: Point, *, kmesh: int = inv.CHERN_KMESH, max_kmesh: int = inv.CH
     description="winding number of a chiral-symmetric chain (gap at zero energy)",
     source="Asboth, Oroszlany and Palyi, A Short Course on Topological Insulators (Springer "
            "2016), ch. 1 and 3",
-    params=(Param("kmesh", kind="int", default=inv.WINDING_KMESH, low=4, doc=_KMESH_DOC,
+    params=(Param("kmesh", kind="int", default=WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
-            Param("max_kmesh", kind="int", default=inv.WINDING_MAX_KMESH, low=4,
+            Param("max_kmesh", kind="int", default=WINDING_MAX_KMESH, low=4,
                   doc=_MAX_KMESH_DOC, sweepable=False),
-            Param("phase_tol", default=inv.PHASE_TOL, low=0.0, high=math.pi, open_low=True,
+            Param("phase_tol", default=PHASE_TOL, low=0.0, high=math.pi, open_low=True,
                   open_high=True, units="rad",
                   doc="largest accepted phase step of det h(k) between neighbouring k points",
                   sweepable=False)),
@@ -119,8 +130,8 @@ def chern(point: Point, *, kmesh: int = inv.CHERN_KMESH, max_kmesh: int = inv.CH
                 Quantity("winding_kmesh", "int32", "1", "k-mesh points used")),
     dims=(1,), driven=False, operators=("chiral",),
 )
-def winding(point: Point, *, kmesh: int = inv.WINDING_KMESH,
-            max_kmesh: int = inv.WINDING_MAX_KMESH, phase_tol: float = inv.PHASE_TOL
+def winding(point: Point, *, kmesh: int = WINDING_KMESH,
+            max_kmesh: int = WINDING_MAX_KMESH, phase_tol: float = PHASE_TOL
             ) -> dict[str, Any]:
     """1D chiral winding number (SSH: +1 for |v| < |w|); needs half filling."""
     tb = point.tb
@@ -130,7 +141,7 @@ def winding(point: Point, *, kmesh: int = inv.WINDING_KMESH,
         raise ValueError(f"the chiral winding describes the gap at zero energy: filling must "
                          f"be {tb.norb // 2}, got {point.nocc}")
     g = point_gap(point).gap
-    r = inv.winding_number(tb, tb.operators["chiral"], gap=g, gap_tol=point.gap_tol,
+    r = winding_number(tb, tb.operators["chiral"], gap=g, gap_tol=point.gap_tol,
                            kmesh_n=kmesh, max_kmesh=max_kmesh, phase_tol=phase_tol)
     return {"winding": r.value, "winding_kmesh": r.kmesh, "reason": r.reason}
 
@@ -149,15 +160,15 @@ def winding(point: Point, *, kmesh: int = inv.WINDING_KMESH,
                          "smallest |eigenvalue| of the projected spin P S P on the k-mesh")),
     dims=(2,), driven=False, operators=("spin",),
 )
-def spin_chern(point: Point, *, kmesh: int = inv.CHERN_KMESH,
-               max_kmesh: int = inv.CHERN_MAX_KMESH, flux_tol: float = inv.FLUX_TOL,
+def spin_chern(point: Point, *, kmesh: int = CHERN_KMESH,
+               max_kmesh: int = CHERN_MAX_KMESH, flux_tol: float = FLUX_TOL,
                spin_gap_tol: float = 1e-3) -> dict[str, Any]:
     """Spin Chern number (BHZ: +1 for 0 < M/B < 4, -1 for 4 < M/B < 8) and Z2."""
     tb = point.tb
     if "spin" not in tb.operators:
         raise ValueError("this model has no spin operator")
     g = point_gap(point).gap
-    r = inv.spin_chern_number(tb, point.nocc, tb.operators["spin"], gap=g,
+    r = spin_chern_number(tb, point.nocc, tb.operators["spin"], gap=g,
                               gap_tol=point.gap_tol, spin_gap_tol=spin_gap_tol, kmesh_n=kmesh,
                               max_kmesh=max_kmesh, flux_tol=flux_tol)
     return {"spin_chern": r.spin_chern, "z2": r.z2, "spin_gap": r.spin_gap, "reason": r.reason}

@@ -53,7 +53,7 @@ def bhz(*, M: float, A: float = 1.0, B: float = 1.0, C: float = 0.0, D: float = 
     where ``sin k_1 = sin k_2 = 0`` and ``d3 = 0``, i.e. at Gamma = (0, 0) for ``M = 0``, at
     X = (pi, 0) and Y = (0, pi) for ``M = 4B``, at M = (pi, pi) for ``M = 8B``, with
     ``d3(Gamma) = M``, ``d3(X) = d3(Y) = M - 4B``, ``d3(M) = M - 8B``. The spin-up Chern number is
-    the degree of ``d/|d|`` (lower band, convention of :mod:`sweepcli.physics.invariants`).
+    the degree of ``d/|d|`` (lower band, convention of :mod:`sweepcli.physics.chern`).
     The degree counts the preimages of the north pole with the orientation sign of the map,
     and equally minus those of the south pole; averaging the two, it is a sum over the four
     points ``D`` where ``d1 = d2 = 0`` of ``(1/2) sign(det J_D) sign(d3(D))``, with

@@ -60,7 +60,7 @@ def kitaev(*, mu: float, t: float = 1.0, delta: float = 1.0) -> TightBinding:
     number ``|nu| = 1``, for ``|mu| < 2|t|`` and ``delta != 0``; trivial for ``|mu| > 2|t|``.
     In the eigenbasis ``|+-> = (1, +-1)/sqrt(2)`` of ``tau_x`` the off-diagonal block is
     ``h(k) = <-|H|+> = -2 t cos k - mu - 2 i delta sin k``, so with the convention of
-    :func:`sweepcli.physics.invariants.winding_number` the winding is
+    :func:`sweepcli.physics.chiral_winding.winding_number` the winding is
     ``nu = sign(t delta)`` for ``|mu| < 2|t|`` (``mu = 0``: ``h = -2 t e^{ik}`` for
     ``delta = t``) and 0 for ``|mu| > 2|t|``.
     """

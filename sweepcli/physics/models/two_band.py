@@ -70,7 +70,7 @@ def haldane(*, t2: float, phi: float, M: float, t1: float = 1.0) -> TightBinding
     for ``M = 3 sqrt(3) t2 sin(phi)`` and at K' for ``M = -3 sqrt(3) t2 sin(phi)`` (while
     ``|t2| < |t1|/3``, so that the bands do not overlap). Phase diagram (Haldane 1988): the
     lower band has Chern number +-1 for ``|M| < 3 sqrt(3) |t2 sin(phi)|``, with the sign of
-    ``-sin(phi)`` in the convention of :func:`sweepcli.physics.invariants.fhs_chern`, and 0
+    ``-sin(phi)`` in the convention of :func:`sweepcli.physics.chern.fhs_chern`, and 0
     outside.
     """
     s0, sx, sz = pauli("0"), pauli("x"), pauli("z")

@@ -1,0 +1,108 @@
+"""What the invariant modules share: tolerances and default meshes, the record of an integer
+invariant, the mesh walk of their convergence policy, and a batched determinant.
+
+The invariants themselves are in :mod:`sweepcli.physics.chern` (Fukui-Hatsugai-Suzuki Chern
+numbers), :mod:`sweepcli.physics.chiral_winding` (1D windings of chiral chains) and
+:mod:`sweepcli.physics.spin_chern` (Prodan's projected-spin Chern number). Each driver walks up
+a sequence of meshes (:func:`mesh_sequence`) from a first mesh set by the gap
+(:func:`gap_rule_kmesh`) and accepts an answer when two successive meshes are below the
+tolerance and agree (:func:`walk_meshes`); otherwise the result is missing with
+:attr:`Reason.NOT_CONVERGED`. A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..schema import Reason
+from .lattice import TightBinding
+from .spectrum import band_gap
+
+#: Largest accepted plaquette Berry flux (rad). A flux near pi means the curvature of one
+#: plaquette is not resolved and the plaquette's phase may have wrapped.
+FLUX_TOL = 1.0
+#: Largest accepted phase step of det h(k) between neighbouring k points of a 1D mesh (rad).
+PHASE_TOL = 1.0
+#: Mesh growth factor between the two meshes that must agree (2D).
+GROWTH = 1.5
+#: Default uniform mesh of the gap search that sets the first mesh.
+GAP_KMESH = 64
+#: Default first meshes.
+CHERN_KMESH = 24
+WINDING_KMESH = 64
+#: Default largest meshes.
+CHERN_MAX_KMESH = 256
+WINDING_MAX_KMESH = 8192
+
+
+@dataclass(frozen=True)
+class InvariantResult:
+    """An integer invariant with its evidence.
+
+    Attributes
+    ----------
+    value : the invariant, ``None`` when ill-defined (``reason`` says why).
+    kmesh : points per direction of the finest mesh used (``None`` if none was built).
+    max_step : largest plaquette flux (2D) or phase step (1D) on that mesh, rad (nan if none).
+    reason : :class:`Reason`.
+    """
+
+    value: int | None
+    kmesh: int | None
+    max_step: float
+    reason: Reason
+
+
+def stacked_det(a: np.ndarray) -> np.ndarray:
+    """Determinants of a stack ``(..., m, m)``; closed forms for m <= 2 (much faster on stacks)."""
+    m = a.shape[-1]
+    if m == 1:
+        return a[..., 0, 0]
+    if m == 2:
+        return a[..., 0, 0] * a[..., 1, 1] - a[..., 0, 1] * a[..., 1, 0]
+    return np.linalg.det(a)
+
+
+def gap_rule_kmesh(gap: float) -> int:
+    """Mesh ``ceil(3.2 / sqrt(gap / 2))`` (points per direction) found sufficient here for a gap."""
+    return int(math.ceil(3.2 / math.sqrt(gap / 2.0)))
+
+
+def mesh_sequence(start: int, max_kmesh: int, growth: float) -> Iterator[int]:
+    """``start, ~growth*start, ...`` strictly increasing, ending with ``max_kmesh`` at most."""
+    n = start
+    while n <= max_kmesh:
+        yield n
+        if n == max_kmesh:
+            return
+        n = min(max(int(math.ceil(growth * n)), n + 1), max_kmesh)
+
+
+def occupied_gap(tb: TightBinding, nocc: int, gap: float | None) -> float:
+    """``gap`` if given, else the direct gap above ``nocc`` bands on a :data:`GAP_KMESH` mesh."""
+    if not 0 < nocc < tb.norb:
+        raise ValueError(f"an invariant of {nocc} occupied bands needs 0 < nocc < {tb.norb}")
+    return band_gap(tb, nocc, GAP_KMESH).gap if gap is None else gap
+
+
+def walk_meshes(measure, start: int, max_kmesh: int, growth: float, tol: float):
+    """Walk up the meshes until two successive ones are below ``tol`` and agree.
+
+    ``measure(n) -> (values tuple, max_step)``. Returns ``(values or None, last n or None,
+    last max_step, reason)``.
+    """
+    prev = None
+    last_n, last_step = None, math.nan
+    for n in mesh_sequence(start, max_kmesh, growth):
+        values, step = measure(n)
+        last_n, last_step = n, step
+        ok = step < tol
+        if ok and prev is not None and prev == values:
+            return values, n, step, Reason.OK
+        prev = values if ok else None
+    return None, last_n, last_step, Reason.NOT_CONVERGED
+
