@@ -6,7 +6,7 @@ returns a frozen :class:`Job`; every error names the file, the table and key, wh
 and what was given. Job files are data: expressions are parsed by :mod:`sweepcli.expressions`.
 """
 
-from .parse import build_job, load_job, read_toml
+from .load import build_job, load_job, read_toml
 from .spec import Axis, CustomModel, DriveSpec, Job, Refine
 from .stored import job_from_results
 

@@ -9,7 +9,7 @@ import numpy as np
 
 from .. import __version__
 from ..errors import JobError, ResultsError
-from .parse import build_job
+from .load import build_job
 from .spec import Job
 
 

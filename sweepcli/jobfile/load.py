@@ -1,0 +1,191 @@
+"""Reading a job file and assembling the :class:`~sweepcli.jobfile.spec.Job`: one pass over
+every table, each bad value a :class:`~sweepcli.errors.JobError` naming the file, the table and
+key. The small tables ``[job]``, ``[predict]`` and ``[output]`` are read here; the others in
+:mod:`.model_table`, :mod:`.sweep_tables`, :mod:`.drive_table` and :mod:`.measure_table`."""
+
+from __future__ import annotations
+
+import itertools
+import math
+import re
+import tomllib
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import tomli_w
+
+from ..errors import JobError, suggest
+from ..physics.measurements import quantities_of
+from .checker import Checker
+from .checks import check_values
+from .drive_table import read_drive
+from .measure_table import read_measure
+from .model_table import normalised_model, read_model
+from .spec import Job
+from .sweep_tables import finer_axis, order_expressions, read_parameters, read_refine
+
+TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "predict", "output")
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
+
+
+def read_toml(path: str | Path) -> tuple[str, dict]:
+    """Read and parse a TOML file; syntax errors become ``FILE:LINE:COL: message``."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise JobError(f"{path}: no such job file.") from None
+    except OSError as exc:
+        raise JobError(f"{path}: cannot read the job file ({exc}).") from None
+    if raw.startswith(HDF5_SIGNATURE):
+        raise JobError(f"{path}: is an HDF5 file (a results file?), not a TOML job file; "
+                       f"`sweepcli show {path}` describes a results file.")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise JobError(f"{path}: cannot read the job file ({exc}).") from None
+    try:
+        return text, tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
+        if m:
+            msg = msg[: m.start()].strip()
+            raise JobError(f"{path}:{m.group(1)}:{m.group(2)}: invalid TOML: {msg}.") from None
+        raise JobError(f"{path}: invalid TOML: {msg}.") from None
+
+
+def load_job(path: str | Path) -> Job:
+    """Parse and validate the job file at ``path``.
+
+    Raises
+    ------
+    JobError
+        One message naming the file, the key, what was expected and what was given.
+    """
+    text, doc = read_toml(path)
+    return build_job(doc, text=text, path=str(path))
+
+
+def build_job(doc: dict, *, text: str, path: str) -> Job:
+    """Validate a parsed job file: each table in turn, then values at sample grid points."""
+    ck = Checker(path)
+    for key in doc:
+        if key not in TABLES:
+            raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
+                           f"{suggest(key, TABLES)}")
+    name, title, description = _job_table(ck, doc)
+    model_t = ck.table(doc, "model")
+    model, custom, model_params, declared, dim, norb = read_model(ck, model_t)
+    params_t, sweep_t = ck.table(doc, "params"), ck.table(doc, "sweep")
+    axes, fixed, exprs, missing = read_parameters(ck, params_t, sweep_t, declared)
+    known = set(fixed) | set(exprs) | {a.name for a in axes}
+    derived = order_expressions(ck, exprs, known)
+    drive = read_drive(ck, doc, known, declared, missing, model)
+    used = set(declared).union(*(e.names for e in exprs.values())).union(drive.names)
+    for key in list(params_t) + list(sweep_t):
+        if key not in used:
+            table = "params" if key in params_t else "sweep"
+            raise ck.unknown(table, key, sorted(declared), what="parameter")
+    driven = drive.kind != "static"
+    measurements, filling, gap_tol = read_measure(ck, doc, dim, norb, custom, model, driven)
+    refine = read_refine(ck, ck.table(doc, "refine"), measurements, dim, axes, driven)
+    predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
+    if refine is not None:
+        axes = tuple(finer_axis(a, refine.depth) for a in axes)
+
+    output_t = ck.table(doc, "output")
+    ck.only("output", output_t, ["path", "main"])
+    output = output_t.get("path", f"results/{name}.h5")
+    if not isinstance(output, str) or not output:
+        raise ck.fail("output", "path", "a file path", output)
+    main = output_t.get("main")
+
+    clash = {a.name for a in axes} & {q.name for m, _ in measurements
+                                      for q in quantities_of(m, dim, driven)}
+    if clash:
+        raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
+                       "measured quantity; rename it.")
+
+    normalised = {
+        "job": {"name": name, "title": title, "description": description},
+        "model": normalised_model(model, model_t),
+        "params": {k: (v if not isinstance(v, complex) else str(v))
+                   for k, v in sorted(fixed.items()) if v is not None}
+                  | {k: e.text for k, e in sorted(exprs.items())},
+        # Labels (doc, units) describe an axis and are no part of the job's identity.
+        "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
+                      if isinstance(v, dict) else v) for k, v in sweep_t.items()},
+        "drive": drive.normalised(),
+        **({"predict": {"momenta": [list(k) for k in predict]}} if predict is not None else {}),
+        **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
+            | ({"gap_below": refine.gap_below} if refine.gap_below is not None else {})}
+           if refine is not None else {}),
+        "measure": {"filling": filling if filling is not None else norb // 2, "gap_tol": gap_tol}
+                   | {m: {k: _plain(v) for k, v in opts if v is not None}
+                      for m, opts in measurements},
+    }
+    job = Job(path=path, text=text, name=name, title=title, model=model, custom=custom,
+              model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
+              axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
+              gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
+              dim=dim, norb=norb, refine=refine, predict=predict, main=main)
+    if main is not None:
+        stored = [q.name for _, qs in job.quantities() for q in qs] + [
+            r.quantity.name for r in job.consistency_rules()]
+        if main not in stored:
+            raise ck.fail("output", "main", "one of the quantities the job measures ("
+                          + ", ".join(stored) + ")", main,
+                          suggest(main, stored) if isinstance(main, str) else "")
+    check_values(ck, job, declared, exprs)
+    return job
+
+
+def _job_table(ck: Checker, doc: dict) -> tuple[str, str, str]:
+    """``[job]``: name (default the file's stem), title and description."""
+    job_t = ck.table(doc, "job")
+    ck.only("job", job_t, ["name", "title", "description"])
+    name = job_t.get("name", Path(ck.path).stem)
+    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+        raise ck.fail("job", "name", "a name of letters, digits, '_', '.' or '-'", name)
+    title = job_t.get("title", name)
+    if not isinstance(title, str):
+        raise ck.fail("job", "title", "a string", title)
+    description = job_t.get("description", "")
+    if not isinstance(description, str):
+        raise ck.fail("job", "description", "a string", description)
+    return name, title, description
+
+
+def _predict(ck: Checker, t: dict, dim: int, given: bool) -> tuple | None:
+    """Momenta (reduced, rad) at which transitions are predicted; default all of {0, pi}^dim."""
+    if not given:
+        return None
+    ck.only("predict", t, ["momenta"])
+    if "momenta" not in t:
+        return tuple(tuple(float(x) for x in k)
+                     for k in itertools.product((0.0, math.pi), repeat=dim))
+    value = t["momenta"]
+    expected = f"a list of momenta, each {dim} reduced coordinates in rad (e.g. \"pi\")"
+    if not isinstance(value, list) or not value or not all(
+            isinstance(k, list) and len(k) == dim for k in value):
+        raise ck.fail("predict", "momenta", expected, value)
+    out = []
+    for k in value:
+        coords = []
+        for x in k:
+            c = ck.constant("predict", "momenta", x)
+            if isinstance(c, bool) or not isinstance(c, (int, float)):
+                raise ck.fail("predict", "momenta", expected, value)
+            coords.append(float(c))
+        out.append(tuple(coords))
+    return tuple(out)
+
+
+def _plain(value: Any) -> Any:
+    """A TOML-writable form: complex matrices become nested lists of numbers or "a+bj" strings."""
+    if isinstance(value, np.ndarray):
+        return [[(float(x.real) if x.imag == 0 else repr(complex(x))) for x in row]
+                for row in value]
+    return value

@@ -1,0 +1,157 @@
+"""The ``[model]`` table: a built-in model by name, or a custom tight-binding model given by
+its lattice, orbitals and onsite and hopping terms."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..errors import sentence, suggest
+from ..expressions import Expression, ExpressionError, parse
+from ..physics.models import MODELS
+from ..physics.registry import Param
+from .checker import Checker
+from .spec import CustomModel
+
+LATTICES = {
+    "chain": np.array([[1.0]]),
+    "square": np.eye(2),
+    "honeycomb": np.array([[1.5, math.sqrt(3) / 2], [1.5, -math.sqrt(3) / 2]]),
+}
+
+
+def read_model(ck: Checker, model_t: dict) -> tuple:
+    """``[model]``: a built-in model or a custom one; returns ``(name, custom model or None,
+    the built-in factory's parameter names, declared parameters, dim, norb)``."""
+    if "name" not in model_t:
+        raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", None)
+    model = model_t["name"]
+    if model != "custom" and model not in MODELS:
+        raise ck.fail("model", "name", f"a built-in model or \"custom\" "
+                      f"(built-in: {', '.join(MODELS.names())})", model,
+                      suggest(str(model), MODELS.names() + ["custom"]))
+    if model == "custom":
+        custom = _custom_model(ck, model_t)
+        declared = {n: Param(n) for n in sorted(custom.names)}
+        return model, custom, (), declared, len(custom.lattice), len(custom.positions)
+    for key in model_t:
+        if key != "name":
+            raise ck.unknown("model", key, ["name"],
+                             what="key (model parameters go in [params] or [sweep])")
+    entry = MODELS[model]
+    return (model, None, tuple(p.name for p in entry.params), {p.name: p for p in entry.params},
+            entry.extra["dim"], entry.extra["norb"])
+
+
+def _custom_model(ck: Checker, t: dict) -> CustomModel:
+    allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators"]
+    ck.only("model", t, allowed)
+    lat = t.get("lattice")
+    if isinstance(lat, str):
+        if lat not in LATTICES:
+            raise ck.fail("model", "lattice", "one of " + ", ".join(map(repr, LATTICES)) +
+                          " or a list of lattice vectors", lat, suggest(lat, LATTICES))
+        vectors = LATTICES[lat]
+    elif isinstance(lat, list) and lat and all(isinstance(r, list) for r in lat):
+        try:
+            vectors = np.array(lat, dtype=float)
+        except (TypeError, ValueError):
+            raise ck.fail("model", "lattice", "a list of d lattice vectors of length d",
+                          lat) from None
+        if vectors.ndim != 2 or vectors.shape[0] != vectors.shape[1] \
+                or vectors.shape[0] not in (1, 2) \
+                or abs(np.linalg.det(vectors)) < 1e-12:
+            raise ck.fail("model", "lattice", "1 or 2 linearly independent vectors of matching "
+                          "length", lat)
+    else:
+        raise ck.fail("model", "lattice", "\"chain\", \"square\", \"honeycomb\" or a list of "
+                      "lattice vectors", lat)
+    dim = vectors.shape[0]
+    if "positions" in t:
+        pos = t["positions"]
+        try:
+            positions = np.array(pos, dtype=float)
+        except (TypeError, ValueError):
+            positions = np.zeros((0,))
+        if positions.ndim != 2 or positions.shape[1] != dim or len(positions) == 0:
+            raise ck.fail("model", "positions", f"a list of orbital positions, each with {dim} "
+                          "reduced coordinates", pos)
+    elif "orbitals" in t:
+        n = ck.number("model", "orbitals", t["orbitals"], Param("orbitals", kind="int", low=1))
+        positions = np.zeros((n, dim))
+    else:
+        raise ck.fail("model", "orbitals", "the number of orbitals per cell (or give positions)",
+                      None)
+    n = len(positions)
+
+    def terms(key: str) -> list[dict]:
+        value = t.get(key, [])
+        if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+            raise ck.fail("model", key, f"an array of tables [[model.{key}]]", value)
+        return value
+
+    onsite = []
+    for i, term in enumerate(terms("onsite")):
+        where = f"model.onsite.{i}"
+        ck.only(where, term, ["matrix", "coeff"])
+        onsite.append((ck.matrix(where, "matrix", term.get("matrix"), n),
+                       _coeff(ck, where, term.get("coeff", 1))))
+    hoppings = []
+    for i, term in enumerate(terms("hopping")):
+        where = f"model.hopping.{i}"
+        ck.only(where, term, ["d", "matrix", "coeff"])
+        d = term.get("d")
+        if not (isinstance(d, list) and len(d) == dim and all(
+                isinstance(x, int) and not isinstance(x, bool) for x in d)) or not any(d):
+            raise ck.fail(where, "d", f"a nonzero integer displacement of length {dim}", d)
+        hoppings.append((tuple(d), ck.matrix(where, "matrix", term.get("matrix"), n),
+                         _coeff(ck, where, term.get("coeff", 1))))
+    if not onsite and not hoppings:
+        raise ck.fail("model", "hopping", "at least one [[model.onsite]] or [[model.hopping]] term",
+                      None)
+    ops_t = t.get("operators", {})
+    if not isinstance(ops_t, dict):
+        raise ck.fail("model", "operators", "a table of named matrices", ops_t)
+    operators = tuple((k, ck.matrix("model.operators", k, v, n)) for k, v in ops_t.items())
+    return CustomModel(tuple(map(tuple, vectors)), tuple(map(tuple, positions)), tuple(onsite),
+                       tuple(hoppings), operators)
+
+
+def _coeff(ck: Checker, where: str, value: object) -> Expression:
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise ck.fail(where, "coeff", "a number or an arithmetic expression", value)
+    try:
+        return parse(str(value), where, "coeff")
+    except ExpressionError as exc:
+        raise ck.fail(where, "coeff", "a number or an arithmetic expression", value,
+                      " " + sentence(exc)) from None
+
+
+def normalised_model(model: str, model_t: dict) -> dict:
+    """The ``[model]`` table as it enters the normalised job (its identity)."""
+    if model != "custom":
+        return {"name": model}
+    return {k: v for k, v in model_t.items()}
+
+
+def model_operators(model: str) -> tuple[str, ...]:
+    """Names of the cell operators of a built-in model (declared, else from a sample instance)."""
+    entry = MODELS[model]
+    if "operators" in entry.extra:
+        return tuple(entry.extra["operators"])
+    sample = {p.name: (p.default if not p.required else _sample_value(p)) for p in entry.params}
+    return tuple(entry.func(**sample).operators)
+
+
+def _sample_value(p: Param) -> float:
+    lo = p.low if p.low is not None else None
+    hi = p.high if p.high is not None else None
+    if lo is not None and hi is not None:
+        return (lo + hi) / 2
+    if lo is not None:
+        return lo + 1
+    if hi is not None:
+        return hi - 1
+    return 0.5
