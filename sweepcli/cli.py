@@ -436,7 +436,8 @@ def diff_(ctx: typer.Context,
     """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
 
-    from .report.diff import diff_as_dict, diff_results, format_diff
+    from .report.diff import diff_results
+    from .report.diff_report import diff_as_dict, format_diff
     from .report.terminal import terminal_width, want_colour
     from .store import Results
 
