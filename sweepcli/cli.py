@@ -280,7 +280,8 @@ def map_(ctx: typer.Context,
              help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
-    from .report.maps import at_notes, draw_map
+    from .report.map_data import at_notes
+    from .report.maps import draw_map
     from .report.terminal import terminal_map, want_colour
     from .store import Results
 

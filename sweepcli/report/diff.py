@@ -190,7 +190,8 @@ def diff_results(a: Results, b: Results, *, labels: tuple[str, str] = ("A", "B")
     ----------
     a, b : the results; ``labels`` name them in messages (the CLI passes the paths).
     rtol, atol : float tolerance, ``|a - b| <= atol + rtol * max(|a|, |b|)``.
-    coord_tol : relative tolerance for matching coordinate values (see :func:`.diff_match.match_axis`).
+    coord_tol : relative tolerance for matching coordinate values
+        (see :func:`.diff_match.match_axis`).
     provenance : also count job, version and provenance differences.
     common_only : judge only the common points; a subset or refinement is then no difference.
     top : deviations listed per variable.
