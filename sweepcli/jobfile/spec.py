@@ -17,7 +17,7 @@ from ..physics.measurements import quantities_of
 from ..physics.measurements.consistency import Rule, rules_for
 from ..physics.models import MODELS
 from ..physics.point import Point
-from ..schema import Quantity
+from ..schema import Quantity, grid_shape, grid_size
 
 
 @dataclass(frozen=True)
@@ -156,11 +156,11 @@ class Job:
 
     @property
     def shape(self) -> tuple[int, ...]:
-        return tuple(len(a.values) for a in self.axes)
+        return grid_shape(self.axes)
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.shape, dtype=np.int64))
+        return grid_size(self.axes)
 
     @property
     def sha256(self) -> str:

@@ -17,7 +17,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultsError
-from ..schema import Reason
+from ..schema import Reason, grid_shape, grid_size
 
 SCHEMA_VERSION = "1"
 MARKER = "sweepcli_schema"
@@ -74,11 +74,11 @@ class Results:
 
     @property
     def shape(self) -> tuple[int, ...]:
-        return tuple(len(a.values) for a in self.axes)
+        return grid_shape(self.axes)
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.shape, dtype=np.int64))
+        return grid_size(self.axes)
 
     @property
     def n_done(self) -> int:
