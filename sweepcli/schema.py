@@ -4,17 +4,15 @@ Measurements (physics) return a :class:`Reason` beside their values and declare 
 as :class:`Quantity`; the job file and the runner pass them on; the store writes them (the
 reason codes become the ``flag_values`` of each ``<measurement>_reason`` variable, see
 results-schema.md); reports read them back. The job and the stored results both span a grid
-from their axes, whose shape and size :func:`grid_shape` and :func:`grid_size` compute. Standard
-library only, so that any layer may import it without pulling in another.
+from their axes, whose shape and size :class:`Grid` computes for both. Standard library only,
+so that any layer may import it without pulling in another.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
 from dataclasses import dataclass
 from enum import IntEnum
-from typing import Any
 
 
 class Reason(IntEnum):
@@ -40,13 +38,18 @@ class Quantity:
     long_name: str
 
 
-def grid_shape(axes: Iterable[Any]) -> tuple[int, ...]:
-    """Shape of the grid spanned by ``axes``, in axis order: the number of ``values`` of each
-    (objects with a ``values`` sequence, such as the job's and the store's axes)."""
-    return tuple(len(a.values) for a in axes)
+class Grid:
+    """The grid spanned by ``self.axes`` (objects with a ``values`` sequence): a base of the job
+    and of the stored results, so that both count their points one way."""
 
+    axes: tuple | list
 
-def grid_size(axes: Iterable[Any]) -> int:
-    """Number of points of the grid spanned by ``axes``: the product of :func:`grid_shape`
-    (1 for no axes)."""
-    return math.prod(grid_shape(axes))
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """The number of ``values`` of each axis, in axis order."""
+        return tuple(len(a.values) for a in self.axes)
+
+    @property
+    def size(self) -> int:
+        """Number of grid points: the product of :attr:`shape` (1 for no axes)."""
+        return math.prod(self.shape)
