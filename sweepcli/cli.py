@@ -280,7 +280,8 @@ def map_(ctx: typer.Context,
              help="Circle the points where bulk invariant and boundary modes disagree.")] = False,
          ) -> None:
     """Draw a phase map (2D) or a line plot (1D) of one variable of RESULTS."""
-    from .report.maps import at_notes, draw_map
+    from .report.map_data import at_notes
+    from .report.maps import draw_map
     from .report.terminal import terminal_map, want_colour
     from .store import Results
 
@@ -436,7 +437,8 @@ def diff_(ctx: typer.Context,
     """Compare two results files (job, grids, values); exit 0 if they agree, 1 if they differ."""
     import json
 
-    from .report.diff import diff_as_dict, diff_results, format_diff
+    from .report.diff import diff_results
+    from .report.diff_report import diff_as_dict, format_diff
     from .report.terminal import terminal_width, want_colour
     from .store import Results
 

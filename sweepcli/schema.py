@@ -3,12 +3,14 @@
 Measurements (physics) return a :class:`Reason` beside their values and declare their outputs
 as :class:`Quantity`; the job file and the runner pass them on; the store writes them (the
 reason codes become the ``flag_values`` of each ``<measurement>_reason`` variable, see
-results-schema.md); reports read them back. Standard library only, so that any layer may
-import it without pulling in another.
+results-schema.md); reports read them back. The job and the stored results both span a grid
+from their axes, whose shape and size :class:`Grid` computes for both. Standard library only,
+so that any layer may import it without pulling in another.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from enum import IntEnum
 
@@ -34,3 +36,20 @@ class Quantity:
     dtype: str  # "float64" or "int32"
     units: str
     long_name: str
+
+
+class Grid:
+    """The grid spanned by ``self.axes`` (objects with a ``values`` sequence): a base of the job
+    and of the stored results, so that both count their points one way."""
+
+    axes: tuple | list
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """The number of ``values`` of each axis, in axis order."""
+        return tuple(len(a.values) for a in self.axes)
+
+    @property
+    def size(self) -> int:
+        """Number of grid points: the product of :attr:`shape` (1 for no axes)."""
+        return math.prod(self.shape)

@@ -17,7 +17,7 @@ from ..physics.measurements import quantities_of
 from ..physics.measurements.consistency import Rule, rules_for
 from ..physics.models import MODELS
 from ..physics.point import Point
-from ..schema import Quantity
+from ..schema import Grid, Quantity
 
 
 @dataclass(frozen=True)
@@ -129,7 +129,7 @@ class DriveSpec:
 
 
 @dataclass(frozen=True, eq=False)
-class Job:
+class Job(Grid):
     """A validated, normalised job. Derived things (grids, k-meshes) are computed, never stored."""
 
     path: str
@@ -153,14 +153,6 @@ class Job:
     refine: Refine | None = None
     predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
     main: str | None = None  # [output] main: the quantity `sweepcli map` draws by default
-
-    @property
-    def shape(self) -> tuple[int, ...]:
-        return tuple(len(a.values) for a in self.axes)
-
-    @property
-    def size(self) -> int:
-        return int(np.prod(self.shape, dtype=np.int64))
 
     @property
     def sha256(self) -> str:

@@ -11,7 +11,7 @@ import numpy as np
 from ..errors import ResultsError
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
-from .maps import check_variable, select
+from .map_data import check_variable, select
 
 
 @dataclass

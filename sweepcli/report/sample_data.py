@@ -32,7 +32,7 @@ import numpy as np
 from ..errors import ResultsError, SweepError, suggest
 from ..jobfile import job_from_results
 from ..store import FILL_INT, Results
-from .maps import axis_index
+from .map_data import axis_index
 
 #: Sample kind -> (boundary measurement whose options it takes, option holding its size).
 KINDS = {"flake": ("corner_modes", "size"), "chain": ("end_modes", "cells"),
@@ -108,7 +108,7 @@ class SampleDrawing:
 
 def nearest_index(results: Results, at: dict[str, float]) -> tuple[int, ...]:
     """Grid index nearest to ``at`` on every axis (a value off an axis is refused, see
-    :func:`~sweepcli.report.maps.axis_index`); axes not named take their first value."""
+    :func:`~sweepcli.report.map_data.axis_index`); axes not named take their first value."""
     names = [a.name for a in results.axes]
     for name in at:
         if name not in names:

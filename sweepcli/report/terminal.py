@@ -21,7 +21,8 @@ import numpy as np
 from ..schema import Reason
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
-from .maps import check_variable, discrete_levels, level_text, missing_reasons, select
+from .map_data import check_variable, discrete_levels, missing_reasons, select
+from .map_style import level_text
 
 MISSING_GLYPH = "·"
 NOT_COMPUTED_GLYPH = "?"

@@ -17,7 +17,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultsError
-from ..schema import Reason
+from ..schema import Grid, Reason
 
 SCHEMA_VERSION = "1"
 MARKER = "sweepcli_schema"
@@ -53,7 +53,7 @@ class AxisData:
     spacing: str
 
 
-class Results:
+class Results(Grid):
     """Grid-shaped results of one sweep plus the provenance attributes.
 
     ``data[name]`` has the grid shape; ``done`` (uint8) is 1 where a point was evaluated;
@@ -71,14 +71,6 @@ class Results:
         self.failure = np.full(shape, "", dtype=object)
         # Tables beside the grid (e.g. predicted transitions): name -> column -> 1-D array.
         self.tables: dict[str, dict[str, np.ndarray]] = {}
-
-    @property
-    def shape(self) -> tuple[int, ...]:
-        return tuple(len(a.values) for a in self.axes)
-
-    @property
-    def size(self) -> int:
-        return int(np.prod(self.shape, dtype=np.int64))
 
     @property
     def n_done(self) -> int:

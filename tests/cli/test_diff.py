@@ -15,7 +15,8 @@ import tomli_w
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
-from sweepcli.report.diff import diff_results, difference_picture, format_diff
+from sweepcli.report.diff import diff_results
+from sweepcli.report.diff_report import difference_picture, format_diff
 from sweepcli.store import FILL_INT, Results
 from sweepcli.store.results import AxisData, Variable
 

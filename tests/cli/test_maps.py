@@ -12,7 +12,8 @@ import tomli_w
 
 from sweepcli.errors import ResultsError
 from sweepcli.jobfile import build_job, load_job
-from sweepcli.report.maps import at_notes, default_variable, map_figure
+from sweepcli.report.map_data import at_notes, default_variable
+from sweepcli.report.maps import map_figure
 from sweepcli.report.terminal import terminal_map
 from sweepcli.run.layout import results_for_job
 from sweepcli.schema import Reason

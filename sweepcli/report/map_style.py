@@ -1,0 +1,92 @@
+"""How a map looks: the colour of every integer and half-integer value (the same in every map
+of every file), the marks of missing and not-computed points with their legend entries, and the
+axis labels. matplotlib is imported inside functions only.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+
+import numpy as np
+
+from ..store import Results
+from .map_data import Slice, missing_reasons
+
+MISSING_COLOUR = "#9a9a9a"  # ill-defined: gap closed, not converged, failed
+NOT_COMPUTED_FACE = "#ffffff"  # not evaluated (yet): white, hatched
+NOT_COMPUTED_HATCH = "////"
+HATCH_COLOUR = "#8c8c8c"
+ZERO_COLOUR = "#e9e4d4"  # the trivial phase: a neutral that is neither grey nor white
+#: |value| -> distance from the centre of the diverging red-blue scale (0.5 = its darkest end).
+#: Fixed, so that a value has one colour in every map; |value| >= 4 share the darkest shade.
+_STRENGTH = ((0.5, 1.0, 2.0, 3.0, 4.0), (0.17, 0.25, 0.36, 0.44, 0.5))
+
+
+def value_colour(value: float) -> tuple[float, float, float, float]:
+    """The RGBA colour of an integer or half-integer ``value`` in every map.
+
+    0 is :data:`ZERO_COLOUR`; positive values take reds and negative values blues of the
+    ColorBrewer red-blue scale (matplotlib's ``RdBu_r``), deeper with ``|value|``.
+    """
+    import matplotlib
+    from matplotlib.colors import to_rgba
+
+    if value == 0:
+        return to_rgba(ZERO_COLOUR)
+    offset = float(np.interp(abs(value), *_STRENGTH))
+    return tuple(float(c) for c in matplotlib.colormaps["RdBu_r"](0.5 + np.copysign(offset, value)))
+
+
+def level_text(value: float) -> str:
+    """A level as printed on ticks and legends: ``1``, ``-1/2``, ``3/2``."""
+    if value == int(value):
+        return str(int(value))
+    return f"{int(round(2 * value))}/2"
+
+
+def missing_text(counts: Counter) -> str:
+    """``missing: gap closed (12)`` or ``missing: gap closed 10, not converged 2``."""
+    words = {k.replace("_", " "): v for k, v in sorted(counts.items())}
+    if len(words) == 1:
+        (name, n), = words.items()
+        return f"missing: {name} ({n})" if name != "missing" else f"missing ({n})"
+    return "missing: " + ", ".join(f"{k} {v}" for k, v in words.items())
+
+
+def axis_label(axis) -> str:
+    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
+    name = axis.name if axis.long_name in ("", axis.name) else f"{axis.name} ({axis.long_name})"
+    return name + unit
+
+
+def value_label(var: str, meta) -> str:
+    return var + (f" [{meta.units}]" if meta.units not in ("", "1") else "")
+
+
+def hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray) -> None:
+    """White hatched rectangles over the cells of ``mask`` (shape (nx, ny)): not computed."""
+    from matplotlib.collections import PatchCollection
+    from matplotlib.patches import Rectangle
+
+    rects = [Rectangle((xe[i], ye[j]), xe[i + 1] - xe[i], ye[j + 1] - ye[j])
+             for i, j in np.argwhere(mask)]
+    ax.add_collection(PatchCollection(rects, facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
+                                      linewidth=0, hatch=NOT_COMPUTED_HATCH, zorder=1.5))
+
+
+def missing_handles(results: Results, s: Slice, index: tuple, one_d: bool) -> list:
+    """Legend entries of the missing and not-computed points of the slice."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    out = []
+    if s.ill.any():
+        text = missing_text(missing_reasons(results, s.var, index, s.ill))
+        out.append(Line2D([], [], ls="", marker="x", color="crimson", label=text) if one_d
+                   else Patch(facecolor=MISSING_COLOUR, label=text))
+    if s.not_computed.any():
+        text = f"not computed yet ({int(s.not_computed.sum())})"
+        out.append(Line2D([], [], ls="", marker="s", mfc="none", mec=HATCH_COLOUR, label=text)
+                   if one_d else Patch(facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
+                                       hatch=NOT_COMPUTED_HATCH, label=text))
+    return out
