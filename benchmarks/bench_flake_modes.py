@@ -1,6 +1,6 @@
 """Corner-mode counting on L x L four-band flakes: dense diagonalisation against Lanczos.
 
-Run by hand (not a test): ``/work/venv/bin/python benchmarks/bench_flake_modes.py``.
+Run by hand (not a test): ``python3 benchmarks/bench_flake_modes.py``.
 
 Two cases, both one point of a sweep (window from the bulk, then the in-window levels of the
 flake and their classification):
@@ -8,7 +8,7 @@ flake and their classification):
 * driven: the two-step Benalcazar-Bernevig-Hughes drive (intra-cell bonds gamma = 0.5 for T/2,
   then inter-cell bonds lambda = 1.2 for T/2, T = 2), corner modes at quasienergy 0 and pi/T;
   dense forms U (N x N) and diagonalises (U + U^dagger)/2, Lanczos applies U and U^dagger to
-  vectors (Krylov exponential action) and never forms U;
+  vectors (Chebyshev expansion of each step's exponential) and never forms U;
 * static: bhz_corner (m = 1, delta2 = 0.5) at energy 0; dense eigh (eigenvectors of the window
   only) against shift-invert Lanczos.
 
