@@ -45,6 +45,7 @@ MATRIX: dict[str, tuple[set[str], set[str], set[str]]] = {
     "sweepcli.report.sample_plot": ({"sweepcli.report", "sweepcli.report.sample_data",
                                      "sweepcli.store", "sweepcli.schema", "sweepcli.errors"},
                                     {"numpy"}, {"matplotlib"}),
+    # The cli package: its root app and the command groups registering on it.
     "sweepcli.cli": ({"sweepcli", "sweepcli.schema", "sweepcli.errors", "sweepcli.expressions",
                       "sweepcli.physics", "sweepcli.jobfile", "sweepcli.store", "sweepcli.run",
                       "sweepcli.report", "sweepcli.report.sample_data",

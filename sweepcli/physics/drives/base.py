@@ -11,8 +11,9 @@ Conventions
   drive, for batched Bloch matrices ``(..., n, n)`` or for the sparse matrix of an open sample.
 * A drive is *exact* when its factors are exact for any window (steps, kicks), or *sliced* when
   they approximate a smooth ``H(t)`` with ``slices`` time slices (harmonic, ramped steps); a
-  sliced drive carries ``tol``, ``min_slices`` and ``max_slices``, and the slices are doubled
-  until ``U`` stops changing (:func:`~sweepcli.physics.drives.evolution.decide_slicing`).
+  sliced drive (:class:`SlicedDrive`) carries ``tol``, ``min_slices`` and ``max_slices``, and the
+  slices are doubled until ``U`` stops changing
+  (:func:`~sweepcli.physics.drives.evolution.decide_slicing`).
 * A *frame* is the choice of the starting time ``t0``: ``U(t0) = U(t0 + T, t0)``. Frames are
   unitarily equivalent but the chiral invariants of 1D drives need the two
   time-reversal-symmetric ones (Asboth and Obuse, PRB 88, 121406 (2013)), which
@@ -45,6 +46,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
 from typing import ClassVar
 
 import numpy as np
@@ -177,14 +179,62 @@ def smooth_factors(hamiltonian_at: Callable[[float], TightBinding], start: float
     return out
 
 
-def check_slicing(tol: float, scheme: str, min_slices: int, max_slices: int) -> None:
-    """The settings of a sliced drive."""
-    if not tol > 0:
-        raise ValueError(f"the time-slicing tolerance must be > 0; got {tol}")
-    if scheme not in SCHEMES:
-        raise ValueError(f"scheme must be 'magnus4' or 'midpoint'; got {scheme!r}")
-    if not 1 <= min_slices <= max_slices:
-        raise ValueError("need 1 <= min_slices <= max_slices")
+@dataclass(frozen=True, eq=False, kw_only=True)
+class Slicing:
+    """The time-slicing settings a sliced drive's ``[drive]`` table gives (:func:`read_slicing`),
+    shared by its job-file spec and its :class:`SlicedDrive`. Keyword-only, so that they follow
+    the fields of a subclass; ``eq=False`` leaves equality to the subclass.
+
+    Parameters
+    ----------
+    tol : float
+        Accept ``U`` when doubling the number of slices changes it by less than ``tol``
+        (largest absolute entry difference over the whole k batch).
+    max_slices : int
+        Largest number of slices per period; beyond it the evolution is reported unconverged.
+    scheme : ``"magnus4"`` or ``"midpoint"``
+        See :func:`smooth_factors`.
+    """
+
+    tol: float = 1e-8
+    max_slices: int = 4096
+    scheme: str = "magnus4"
+
+    def slicing(self) -> dict:
+        """The settings as keywords of a :class:`SlicedDrive`."""
+        return {"tol": self.tol, "max_slices": self.max_slices, "scheme": self.scheme}
+
+
+@dataclass(frozen=True, eq=False, kw_only=True)
+class SlicedDrive(Slicing, Drive):
+    """A drive whose factors slice a smooth ``H(t)``: the :class:`Slicing` settings and
+    ``min_slices`` (int, the first number of slices), checked after the subclass's own checks
+    (``super().__post_init__()``)."""
+
+    min_slices: int = 8
+
+    exact = False
+
+    def __post_init__(self) -> None:
+        if not self.tol > 0:
+            raise ValueError(f"the time-slicing tolerance must be > 0; got {self.tol}")
+        if self.scheme not in SCHEMES:
+            raise ValueError(f"scheme must be 'magnus4' or 'midpoint'; got {self.scheme!r}")
+        if not 1 <= self.min_slices <= self.max_slices:
+            raise ValueError("need 1 <= min_slices <= max_slices")
+
+
+class SegmentDrive(Drive):
+    """A drive built on time-ordered ``segments`` (a field of the subclass: a tuple of
+    ``(duration, TightBinding)`` on one lattice), whose lattice is that of the first segment."""
+
+    @property
+    def norb(self) -> int:
+        return self.segments[0][1].norb
+
+    @property
+    def dim(self) -> int:
+        return self.segments[0][1].dim
 
 
 def read_slicing(t: Mapping, r) -> dict:

@@ -11,10 +11,10 @@ from ..registry import Param
 from . import DRIVES
 from .base import (
     SLICING_KEYS,
-    Drive,
     Factor,
+    SlicedDrive,
+    Slicing,
     check_period,
-    check_slicing,
     read_slicing,
     real,
     smooth_factors,
@@ -22,15 +22,12 @@ from .base import (
 
 
 @dataclass(frozen=True)
-class HarmonicSpec:
+class HarmonicSpec(Slicing):
     """The ``[[drive.term]]`` tables: ``(parameter, amplitude, harmonic n, phase)`` adding
     ``amplitude * cos(n omega t + phase)`` to the parameter, and the slicing settings (see
     :mod:`sweepcli.physics.drives.base` for the hook contract)."""
 
     terms: tuple
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
 
     covers_period = False
 
@@ -58,8 +55,7 @@ class HarmonicSpec:
                 shifted[p] = real(shifted[p]) + amp * math.cos(n * omega * t + phase)
             return build(shifted)
 
-        return HarmonicDrive(period, hamiltonian_at, tol=self.tol, max_slices=self.max_slices,
-                             scheme=self.scheme)
+        return HarmonicDrive(period, hamiltonian_at, **self.slicing())
 
 
 def parse_harmonic(t: Mapping, r) -> HarmonicSpec:
@@ -85,7 +81,7 @@ def parse_harmonic(t: Mapping, r) -> HarmonicSpec:
                  source="Blanes and Moan, J. Comput. Phys. 227, 4566 (2008) (integrator)",
                  keys=("term", *SLICING_KEYS), parse=parse_harmonic)
 @dataclass(frozen=True, eq=False)
-class HarmonicDrive(Drive):
+class HarmonicDrive(SlicedDrive):
     """Smooth drive ``H(t)``, evaluated on demand and integrated time-ordered (sliced).
 
     Parameters
@@ -94,29 +90,16 @@ class HarmonicDrive(Drive):
         ``T > 0``.
     hamiltonian_at : callable ``t -> TightBinding``
         The Hamiltonian at time ``t`` (e.g. a model factory with ``cos(omega t)`` terms).
-    tol : float
-        Accept ``U`` when doubling the number of slices changes it by less than ``tol``
-        (largest absolute entry difference over the whole k batch).
-    max_slices : int
-        Largest number of slices per period; beyond it the evolution is reported unconverged.
-    scheme : ``"magnus4"`` or ``"midpoint"``
-        See :func:`~sweepcli.physics.drives.base.smooth_factors`.
-    min_slices : int
-        First number of slices.
+    tol, max_slices, scheme, min_slices
+        Keyword-only; see :class:`~sweepcli.physics.drives.base.SlicedDrive`.
     """
 
     period: float
     hamiltonian_at: Callable[[float], TightBinding]
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
-    min_slices: int = 8
-
-    exact = False
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "period", check_period(self.period))
-        check_slicing(self.tol, self.scheme, self.min_slices, self.max_slices)
+        super().__post_init__()
 
     @property
     def norb(self) -> int:

@@ -14,9 +14,10 @@ from . import DRIVES
 from .base import (
     SLICING_KEYS,
     TIME_RTOL,
-    Drive,
     Factor,
-    check_slicing,
+    SegmentDrive,
+    SlicedDrive,
+    Slicing,
     combine,
     overridden,
     read_slicing,
@@ -27,15 +28,12 @@ from .steps import StepDrive, StepsSpec, parse_steps
 
 
 @dataclass(frozen=True)
-class RampSpec:
+class RampSpec(Slicing):
     """``[[drive.step]]`` tables as for steps, the ramp time ``ramp`` (a fraction of the
     period) and the slicing settings (see :mod:`sweepcli.physics.drives.base`)."""
 
     steps: StepsSpec
     ramp: Callable
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
 
     covers_period = True  # at every time the parameters are the steps' values or between two
 
@@ -68,7 +66,7 @@ class RampSpec:
 
         drive = self.steps.compile(values, period, build)
         return RampDrive(period, drive.segments, real(self.ramp(values)) * period, between,
-                         tol=self.tol, max_slices=self.max_slices, scheme=self.scheme)
+                         **self.slicing())
 
 
 def parse_ramp(t: Mapping, r) -> RampSpec:
@@ -84,7 +82,7 @@ def parse_ramp(t: Mapping, r) -> RampSpec:
                  source="Blanes and Moan, J. Comput. Phys. 227, 4566 (2008) (integrator)",
                  keys=("step", "ramp", *SLICING_KEYS), parse=parse_ramp)
 @dataclass(frozen=True, eq=False)
-class RampDrive(Drive):
+class RampDrive(SegmentDrive, SlicedDrive):
     """Steps joined by linear ramps (sliced).
 
     Step ``j`` holds ``H_j`` from ``b_j + ramp/2`` to ``b_{j+1} - ramp/2`` (``b_j`` the switching
@@ -105,20 +103,14 @@ class RampDrive(Drive):
         The Hamiltonian a fraction ``s`` of the way from step ``i`` to step ``j``; default the
         linear combination ``(1 - s) H_i + s H_j``.
     tol, max_slices, scheme, min_slices
-        As for :class:`~sweepcli.physics.drives.harmonic.HarmonicDrive`; the slices of one ramp
-        (a plateau is one exact factor).
+        Keyword-only; see :class:`~sweepcli.physics.drives.base.SlicedDrive`; the slices of one
+        ramp (a plateau is one exact factor).
     """
 
     period: float
     segments: tuple[Factor, ...]
     ramp: float
     between: Callable[[int, int, float], TightBinding] | None = None
-    tol: float = 1e-8
-    max_slices: int = 4096
-    scheme: str = "magnus4"
-    min_slices: int = 8
-
-    exact = False
 
     def __post_init__(self) -> None:
         steps = StepDrive(self.period, self.segments)  # checks period, durations, lattices
@@ -128,15 +120,7 @@ class RampDrive(Drive):
         if not (math.isfinite(self.ramp) and 0 < self.ramp <= shortest * (1 + TIME_RTOL)):
             raise ValueError(f"the ramp time must be in (0, {shortest:g}] (the shortest step); "
                              f"got {self.ramp}")
-        check_slicing(self.tol, self.scheme, self.min_slices, self.max_slices)
-
-    @property
-    def norb(self) -> int:
-        return self.segments[0][1].norb
-
-    @property
-    def dim(self) -> int:
-        return self.segments[0][1].dim
+        super().__post_init__()
 
     def _between(self, i: int, j: int, s: float) -> TightBinding:
         if self.between is not None:

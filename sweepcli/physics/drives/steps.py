@@ -12,8 +12,8 @@ from ..lattice import TightBinding
 from . import DRIVES
 from .base import (
     TIME_RTOL,
-    Drive,
     Factor,
+    SegmentDrive,
     check_compatible,
     check_period,
     overridden,
@@ -91,7 +91,7 @@ def parse_steps(t: Mapping, r) -> StepsSpec:
                  "the period", source="Kitagawa, Berg, Rudner and Demler, PRB 82, 235114 (2010)",
                  keys=("step",), parse=parse_steps)
 @dataclass(frozen=True, eq=False)
-class StepDrive(Drive):
+class StepDrive(SegmentDrive):
     """Piecewise-constant drive: ``H(t) = H_j`` on the ``j``-th span of the period (exact).
 
     Parameters
@@ -121,14 +121,6 @@ class StepDrive(Drive):
         check_compatible([tb for _, tb in segs], "segment")
         object.__setattr__(self, "period", period)
         object.__setattr__(self, "segments", segs)
-
-    @property
-    def norb(self) -> int:
-        return self.segments[0][1].norb
-
-    @property
-    def dim(self) -> int:
-        return self.segments[0][1].dim
 
     def boundaries(self) -> np.ndarray:
         """Switching times ``0 = b_0 <= ... <= b_N = T``, shape ``(N + 1,)``."""

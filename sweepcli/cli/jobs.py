@@ -1,0 +1,180 @@
+"""The commands that check, run and plan a job: check, run, merge, batch."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from ..errors import SweepError
+from .root import EXIT_INTERRUPTED, app, fail
+
+
+@app.command()
+def run(ctx: typer.Context,
+        job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+        output: Annotated[Path | None, typer.Option(
+            "--output", "-o",
+            help="Results file (default: [output] path of the job, with a shard suffix for a "
+                 "shard).")] = None,
+        workers: Annotated[int, typer.Option(
+            "--workers", "-w", min=1, help="Worker processes.")] = 1,
+        force: Annotated[bool, typer.Option(
+            "--force", help="Overwrite an existing results file.")] = False,
+        resume: Annotated[bool, typer.Option(
+            "--resume",
+            help="Continue the results file if it exists (same job only); start it "
+                 "otherwise.")] = False,
+        shard: Annotated[str | None, typer.Option(
+            "--shard",
+            help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or "
+                 "PBS).")] = None,
+        chunk_size: Annotated[int | None, typer.Option(
+            "--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each",
+            help="Grid points per task.")] = None,
+        checkpoint_every: Annotated[float, typer.Option(
+            "--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
+        progress: Annotated[bool, typer.Option(
+            "--progress/--no-progress", help="Progress bar or log lines.")] = True,
+        scheduler: Annotated[str | None, typer.Option(
+            "--scheduler", help="Address of a running dask scheduler to run on.")] = None,
+        dask_cluster: Annotated[str | None, typer.Option(
+            "--dask-cluster",
+            help="Start dask workers: local:N, slurm:N or pbs:N (needs the cluster "
+                 "extra).")] = None,
+        verbose: Annotated[bool, typer.Option(
+            "--verbose", "-v",
+            help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
+        ) -> None:
+    """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
+    from ..run.session import RunSession
+
+    session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
+                         shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
+                         progress=progress, scheduler=scheduler, dask_cluster=dask_cluster)
+    loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
+    say = (lambda line: typer.echo(line, err=True)) if loud else None
+    try:
+        done = session.run(say)
+    except SweepError as exc:
+        fail(ctx, exc)
+        return
+    summary, out = done.run, done.output
+    failed = f", {summary.failed} failed (see `sweepcli show {out}`)" if summary.failed else ""
+    if summary.interrupted:
+        typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
+                   f"Resume with: {done.resume_command}", err=True)
+        raise typer.Exit(EXIT_INTERRUPTED)
+    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
+
+
+@app.command()
+def merge(ctx: typer.Context,
+          output: Annotated[Path, typer.Argument(help="Merged results file.", metavar="OUT")],
+          shards: Annotated[list[Path], typer.Argument(
+              help="Shard results files.", metavar="SHARD...")],
+          partial: Annotated[bool, typer.Option(
+              "--partial", help="Write the merged file even if points are missing.")] = False,
+          force: Annotated[bool, typer.Option("--force", help="Overwrite OUT.")] = False,
+          ) -> None:
+    """Merge the shard files of one job into OUT, checking that they belong together."""
+    from ..run.session import merge_shards
+
+    try:
+        report, warnings = merge_shards(shards, output, partial=partial, force=force)
+    except SweepError as exc:
+        fail(ctx, exc)
+        return
+    for line in warnings:
+        typer.echo(line, err=True)
+    typer.echo(f"merged {report.files} shards: {report.done}/{report.total} points -> {output}")
+
+
+@app.command()
+def check(ctx: typer.Context,
+          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+          time_one: Annotated[bool, typer.Option(
+              "--time-one",
+              help="Also evaluate the middle grid point once and report its time (this runs one "
+                   "point).")] = False,
+          ) -> None:
+    """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
+    from ..jobfile import load_job
+    from ..run.cost import estimate, time_one_point
+
+    try:
+        job = load_job(job_file)
+        cost = estimate(job)
+        measured = time_one_point(job) if time_one else None
+    except SweepError as exc:
+        fail(ctx, exc)
+        return
+    typer.echo(f"{job_file}: ok ({job.title})")
+    typer.echo(f"model: {job.model} ({job.dim}D, {job.norb} orbitals per cell); "
+               f"drive: {job.drive.kind}")
+    typer.echo(f"grid: {' x '.join(str(n) for n in job.shape)} = {job.size} points")
+    for a in job.axes:
+        typer.echo(f"  {a.name}: {len(a.values)} values, {a.values[0]:g} .. {a.values[-1]:g} "
+                   f"({a.spacing})")
+    for name, options in job.measurements:
+        opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
+        typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
+    typer.echo(f"cost estimate: {cost.format()}")
+    if measured is not None:
+        typer.echo(f"measured: {measured:.3g} s for the middle grid point; about "
+                   f"{measured * job.size / 3600:.2g} core-hours for the grid "
+                   "(use it with `sweepcli batch --seconds-per-point`)")
+    typer.echo(f"output: {job.output}")
+
+
+@app.command()
+def batch(ctx: typer.Context,
+          job_file: Annotated[Path, typer.Argument(help="TOML job file.", metavar="JOB")],
+          tasks: Annotated[int, typer.Option(
+              "--tasks", "-n", min=1, help="Array tasks (shards).")] = 10,
+          workers: Annotated[int, typer.Option(
+              "--workers", "-w", min=1, help="Worker processes per task.")] = 1,
+          directory: Annotated[Path, typer.Option(
+              "--dir", help="Where to write the scripts.")] = Path("."),
+          force: Annotated[bool, typer.Option(
+              "--force", help="Overwrite existing scripts.")] = False,
+          seconds_per_point: Annotated[float | None, typer.Option(
+              "--seconds-per-point", min=0.0,
+              help="Per-point time to size the wall time with (default: the estimate of `sweepcli "
+                   "check`, or the timed point if longer).")] = None,
+          time_one: Annotated[bool, typer.Option(
+              "--time-one/--no-time-one",
+              help="Evaluate the middle grid point once here and size the wall time by the longer "
+                   "of its time and the estimate.")] = True,
+          ) -> None:
+    """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
+    from ..jobfile import load_job
+    from ..run.batch import plan, scripts
+    from ..run.cost import time_one_point
+
+    try:
+        job = load_job(job_file)
+        if tasks > job.size:
+            raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
+        measured = time_one_point(job) if time_one and seconds_per_point is None else None
+        p = plan(job, tasks, workers, seconds_per_point, measured)
+        texts = scripts(job, str(job_file), p)
+        directory.mkdir(parents=True, exist_ok=True)
+        for name in texts:
+            if (directory / name).exists() and not force:
+                raise SweepError(f"{directory / name}: exists; refusing to overwrite it. "
+                                 "Use --force.")
+        for name, text in texts.items():
+            (directory / name).write_text(text)
+            (directory / name).chmod(0o755)
+    except SweepError as exc:
+        fail(ctx, exc)
+        return
+    if measured is not None:
+        typer.echo(f"timed the middle grid point: {measured:.3g} s")
+    typer.echo(f"{p.seconds_per_point:.3g} s per point ({p.basis})")
+    typer.echo(f"{tasks} tasks of about {p.points_per_task} points, {p.workers} workers, "
+               f"wall time {p.walltime_s // 60} min, memory {p.memory_mb} MiB per task")
+    for name in texts:
+        typer.echo(f"  wrote {directory / name}")

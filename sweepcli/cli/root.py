@@ -1,0 +1,73 @@
+"""The one typer ``app`` every command group registers on, its root options and the error
+handling all commands share.
+
+Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
+line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
+saved; rerun with ``--resume``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Annotated
+
+import typer
+
+from .. import __version__
+from ..errors import SweepError
+
+EXIT_DIFFER = 1
+EXIT_ERROR = 2
+EXIT_INTERRUPTED = 3
+
+# Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
+# and read "[output]" in a help text as markup.
+app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+                  rich_markup_mode=None,
+                  help="Phase-diagram sweeps of static and periodically driven lattice models.")
+
+
+@dataclass
+class State:
+    verbose: bool = False
+    debug: bool = False
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"sweepcli {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main(ctx: typer.Context,
+         verbose: Annotated[bool, typer.Option(
+             "--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
+         debug: Annotated[bool, typer.Option(
+             "--debug", help="Show tracebacks of errors.")] = False,
+         version: Annotated[bool | None, typer.Option(
+             "--version", callback=_version, is_eager=True, help="Print the version.")] = None,
+         ) -> None:
+    ctx.obj = State(verbose=verbose, debug=debug)
+
+
+def fail(ctx: typer.Context, exc: SweepError) -> None:
+    """Exit with ``EXIT_ERROR`` and the one-line message of ``exc`` (re-raise it with --debug)."""
+    if ctx.obj is not None and ctx.obj.debug:
+        raise exc
+    typer.echo(f"error: {exc}", err=True)
+    raise typer.Exit(EXIT_ERROR)
+
+
+def parse_at(items: list[str]) -> dict[str, float]:
+    """The ``--at NAME=VALUE`` options as ``{name: value}``."""
+    out = {}
+    for item in items:
+        name, sep, value = item.partition("=")
+        try:
+            if not sep:
+                raise ValueError
+            out[name.strip()] = float(value)
+        except ValueError:
+            raise SweepError(f"--at must be NAME=VALUE with a number; got {item!r}.") from None
+    return out
