@@ -203,13 +203,14 @@ def test_credit_spread_over_corners_is_missing_not_rounded():
 
 
 @pytest.mark.parametrize("name, kw, values", [
-    ("bbh", "gamma", np.linspace(0.6, 1.2, 7)),
-    ("corner", "m", np.linspace(1.4, 2.3, 7)),
+    ("bbh", "gamma", np.linspace(0.6, 1.2, 13)),
+    ("corner", "m", np.linspace(1.4, 2.3, 13)),
 ])
 def test_no_ok_count_changes_on_a_twice_larger_sample(name, kw, values):
-    # A fine line across the transition (BBH at |gamma| = lambda; the corner model at m = 2t):
-    # wherever the count has reason ok, a flake twice as large, diagonalised here, has the same
-    # number of in-window states and the same integer weight in each quadrant.
+    ok = 0
+    # A fine line (13 points) across the transition (BBH at |gamma| = lambda; the corner model
+    # at m = 2t): wherever the count has reason ok, a flake twice as large, diagonalised here,
+    # has the same number of in-window states and the same integer weight in each quadrant.
     for x in values:
         cell = bbh_cell(x, x) if name == "bbh" else corner_bhz_cell(x, 0.5)
         tb = as_model(*cell)
@@ -221,6 +222,8 @@ def test_no_ok_count_changes_on_a_twice_larger_sample(name, kw, values):
         n, quads = reference_modes(*cell, big, r.window.halfwidth)
         assert n == r.total, (name, x)
         assert np.allclose(quads, r.per_corner, atol=0.1), (name, x, quads)
+        ok += 1
+    assert ok >= 5  # the line is not all missing: most points away from the transition count
 
 
 def _driven_chain_reference(factors, period, cells, centre, halfwidth):
