@@ -14,7 +14,7 @@ counted, while modes bound to the boundary, which sit near the gap centre, are).
   ``2 min_{k,n} (pi/T - |eps_n(k)|)``; each window is centred on its gap.
 
 A gap at or below ``gap_tol`` means the window cannot be set: the counts are missing with
-:attr:`~sweepcli.physics.point.Reason.GAP_CLOSED`. Corner windows are narrowed to the edge gap
+:attr:`~sweepcli.schema.Reason.GAP_CLOSED`. Corner windows are narrowed to the edge gap
 of ribbons of the flake's width (:func:`edge_window`), since corner modes of a second-order
 phase live in the edge gap.
 """
