@@ -45,6 +45,7 @@ the job-file layer.
 from __future__ import annotations
 
 import math
+from abc import ABC, abstractmethod
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import ClassVar
@@ -60,7 +61,7 @@ Factor = tuple[float, TightBinding]
 TIME_RTOL = 1e-9
 
 
-class Drive:
+class Drive(ABC):
     """The protocol every periodic drive follows (implementations are frozen dataclasses).
 
     Attributes
@@ -84,12 +85,12 @@ class Drive:
         """Orbitals per cell."""
         return self.factors(slices=1)[0][1].norb
 
+    @abstractmethod
     def factors(self, start: float = 0.0, stop: float | None = None, *,
                 slices: int | None = None) -> list[Factor]:
         """Factors ``(duration, TightBinding)`` of the evolution from ``start`` to ``stop``
         (default ``start + T``) in time order; the drive is continued periodically. ``slices``:
         time slices per period of a sliced drive (default its ``min_slices``)."""
-        raise NotImplementedError
 
     def symmetric_times(self, chiral: np.ndarray | None = None, atol: float = 1e-10
                         ) -> tuple[float, float]:
