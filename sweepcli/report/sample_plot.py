@@ -25,6 +25,7 @@ from .sample_data import SampleDrawing, count_text, inspect_point, sample_name
 MODE_COLOUR = "crimson"
 EDGE_COLOUR = "darkorange"
 WINDOW_COLOUR = "tab:blue"
+BOUND_COLOUR = "mediumpurple"
 LEVEL_COLOUR = "0.55"
 
 
@@ -96,13 +97,15 @@ def _draw_spectrum(ax, raw: dict, d: SampleDrawing) -> None:
     shown_kinds = set()
     for g, idx in raw["window_at"].items():
         kinds = raw["kinds"][g]
-        for k, colour, ms in ((0, WINDOW_COLOUR, 4), (1, EDGE_COLOUR, 5), (2, MODE_COLOUR, 6)):
+        for k, colour, ms in ((0, WINDOW_COLOUR, 4), (1, EDGE_COLOUR, 5), (2, MODE_COLOUR, 6),
+                              (3, BOUND_COLOUR, 5)):
             sel = idx[kinds == k]
             if sel.size:
                 ax.plot(x[sel], levels[sel], "o", ms=ms, mfc=colour, mec="k", mew=0.4, zorder=3)
                 shown_kinds.add(k)
-    names = {0: "in window, bulk-like", 1: "in window, on the edges", 2: f"counted as {noun} modes"}
-    colours = {0: WINDOW_COLOUR, 1: EDGE_COLOUR, 2: MODE_COLOUR}
+    names = {0: "in window, bulk-like", 1: "in window, on the edges", 2: f"counted as {noun} modes",
+             3: f"bound to a {noun}, not pinned (not a mode)"}
+    colours = {0: WINDOW_COLOUR, 1: EDGE_COLOUR, 2: MODE_COLOUR, 3: BOUND_COLOUR}
     for k in sorted(shown_kinds):
         handles.append(Line2D([], [], ls="", marker="o", mfc=colours[k], mec="k", mew=0.4,
                               label=names[k]))
@@ -135,7 +138,7 @@ def _draw_zoom(ax, raw: dict, d: SampleDrawing) -> None:
     rel = raw["relative"][d.gap]
     order = np.argsort(rel, kind="stable")
     kinds = raw["kinds"][d.gap][order]
-    colours = np.array([WINDOW_COLOUR, EDGE_COLOUR, MODE_COLOUR])[kinds]
+    colours = np.array([WINDOW_COLOUR, EDGE_COLOUR, MODE_COLOUR, BOUND_COLOUR])[kinds]
     inset = ax.inset_axes([0.6, 0.07, 0.37, 0.3])
     inset.axhspan(-w.halfwidth, w.halfwidth, color="gold" if d.gap == "0" else "tab:cyan",
                   alpha=0.2, lw=0)

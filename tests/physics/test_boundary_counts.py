@@ -191,13 +191,13 @@ def test_credit_spread_over_corners_is_missing_not_rounded():
     basis = np.array(corners).T  # (256, 4), orthonormal to 1e-30
     mix = np.linalg.qr(np.array([[1, 1, 1, 1], [1, -1, 1, -1], [1, 1, -1, -1]]).T / 2.0)[0]
     three = basis @ mix  # three orthonormal states, each evenly over all corners
-    r = counts.count(np.zeros(3), three, cells, shape, 0.1)
+    r = counts.count(np.zeros(3), three, cells, shape, 0.1, pin=0.1)
     assert r.reason == Reason.FINITE_SIZE and r.per_corner is None and r.states == 3
     two = basis @ np.linalg.qr(np.array([[1, 1, 1, 1], [1, -1, 1, -1]]).T / 2.0)[0]
-    r = counts.count(np.zeros(2), two, cells, shape, 0.1)
+    r = counts.count(np.zeros(2), two, cells, shape, 0.1, pin=0.1)
     assert r.reason == Reason.FINITE_SIZE and r.per_corner is None
     # All four: each corner exactly one, total = number of states.
-    r = counts.count(np.zeros(4), basis, cells, shape, 0.1)
+    r = counts.count(np.zeros(4), basis, cells, shape, 0.1, pin=0.1)
     assert r.reason == Reason.OK and r.per_corner.tolist() == [1, 1, 1, 1] and r.total == 4
     assert r.region == 1 and r.weight > 0.95
 

@@ -170,13 +170,17 @@ def test_per_corner_counts_do_not_depend_on_the_basis_of_a_degenerate_subspace()
     w = bd.static_window(tb)
     levels, vectors = bd.static_levels(samples.flake(tb, 12), w, "dense")
     cells = samples.sample_sites(tb, shape)[0]
-    base = counts.count(levels, vectors, cells, shape, w.halfwidth)
+    gap, xi = bd.static_boundary_gap(tb, w.centre, 12)
+    pin = counts.pin_bound(gap, xi, 12)
     rng = np.random.default_rng(1)
     q, _ = np.linalg.qr(rng.standard_normal((4, 4)) + 1j * rng.standard_normal((4, 4)))
     assert levels.size == 4  # the four corner modes, split by less than the tolerance
-    rotated = counts.count(levels, vectors @ q, cells, shape, w.halfwidth)
-    assert base.per_corner.tolist() == rotated.per_corner.tolist() == [1, 1, 1, 1]
-    assert base.weight == pytest.approx(rotated.weight)
+    for chiral in (None, tb.operators["chiral"]):  # pinning, and chiral charges
+        base = counts.count(levels, vectors, cells, shape, w.halfwidth, pin=pin, chiral=chiral)
+        rotated = counts.count(levels, vectors @ q, cells, shape, w.halfwidth, pin=pin,
+                               chiral=chiral)
+        assert base.per_corner.tolist() == rotated.per_corner.tolist() == [1, 1, 1, 1]
+        assert base.weight == pytest.approx(rotated.weight)
 
 
 def test_sample_too_small():

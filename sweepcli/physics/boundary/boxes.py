@@ -92,8 +92,8 @@ def box_sizes(side: int, max_side: int) -> list[int]:
 
 
 def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float
-                  ) -> tuple[list[tuple[int, ...]], tuple[int, ...]]:
-    """Boxes large enough for the decay length ``xi``; and the largest allowed box."""
+                  ) -> list[tuple[int, ...]]:
+    """Boxes from ``shape`` doubled up to ``max_side`` that are large for the decay length."""
     shape = tuple(int(x) for x in shape)
     largest = max(shape) if max_side is None else max(int(max_side), max(shape))
     need = counts.required_side(xi)
@@ -102,7 +102,7 @@ def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float
         box = tuple(max(side, x) for x in shape)
         if min(box) >= need:
             boxes.append(box)
-    return boxes, tuple(max(largest, x) for x in shape)
+    return boxes
 
 
 def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = None,
@@ -195,13 +195,16 @@ def count_boxes(shape: Sequence[int], window: Window, xi: float,
 
     Boxes are ``shape``, doubled up to ``max_side`` (:func:`box_sizes`); those smaller than
     :func:`~sweepcli.physics.boundary.counts.required_side` of the decay length ``xi`` (cells)
-    are skipped, and a box whose count is ``FINITE_SIZE`` is followed
-    by the next. ``levels_of(box, method)`` returns the in-window levels and vectors.
+    are skipped, and a box whose count is ``FINITE_SIZE`` is followed by the next.
+    ``levels_of(box, method)`` returns the in-window levels and vectors; each box is counted
+    by :func:`~sweepcli.physics.boundary.counts.count` with the pin bound of its side (or the
+    chiral charges with ``chiral``). When no box is large enough, the result is missing with
+    an empty ``shape`` (nothing was diagonalised).
     """
     if window.closed(gap_tol):
         return ModeCount(None, None, window=window, reason=Reason.GAP_CLOSED)
-    boxes, largest = _sizes_to_try(shape, max_side, xi)
-    result = ModeCount(None, None, window=window, reason=Reason.FINITE_SIZE, shape=largest)
+    boxes = _sizes_to_try(shape, max_side, xi)
+    result = ModeCount(None, None, window=window, reason=Reason.FINITE_SIZE)
     for box in boxes:
         method = method_of(box)
         try:
@@ -209,7 +212,9 @@ def count_boxes(shape: Sequence[int], window: Window, xi: float,
         except ArpackNoConvergence:
             return ModeCount(None, None, method=method, window=window,
                              reason=Reason.NOT_CONVERGED, shape=box)
-        c = counts.count(levels, vectors, cells_of(box), box, window.halfwidth, chiral=chiral)
+        pin = counts.pin_bound(window.gap, xi, min(box))
+        c = counts.count(levels, vectors, cells_of(box), box, window.halfwidth, pin=pin,
+                         chiral=chiral)
         result = ModeCount(c.per_corner, c.total, levels, c.kinds, method, window, c.reason,
                            c.states, c.weight, c.region, box, vectors)
         if c.reason != Reason.FINITE_SIZE:

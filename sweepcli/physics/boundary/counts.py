@@ -1,57 +1,63 @@
-"""Which in-window states of an open box sample are bound to which corner, and whether to trust it.
+"""Which in-window states of an open box sample are boundary modes, and whether to trust the count.
 
 A boundary-mode count is a number papers rest on, so it is either right or missing with a reason.
-"Right" means: a larger sample of the same model gives the same count. This module decides that
-from the physics of the sample, not from a fixed region size.
+"Right" means: only modes pinned at the gap centre (0, or pi/T for a drive) or protected by a
+symmetry are counted, and a larger sample of the same model gives the same count. This module
+decides that from the physics of the sample, not from a fixed weight threshold.
 
-Localisation
-------------
-A state bound to a boundary decays into the bulk as ``exp(-d / xi)`` (amplitude), so its weight
-beyond a distance ``r`` from the boundary falls like ``exp(-2 r / xi)``. The decay length is set
-by the gap that confines the mode and by the dispersion at the gap edge: for a massive Dirac
-branch ``sqrt(d_0^2 + v^2 q^2)`` it is ``v / d_0``, which the curvature of the branch at its
-minimum gives as ``sqrt(d'' / d_0)`` (:func:`sweepcli.physics.boundary.gap_and_decay`). The gap
-is the bulk gap for the ends of a chain, and for the corners of a flake the smallest gap of
-ribbons as wide as the flake (edge and projected bulk states; a corner mode of a second-order
-phase decays along the edges with the edge gap).
+Localisation and pinning
+------------------------
+A state bound to a boundary decays into the bulk as ``exp(-d / xi)`` (amplitude). The decay
+length is set by the gap that confines the mode and by the dispersion at the gap edge: for a
+massive Dirac branch ``sqrt(d_0^2 + v^2 q^2)`` it is ``v / d_0``, which the curvature of the
+branch at its minimum gives as ``sqrt(d'' / d_0)`` (:func:`sweepcli.physics.boundary.gap_and_decay`).
+The gap is the bulk gap for the ends of a chain, and for the corners of a flake the smallest gap
+of ribbons as wide as the flake (a corner mode of a second-order phase decays along the edges
+with the edge gap).
+
+Two such modes a distance ``L`` apart overlap by ``exp(-L / xi)``, so a mode that topology puts
+at the gap centre sits there on a sample of side ``L`` up to a splitting of order
+``(gap / 2) exp(-L / xi)``: it is *pinned*, its distance from the centre exponentially small in
+the sample size. A state bound to a corner at a finite distance from the centre that does not
+shrink with ``L`` (a bound pair at ``+-eps`` that the boundary pulls into the window) is not a
+mode. :func:`pin_bound` is the largest distance accepted as pinned, ``(gap / 2) exp(-L / (2
+xi))``: the square root of the expected splitting, a margin of ``exp(L / (2 xi)) >= 20`` against
+an underestimated ``xi`` on any sample allowed by rule 1.
 
 Counting rule
 -------------
-1. *Sample large enough*: a bound state must fit into a corner region of at most ``L / 4``
-   cells with at most ``TAIL_TOL`` of its weight outside, i.e. ``exp(-2 (L/4) / xi) <=
-   TAIL_TOL``, ``L >= 2 xi ln(1 / TAIL_TOL)``. A smaller sample cannot tell a bound state
-   from a bulk one, nor be sure that no mode was pushed out of the window by hybridisation
-   across the sample: the count is missing (``FINITE_SIZE``) without diagonalising.
-2. *Every in-window state is bound*: the in-window levels are grouped into near-degenerate
-   clusters; for each cluster (projector ``P``, ``m`` states) the weight outside the corner
-   regions of radius ``r`` is ``t(r) = 1 - tr(P Pi_corners(r)) / m``. The region radius used is
-   the smallest ``r <= L / 4`` at which every cluster has ``t(r) <= TAIL_TOL`` (chosen from the
-   measured decay, not fixed). If there is none, some in-window state is not bound to a corner
-   of this sample (an edge or bulk state, or a mode longer than the sample allows): missing
-   (``FINITE_SIZE``). The smallest ``1 - t(r)`` over the clusters is reported as the weight of
-   the least bound counted state.
-3. *Integer credit per corner*: with ``P`` now the projector on all ``M`` in-window states,
-   corner ``c`` holds ``f_c = M tr(P Pi_c) / tr(P Pi_corners)`` states. Each ``f_c`` must lie
-   within ``INTEGER_TOL`` of an integer (three states spread over four corners give 3/4 each:
-   missing, ``FINITE_SIZE``); the credits then add up to ``M``.
-4. *Chiral chains*: when the sample has a chiral operator ``Gamma`` (cell-local,
-   ``Gamma H Gamma = -H``, or ``Gamma U Gamma = U^dagger`` in a symmetric time frame) the count at
-   each end is the chiral charge ``|tr(Gamma P Pi_end)|``: a pair of bound states at ``+-E`` (or
-   ``+-eps``) inside the window has opposite charges and is not a zero (or pi) mode. The
-   charges must be near integers too.
+1. *Sample large enough*: ``L >= 2 xi ln(1 / TAIL_TOL)`` (:func:`required_side`). A smaller
+   sample cannot tell a bound state from a bulk one, and hybridisation across it may push modes
+   out of the window: the count is missing (``FINITE_SIZE``) without diagonalising.
+2. *Symmetry charge* (a chiral operator ``Gamma``, cell-local, with ``Gamma H Gamma = -H``, or
+   ``Gamma U Gamma = U^dagger`` in a chiral-symmetric time frame of a drive): zero modes (and
+   pi modes) are protected, and corner ``c`` holds ``|Q_c|`` of them, its chiral charge
+   ``Q_c = tr(Gamma P Pi_c)`` with ``P`` the projector on all in-window states and ``Pi_c`` the
+   half-box (quadrant) of the corner. A bound pair at ``+-eps`` has charge 0 wherever it sits,
+   so it is no reason to drop the count; modes of opposite chirality at one corner are not
+   protected and cancel. Every ``Q_c`` must lie within ``INTEGER_TOL`` of an integer (a charge
+   spread over two quadrants, a mode longer than the sample, is not): else ``FINITE_SIZE``.
+3. *Pinning* (no symmetry): the in-window levels within :func:`pin_bound` of the centre are the
+   modes. They must be isolated (no level between the bound and ``ISOLATION`` times it: else the
+   sample cannot tell, ``FINITE_SIZE``); every other in-window cluster must be bound to a corner
+   (at least ``1 - TAIL_TOL`` of its weight within ``L / 4`` cells of the corners): it is then a
+   bound state off the centre, not a mode. A cluster neither pinned nor bound (an edge or bulk
+   state in the window) leaves the count missing (``FINITE_SIZE``). Corner ``c`` is credited
+   ``f_c = tr(P_pin Pi_c)``, the weight of the pinned projector in its quadrant; every ``f_c``
+   must lie within ``INTEGER_TOL`` of an integer (three states spread over four corners give
+   3/4 each: missing), and the credits add up to the number of pinned states.
 
 All traces are of projectors on whole clusters, so nothing depends on the basis chosen inside
-a degenerate subspace. The thresholds ``TAIL_TOL = 0.05`` and ``INTEGER_TOL = 0.15`` are common
-practice with no published source; the rules above make them conditions on localisation
-rather than on region sizes.
+a degenerate subspace. ``TAIL_TOL = 0.05``, ``INTEGER_TOL = 0.15`` and ``ISOLATION = 10`` are
+common practice with no published source.
 
 Geometry
 --------
 Corners of a box of ``L_1 x ... x L_d`` cells are numbered ``sum_i b_i 2^i`` with ``b_i = 1`` at
 the high end of direction ``i`` (chain: 0 = left, 1 = right; flake: 0 = (low a_1, low a_2), 1 =
-(high, low), 2 = (low, high), 3 = (high, high)). A cell belongs to the half-box of its nearest
-corner; its corner distance is the Chebyshev distance ``max_i min(c_i, L_i - 1 - c_i)`` and its
-face distance ``min_i min(c_i, L_i - 1 - c_i)``.
+(high, low), 2 = (low, high), 3 = (high, high)). A cell belongs to the half-box (quadrant) of its
+nearest corner; its corner distance is the Chebyshev distance ``max_i min(c_i, L_i - 1 - c_i)``
+and its face distance ``min_i min(c_i, L_i - 1 - c_i)``.
 """
 
 from __future__ import annotations
@@ -66,11 +72,15 @@ from ...schema import Reason
 
 TAIL_TOL = 0.05
 INTEGER_TOL = 0.15
+ISOLATION = 10.0
+#: Relative rounding of a diagonalised level: the smallest pin bound, in units of the gap.
+PIN_FLOOR = 1e-9
 #: Clusters: consecutive in-window levels closer than this fraction of the window half-width.
 DEGENERACY = 0.1
 #: Smallest side of a box sample in cells.
 MIN_SIDE = 8
-KIND_NAMES = ("bulk", "edge", "corner")
+KIND_NAMES = ("bulk", "edge", "corner", "bound")
+BULK, EDGE, MODE, BOUND = range(4)
 
 
 @dataclass(frozen=True)
@@ -82,10 +92,13 @@ class Count:
     per_corner : (2**d,) int, or ``None`` when missing.
     total : sum of ``per_corner``, or ``None``.
     states : number of in-window states (levels).
-    weight : smallest weight inside the corner regions among the counted clusters (``nan`` when
-        nothing was counted).
-    region : corner-region radius used, cells (0 when nothing was counted).
-    kinds : (m,) int per level, 0 bulk, 1 edge (bound to a face), 2 corner (end).
+    weight : smallest weight within ``region`` cells of the corners among the counted clusters
+        (``nan`` when nothing was counted); reported, not a threshold.
+    region : the smallest corner-region radius (cells, at most ``L / 4``) holding all but
+        ``TAIL_TOL`` of every counted cluster, or ``L / 4`` when none does (0 when nothing was
+        counted).
+    kinds : (m,) int per level: 0 bulk, 1 edge (bound to a face), 2 counted mode (pinned or
+        carrying chiral charge), 3 bound to a corner off the centre (not a mode).
     reason : :class:`Reason`.
     """
 
@@ -101,6 +114,16 @@ class Count:
 def required_side(xi: float) -> float:
     """Smallest side (cells) whose ``L/4`` corner regions hold all but ``TAIL_TOL`` of a mode."""
     return 2.0 * xi * math.log(1.0 / TAIL_TOL)
+
+
+def pin_bound(gap: float, xi: float, side: int) -> float:
+    """Largest distance from the gap centre (energy) of a mode pinned there on a side ``side``.
+
+    ``(gap / 2) exp(-side / (2 xi))`` (module docstring), and never below ``PIN_FLOOR * gap``,
+    the rounding of a diagonalisation.
+    """
+    decay = math.exp(-side / (2.0 * xi)) if xi > 0 else 0.0
+    return 0.5 * gap * max(decay, PIN_FLOOR)
 
 
 def _half_index(cells: np.ndarray, shape: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -125,15 +148,29 @@ def _clusters(levels: np.ndarray, halfwidth: float) -> list[np.ndarray]:
     return np.split(order, breaks)
 
 
-def _orbital_weights(vectors: np.ndarray, members: np.ndarray) -> np.ndarray:
-    """Diagonal of the projector on a cluster (orthonormalised, so basis independent)."""
+def _projector_diagonal(vectors: np.ndarray, members: np.ndarray,
+                        chiral: np.ndarray | None = None) -> np.ndarray:
+    """Diagonal of ``P`` (or of ``Gamma P``) for the projector ``P`` on some columns.
+
+    The columns are orthonormalised first, so the result does not depend on the basis chosen
+    inside a degenerate subspace. ``Gamma`` is cell-local, ``(n, n)``.
+    """
     q, _ = np.linalg.qr(vectors[:, members])
-    return np.sum(np.abs(q) ** 2, axis=1)
+    if chiral is None:
+        return np.sum(np.abs(q) ** 2, axis=1)
+    n, m = chiral.shape[0], q.shape[1]
+    gq = np.einsum("ab,cbm->cam", chiral, q.reshape(-1, n, m)).reshape(q.shape)
+    return np.einsum("ia,ia->i", gq, q.conj()).real
+
+
+def _integers(credit: np.ndarray) -> np.ndarray | None:
+    rounded = np.rint(credit)
+    return None if np.any(np.abs(credit - rounded) > INTEGER_TOL) else rounded.astype(int)
 
 
 def count(levels: np.ndarray, vectors: np.ndarray, cells: np.ndarray, shape: Sequence[int],
-          halfwidth: float, *, chiral: np.ndarray | None = None) -> Count:
-    """Apply the counting rule (module docstring, steps 2-4) to the in-window states of a box.
+          halfwidth: float, *, pin: float, chiral: np.ndarray | None = None) -> Count:
+    """Apply the counting rule (module docstring, steps 2-3) to the in-window states of a box.
 
     Parameters
     ----------
@@ -143,53 +180,64 @@ def count(levels: np.ndarray, vectors: np.ndarray, cells: np.ndarray, shape: Seq
         (:func:`sweepcli.physics.samples.sample_sites`).
     shape : (d,) box size in cells.
     halfwidth : window half-width (sets the degeneracy tolerance of clusters).
-    chiral : (n, n) cell-local chiral operator, or ``None``; used for chains only (step 4).
+    pin : :func:`pin_bound` of this sample (energy); used without ``chiral``.
+    chiral : (n, n) cell-local chiral operator of the sample (or of its chiral-symmetric time
+        frame), or ``None``; with it every corner is credited its chiral charge (step 2).
 
     Returns
     -------
     Count
     """
     shape_a = np.asarray([int(x) for x in shape])
-    d = shape_a.size
-    ncorner = 2 ** d
+    ncorner = 2 ** shape_a.size
     m = levels.size
-    kinds = np.zeros(m, dtype=int)
+    kinds = np.full(m, BULK, dtype=int)
     if m == 0:
         return Count(np.zeros(ncorner, int), 0, 0, float("nan"), 0, kinds, Reason.OK)
     corner, cdist, fdist = _half_index(np.asarray(cells), shape_a)
     rmax = max(1, int(shape_a.min()) // 4)
     groups = _clusters(levels, halfwidth)
-    weights = [_orbital_weights(vectors, g) for g in groups]
-    # inside[j, r-1]: fraction of cluster j within corner distance < r, for r = 1 .. rmax
-    radii = np.arange(1, rmax + 1)
-    inside = np.array([[w[cdist < r].sum() / g.size for r in radii]
+    weights = [_projector_diagonal(vectors, g) for g in groups]
+    # inside[j, r - 1]: fraction of cluster j within corner distance < r, for r = 1 .. rmax
+    inside = np.array([[w[cdist < r].sum() / g.size for r in range(1, rmax + 1)]
                        for w, g in zip(weights, groups)])
     on_face = np.array([w[fdist < rmax].sum() / g.size for w, g in zip(weights, groups)])
-    bound = inside >= 1.0 - TAIL_TOL
+    bound = inside[:, -1] >= 1.0 - TAIL_TOL
     for j, g in enumerate(groups):
-        kinds[g] = 2 if bound[j, -1] else (1 if on_face[j] >= 1.0 - TAIL_TOL else 0)
-    ok_radius = np.flatnonzero(bound.all(axis=0))
-    if ok_radius.size == 0:
+        kinds[g] = BOUND if bound[j] else (EDGE if on_face[j] >= 1.0 - TAIL_TOL else BULK)
+
+    def missing() -> Count:
         return Count(None, None, m, float(inside[:, -1].min()), rmax, kinds, Reason.FINITE_SIZE)
-    r = int(radii[ok_radius[0]])
-    weight = float(inside[:, ok_radius[0]].min())
-    region = cdist < r
-    if chiral is not None and d == 1:
-        q, _ = np.linalg.qr(vectors)
-        n = chiral.shape[0]
-        gq = np.einsum("ab,cbm->cam", chiral, q.reshape(-1, n, m)).reshape(q.shape)
-        # tr(Gamma P Pi_c) = sum over the orbitals i of corner c of (Gamma P)_ii, P = q q^dagger
-        diag = np.einsum("ia,ia->i", gq, q.conj()).real
-        charge = np.array([diag[region & (corner == c)].sum() for c in range(ncorner)])
-        credit = np.abs(charge)
+
+    if chiral is not None:
+        charges = np.array([np.bincount(corner, weights=_projector_diagonal(vectors, g, chiral),
+                                        minlength=ncorner) for g in groups])
+        counted = np.abs(charges).max(axis=1) > INTEGER_TOL
+        per_corner = _integers(charges.sum(axis=0))
+        if per_corner is None:
+            return missing()
+        per_corner = np.abs(per_corner)
     else:
-        w = np.sum(np.abs(np.linalg.qr(vectors)[0]) ** 2, axis=1)
-        per = np.bincount(corner[region], weights=w[region], minlength=ncorner)
-        credit = m * per / per.sum()
-    rounded = np.rint(credit)
-    if np.any(np.abs(credit - rounded) > INTEGER_TOL):
-        return Count(None, None, m, weight, r, kinds, Reason.FINITE_SIZE)
-    per_corner = rounded.astype(int)
-    if (chiral is None or d != 1) and per_corner.sum() != m:
-        return Count(None, None, m, weight, r, kinds, Reason.FINITE_SIZE)
-    return Count(per_corner, int(per_corner.sum()), m, weight, r, kinds, Reason.OK)
+        dist = np.array([np.abs(levels[g]).max() for g in groups])
+        counted = dist <= pin
+        ambiguous = (dist > pin) & (dist <= ISOLATION * pin)
+        if np.any(ambiguous) or np.any(~counted & ~bound):
+            return missing()
+        pinned = [g for g, c in zip(groups, counted) if c]
+        members = np.concatenate(pinned) if pinned else np.zeros(0, int)
+        credit = np.zeros(ncorner)
+        if members.size:
+            credit = np.bincount(corner, weights=_projector_diagonal(vectors, members),
+                                 minlength=ncorner)
+        per_corner = _integers(credit)
+        if per_corner is None or per_corner.sum() != members.size:
+            return missing()
+    for g, c in zip(groups, counted):
+        if c:
+            kinds[g] = MODE
+    if not counted.any():
+        return Count(per_corner, int(per_corner.sum()), m, float("nan"), 0, kinds, Reason.OK)
+    held = np.flatnonzero((inside[counted] >= 1.0 - TAIL_TOL).all(axis=0))
+    r = int(held[0]) + 1 if held.size else rmax
+    return Count(per_corner, int(per_corner.sum()), m, float(inside[counted, r - 1].min()), r,
+                 kinds, Reason.OK)

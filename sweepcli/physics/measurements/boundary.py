@@ -31,9 +31,12 @@ import math
 from dataclasses import replace
 from typing import Any
 
+import numpy as np
+
 from ...schema import Quantity, Reason
 from .. import boundary as bd
 from .. import samples
+from ..lattice import TightBinding
 from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
@@ -166,16 +169,24 @@ def _method_code(results: dict[str, bd.ModeCount]) -> int | None:
     return METHOD_CODE[methods[-1]] if methods else None
 
 
+def _anticommutes(g: np.ndarray, tb: TightBinding, atol: float = 1e-10) -> bool:
+    """Whether the cell operator ``g`` is a chiral symmetry of ``tb``: ``g h g^+ = -h`` for the
+    onsite block and every hopping, so ``Gamma H Gamma = -H`` on any open box."""
+    return all(np.allclose(g @ h @ g.conj().T, -h, atol=atol)
+               for h in (tb.onsite, *tb.hoppings.values()))
+
+
 def _chiral_frame(point: Point) -> tuple[list | None, Any]:
     """Factors in a chiral-symmetric frame and the chiral operator, or ``(None, None)``.
 
-    Static models: the model's own ``"chiral"`` operator. Drives: the frame starting at the
-    first chiral-symmetric time the drive finds (``symmetric_times``; Asboth and Obuse, PRB 88,
-    121406 (2013)), where ``Gamma U Gamma = U^dagger``; drives without one are counted without
-    chiral charges.
+    Static models: the model's own ``"chiral"`` operator, when it anticommutes with every block
+    of the model. Drives: the frame starting at the first chiral-symmetric time the drive finds
+    (``symmetric_times``; Asboth and Obuse, PRB 88, 121406 (2013)), where
+    ``Gamma U Gamma = U^dagger``; drives without one are counted by pinning alone.
     """
     if point.drive is None:
-        return None, point.tb.operators.get("chiral")
+        chiral = point.tb.operators.get("chiral")
+        return None, chiral if chiral is not None and _anticommutes(chiral, point.tb) else None
     chiral = point_factors(point)[0][1].operators.get("chiral")
     if chiral is None:
         return None, None
@@ -199,8 +210,7 @@ def box_counts(point: Point, measurement: str, options: dict[str, Any]
         shape, max_side = (options["size"],) * 2, options["max_size"]
     else:
         shape, max_side = (options["cells"],), options["max_cells"]
-    results = _box(point, shape, max_side, options["window"], options["method"],
-                   chiral_chain=not corners, corners=corners)
+    results = _box(point, shape, max_side, options["window"], options["method"], corners=corners)
     if corners:
         bulk = point_windows(point, options["window"])
         for g, r in results.items():
@@ -210,7 +220,7 @@ def box_counts(point: Point, measurement: str, options: dict[str, Any]
 
 
 def _box(point: Point, shape: tuple[int, ...], max_side: int, fraction: float, method: str, *,
-         chiral_chain: bool = False, corners: bool = False) -> dict[str, bd.ModeCount]:
+         corners: bool = False) -> dict[str, bd.ModeCount]:
     # Sizes are checked before the bulk window is computed, so a bad sample fails at once.
     bd.check_sample_side(shape)
     driven = point.drive is not None
@@ -229,15 +239,13 @@ def _box(point: Point, shape: tuple[int, ...], max_side: int, fraction: float, m
             gap, xi[g] = bd.static_boundary_gap(point.tb, w.centre, shape[0])
         if corners:
             wins[g] = bd.edge_window(w, gap)
-    chiral = None
-    if chiral_chain:
-        frame, chiral = _chiral_frame(point)
-        factors = frame or factors
-        w0 = wins["0"]
-        if not driven and not abs(w0.centre) <= 1e-9 * (1.0 + w0.gap):
-            # Chiral charges count zero modes; a window off zero energy (another filling)
-            # holds none, so its states are counted as they are.
-            chiral = None
+    frame, chiral = _chiral_frame(point)
+    factors = frame or factors
+    w0 = wins["0"]
+    if not driven and not abs(w0.centre) <= 1e-9 * (1.0 + w0.gap):
+        # Chiral charges count zero modes; a window off zero energy (another filling) holds
+        # none, so its states are counted by pinning.
+        chiral = None
     kw = dict(max_side=max_side, chiral=chiral, method=method, gap_tol=point.gap_tol)
     if not driven:
         return {"0": bd.box_modes(tb0, shape, wins["0"], xi=xi["0"], **kw)}
