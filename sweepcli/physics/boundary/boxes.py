@@ -91,12 +91,12 @@ def box_sizes(side: int, max_side: int) -> list[int]:
     return out
 
 
-def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float
+def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float, charged: bool
                   ) -> list[tuple[int, ...]]:
     """Boxes from ``shape`` doubled up to ``max_side`` that are large for the decay length."""
     shape = tuple(int(x) for x in shape)
     largest = max(shape) if max_side is None else max(int(max_side), max(shape))
-    need = counts.required_side(xi)
+    need = counts.required_side(xi, charged=charged)
     boxes = []
     for side in box_sizes(min(shape), largest):
         box = tuple(max(side, x) for x in shape)
@@ -203,7 +203,7 @@ def count_boxes(shape: Sequence[int], window: Window, xi: float,
     """
     if window.closed(gap_tol):
         return ModeCount(None, None, window=window, reason=Reason.GAP_CLOSED)
-    boxes = _sizes_to_try(shape, max_side, xi)
+    boxes = _sizes_to_try(shape, max_side, xi, chiral is not None)
     result = ModeCount(None, None, window=window, reason=Reason.FINITE_SIZE)
     for box in boxes:
         method = method_of(box)

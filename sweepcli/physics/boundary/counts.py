@@ -26,9 +26,12 @@ an underestimated ``xi`` on any sample allowed by rule 1.
 
 Counting rule
 -------------
-1. *Sample large enough*: ``L >= 2 xi ln(1 / TAIL_TOL)`` (:func:`required_side`). A smaller
-   sample cannot tell a bound state from a bulk one, and hybridisation across it may push modes
-   out of the window: the count is missing (``FINITE_SIZE``) without diagonalising.
+1. *Sample large enough* (:func:`required_side`): a smaller sample cannot tell a bound state
+   from a bulk one, and hybridisation across it may push modes out of the window, so the count
+   is missing (``FINITE_SIZE``) without diagonalising. Counted by pinning (step 3) the side must
+   be ``L >= 2 xi ln(1 / TAIL_TOL)``; counted by charge (step 2) ``L >= xi ln(2 / INTEGER_TOL)``
+   is enough, since the charges themselves are integers only when the modes fit their
+   quadrants.
 2. *Symmetry charge* (a chiral operator ``Gamma``, cell-local, with ``Gamma H Gamma = -H``, or
    ``Gamma U Gamma = U^dagger`` in a chiral-symmetric time frame of a drive): zero modes (and
    pi modes) are protected, and corner ``c`` holds ``|Q_c|`` of them, its chiral charge
@@ -111,8 +114,17 @@ class Count:
     reason: Reason
 
 
-def required_side(xi: float) -> float:
-    """Smallest side (cells) whose ``L/4`` corner regions hold all but ``TAIL_TOL`` of a mode."""
+def required_side(xi: float, *, charged: bool = False) -> float:
+    """Smallest side (cells) of a sample that can settle a count (rule 1, module docstring).
+
+    Counted by pinning: ``2 xi ln(1 / TAIL_TOL)``, so that ``L / 4`` corner regions hold all but
+    ``TAIL_TOL`` of a bound state and the pin bound stays below ``gap / 40``. Counted by chiral
+    charge (``charged``): ``xi ln(2 / INTEGER_TOL)``, so that the tail of a mode beyond its
+    quadrant, ``exp(-L / xi)``, is at most half the integer tolerance of a charge, and the
+    splitting of two hybridised modes, ``(gap / 2) exp(-L / xi)``, stays far inside the window.
+    """
+    if charged:
+        return xi * math.log(2.0 / INTEGER_TOL)
     return 2.0 * xi * math.log(1.0 / TAIL_TOL)
 
 
