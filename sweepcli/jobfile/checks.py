@@ -94,7 +94,7 @@ def _check_frames_symmetric(ck: Checker, job: Job, point: Point) -> None:
             raise ck.fail("measure.chiral_windings", "times",
                           "time-symmetric points of the drive (where G U G = U^dagger)", times,
                           f" At t = {t:g} T the frame deviates by {err:.2g} at the first grid "
-                          "point; omit times to find them for a step drive.")
+                          "point; omit times to find them.")
 
 
 SAMPLE_SHAPES = {"end_modes": ("cells", "max_cells", 1), "corner_modes": ("size", "max_size", 2)}

@@ -125,8 +125,17 @@ def test_kick_drive_equals_expm_product():
            @ sl.expm(-0.5j * base.bloch(k)))
     np.testing.assert_allclose(floquet_operator(drive, k), ref, atol=1e-12)
     assert [d for d, _ in drive.factors()] == [0.5, 1.0, 1.0, 1.0, 0.5]
-    # a window starting on a kick contains it at its start
-    assert drive.factors(start=0.5)[0] == (1.0, kick1)
+    # A kick on the edge of a window contributes half of itself at each edge: the period
+    # starting on kick 1 is exp(-i K1/2) ... exp(-i K1/2), and windows compose.
+    fs = drive.factors(start=0.5)
+    assert fs[0] == (0.5, kick1) and fs[-1] == (0.5, kick1)
+    half = sl.expm(-0.5j * kick1.bloch(k))
+    ref = (half @ sl.expm(-1.0j * base.bloch(k)) @ sl.expm(-1j * kick2.bloch(k))
+           @ sl.expm(-1.0j * base.bloch(k)) @ half)
+    np.testing.assert_allclose(floquet_operator(drive, k, start=0.5), ref, atol=1e-12)
+    first, second = (evolve((d, tb.bloch(k)) for d, tb in drive.factors(a, b))
+                     for a, b in ((0.5, 1.5), (1.5, 2.5)))
+    np.testing.assert_allclose(second @ first, ref, atol=1e-12)
 
 
 @pytest.mark.parametrize("t", [0.0, 0.3, -1.7, 12.0])

@@ -17,7 +17,8 @@ Conventions
 * A *frame* is the choice of the starting time ``t0``: ``U(t0) = U(t0 + T, t0)``. Frames are
   unitarily equivalent but the chiral invariants of 1D drives need the two
   time-reversal-symmetric ones (Asboth and Obuse, PRB 88, 121406 (2013)), which
-  :meth:`Drive.symmetric_times` finds where the protocol knows how.
+  :meth:`Drive.symmetric_times` finds (steps, ramps, harmonic terms and kicks each derive the
+  condition for their own form of ``H(t)``; :func:`mirror_defect` compares two Hamiltonians).
 
 Job-file hook
 -------------
@@ -96,13 +97,26 @@ class Drive(ABC):
                         ) -> tuple[float, float]:
         """The two time-reversal-symmetric (chiral-symmetric with ``chiral``) starting times.
 
+        A time ``t*`` is symmetric when ``H(t* + s) = H(t* - s)`` for all ``s`` or, with
+        ``chiral`` given, ``chiral H(t* + s) chiral = -H(t* - s)``: then the frame starting at
+        ``t*`` has ``chiral U chiral = U^dagger`` (Asboth and Obuse, PRB 88, 121406 (2013)).
+        The reflection ``t -> 2 t* - t`` of the circle of length ``T`` fixes ``t*`` and
+        ``t* + T/2``, so symmetric times come in pairs ``t1, t2 = t1 + T/2``; ``factors(start=
+        t1)`` of a protocol that implements this method is then symmetric about ``t1 + T/2``
+        factor by factor, so the discretised ``U`` keeps the symmetry exactly.
+
+        Returns
+        -------
+        (t1, t2) : floats in ``[0, T)``, ``t1`` the earlier of the pair.
+
         Raises
         ------
         ValueError
-            When the protocol cannot find them (give the times explicitly then).
+            When the drive has no symmetric time (or the protocol cannot find them; give the
+            times explicitly then).
         """
-        raise ValueError("symmetric times are found automatically only for step drives; give "
-                         "them explicitly for this drive")
+        raise ValueError(f"symmetric times are not found automatically for a "
+                         f"{type(self).__name__}; give them explicitly for this drive")
 
 
 def real(value: complex) -> float:
@@ -114,6 +128,29 @@ def overridden(values: Mapping[str, complex], overrides: Sequence[tuple[str, Cal
                ) -> dict[str, complex]:
     """Parameter values with a part's ``set = {...}`` expressions applied."""
     return {**values, **{k: e(values) for k, e in overrides}}
+
+
+def mirror_defect(a: TightBinding, b: TightBinding, chiral: np.ndarray | None = None) -> float:
+    """Largest entry of ``image(a) - b`` over the onsite and hopping matrices, with
+    ``image(h) = h`` (``chiral is None``) or ``-chiral h chiral``: zero when ``a`` is the mirror
+    image of ``b`` in the sense of :meth:`Drive.symmetric_times` (``H(k)`` of both then obey
+    ``chiral H_a(k) chiral = -H_b(k)`` at every ``k``)."""
+    ha, hb = a.hoppings, b.hoppings
+    zero = np.zeros((a.norb, a.norb), complex)
+
+    def image(m: np.ndarray) -> np.ndarray:
+        return m if chiral is None else -(chiral @ m @ chiral)
+
+    pairs = [(a.onsite, b.onsite)] + [(ha.get(r, zero), hb.get(r, zero))
+                                      for r in set(ha) | set(hb)]
+    return max(float(np.max(np.abs(image(x) - y), initial=0.0)) for x, y in pairs)
+
+
+def mirror_deviation(hamiltonian_at: Callable[[float], TightBinding], tstar: float,
+                     offsets: Sequence[float], chiral: np.ndarray | None = None) -> float:
+    """Largest :func:`mirror_defect` of ``H(t* + s)`` against ``H(t* - s)`` over ``offsets``."""
+    return max((mirror_defect(hamiltonian_at(tstar + s), hamiltonian_at(tstar - s), chiral)
+                for s in offsets), default=0.0)
 
 
 def check_period(period: float) -> float:

@@ -19,6 +19,7 @@ from .base import (
     SlicedDrive,
     Slicing,
     combine,
+    mirror_defect,
     overridden,
     read_slicing,
     real,
@@ -168,10 +169,58 @@ class RampDrive(SegmentDrive, SlicedDrive):
                 out.extend(smooth_factors(at, a, b, m, self.scheme))
         return out
 
+    def hamiltonian_at(self, t: float) -> TightBinding:
+        """The Hamiltonian at time ``t`` (continued periodically): a plateau's ``H_j`` or a
+        point of the ramp into it."""
+        T, r = self.period, self.ramp
+        local = (t + r / 2) % T - r / 2
+        nseg = len(self.segments)
+        for begin, end, j, is_ramp in self._pieces():
+            if begin <= local < end:
+                if not is_ramp:
+                    return self.segments[j][1]
+                s = float(np.clip((local - begin) / r, 0.0, 1.0))
+                return self._between((j - 1) % nseg, j, s)
+        return self.segments[-1][1]  # local = T - ramp/2 by rounding: the end of the last plateau
+
     def symmetric_times(self, chiral: np.ndarray | None = None, atol: float = 1e-10
                         ) -> tuple[float, float]:
-        """Those of the step drive with the same segments: a mirror point of the steps is one
-        of the ramped drive, since the reflection maps the ramp from ``H_i`` to ``H_j`` onto the
-        ramp from ``H_j`` to ``H_i`` run backwards (exactly so for the default linear
-        ``between``; the chiral measurements check the frames they are given)."""
-        return StepDrive(self.period, self.segments).symmetric_times(chiral, atol)
+        """The first mirror point of the steps (:meth:`StepDrive.mirror_points
+        <sweepcli.physics.drives.steps.StepDrive.mirror_points>`) about which the ramps are
+        symmetric too, and its partner half a period on.
+
+        The reflection ``t -> 2 t* - t`` about a mirror point of the steps maps the switch from
+        ``H_i`` to ``H_j`` onto a switch from ``P[H_j]`` to ``P[H_i]`` (``P[h] = -chiral h
+        chiral``, or ``h``), and a ramp of width ``ramp`` centred on a switch onto one centred
+        on its image, run backwards. For the default ``between`` (linear in the Hamiltonians)
+        ``P[(1 - s) H_i + s H_j] = (1 - s) P[H_i] + s P[H_j]`` is the mirrored ramp at ``1 -
+        s``; for a ``between`` that interpolates model parameters it holds when the model is
+        linear in them (or the mirrored steps have the same parameters), not in general, so
+        each ramp is checked at several points against the Hamiltonian at its mirror time,
+        and a mirror point of the steps whose ramps are not symmetric is passed over.
+        ``factors(start=t*)`` cuts a ramp on ``t*`` into two halves with equal numbers of
+        equal slices, so the frame is the mirror image of itself factor by factor.
+
+        Raises
+        ------
+        ValueError
+            If no mirror point of the steps is one of the ramps.
+        """
+        T, r = self.period, self.ramp
+        g = None if chiral is None else np.asarray(chiral, complex)
+        steps = StepDrive(T, self.segments)
+        points = steps.mirror_points(g, atol)
+        b = steps.boundaries()[:-1]
+        probe = np.array([0.0, 0.13, 0.31, 0.5, 0.62, 0.87, 1.0])
+        times = (b[:, None] + (probe[None, :] - 0.5) * r).ravel()
+        for ts in points:
+            if all(mirror_defect(self.hamiltonian_at(t), self.hamiltonian_at(2 * ts - t), g)
+                   <= atol for t in times):
+                return ts, (ts + T / 2) % T
+        what = "chiral-symmetric" if g is not None else "time-reversal-symmetric"
+        if points:
+            raise ValueError(f"this ramp drive has no {what} starting time: the steps are "
+                             f"symmetric about t/T = {', '.join(f'{t / T:.6g}' for t in points)}"
+                             f", but the ramps between them are not")
+        raise ValueError(f"this ramp drive has no {what} starting time: no segment centre or "
+                         f"boundary is a mirror point of the sequence of steps")

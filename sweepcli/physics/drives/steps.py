@@ -16,25 +16,10 @@ from .base import (
     SegmentDrive,
     check_compatible,
     check_period,
+    mirror_defect,
     overridden,
     real,
 )
-
-
-def _related(a: TightBinding, b: TightBinding, chiral: np.ndarray | None, atol: float) -> bool:
-    """``a == b`` (``chiral is None``) or ``chiral a chiral == -b`` entry by entry."""
-    ha, hb = a.hoppings, b.hoppings
-    keys = set(ha) | set(hb)
-    n = a.norb
-    zero = np.zeros((n, n), complex)
-
-    def image(m: np.ndarray) -> np.ndarray:
-        return m if chiral is None else -(chiral @ m @ chiral)
-
-    if not np.allclose(image(a.onsite), b.onsite, atol=atol, rtol=0):
-        return False
-    return all(np.allclose(image(ha.get(r, zero)), hb.get(r, zero), atol=atol, rtol=0)
-               for r in keys)
 
 
 @dataclass(frozen=True)
@@ -161,6 +146,37 @@ class StepDrive(SegmentDrive):
             t = max(end, t + eps) if end <= t else end
         return out
 
+    def mirror_points(self, chiral: np.ndarray | None = None, atol: float = 1e-10
+                      ) -> list[float]:
+        """Every symmetric time in ``[0, T)`` (see :meth:`symmetric_times`), in time order.
+
+        Under the reflection ``t -> 2 t* - t`` a switching time goes to a switching time, so a
+        symmetric ``t*`` lies where the nearest switching times on either side are equally far:
+        a segment centre or a segment boundary. Each candidate is checked on every piece between
+        the switching times and their mirror images.
+        """
+        T = self.period
+        b = self.boundaries()
+        g = None if chiral is None else np.asarray(chiral, complex)
+        rel: dict[tuple[int, int], bool] = {}
+
+        def related(i: int, j: int) -> bool:
+            if (i, j) not in rel:
+                rel[(i, j)] = mirror_defect(self.segments[i][1], self.segments[j][1],
+                                            g) <= atol
+            return rel[(i, j)]
+
+        cands = sorted({float(x % T) for x in list(b[:-1]) + list((b[:-1] + b[1:]) / 2)})
+        out = []
+        for ts in cands:
+            cuts = np.sort(np.concatenate([b % T, (2 * ts - b) % T, [0.0, T]]))
+            cuts = cuts[np.concatenate([[True], np.diff(cuts) > TIME_RTOL * T])]
+            mids = (cuts[:-1] + cuts[1:]) / 2
+            if all(related(self.hamiltonian_index(m), self.hamiltonian_index(2 * ts - m))
+                   for m in mids):
+                out.append(ts)
+        return out
+
     def symmetric_times(self, chiral: np.ndarray | None = None, atol: float = 1e-10
                         ) -> tuple[float, float]:
         """The two inequivalent time-reversal-symmetric starting times ``t1, t2 = t1 + T/2``.
@@ -170,8 +186,8 @@ class StepDrive(SegmentDrive):
         the frame at ``t*`` is chiral symmetric, ``chiral U chiral = U^dagger``; Asboth and
         Obuse, PRB 88, 121406 (2013)). The reflection ``t -> 2 t* - t`` on the circle of
         length ``T`` has exactly two fixed points, ``t*`` and ``t* + T/2``; a symmetric point
-        is a segment centre or a segment boundary, so these candidates are tried in time order
-        and the first symmetric one is returned with its partner.
+        is a segment centre or a segment boundary (:meth:`mirror_points`), and the first
+        symmetric one in time order is returned with its partner.
 
         Returns
         -------
@@ -182,24 +198,9 @@ class StepDrive(SegmentDrive):
         ValueError
             If no segment centre or boundary is a symmetry point.
         """
-        T = self.period
-        b = self.boundaries()
-        g = None if chiral is None else np.asarray(chiral, complex)
-        rel: dict[tuple[int, int], bool] = {}
-
-        def related(i: int, j: int) -> bool:
-            if (i, j) not in rel:
-                rel[(i, j)] = _related(self.segments[i][1], self.segments[j][1], g, atol)
-            return rel[(i, j)]
-
-        cands = sorted({float(x % T) for x in list(b[:-1]) + list((b[:-1] + b[1:]) / 2)})
-        for ts in cands:
-            cuts = np.sort(np.concatenate([b % T, (2 * ts - b) % T, [0.0, T]]))
-            cuts = cuts[np.concatenate([[True], np.diff(cuts) > TIME_RTOL * T])]
-            mids = (cuts[:-1] + cuts[1:]) / 2
-            if all(related(self.hamiltonian_index(m), self.hamiltonian_index(2 * ts - m))
-                   for m in mids):
-                return ts, (ts + T / 2) % T
-        what = "chiral-symmetric" if g is not None else "time-reversal-symmetric"
+        points = self.mirror_points(chiral, atol)
+        if points:
+            return points[0], (points[0] + self.period / 2) % self.period
+        what = "chiral-symmetric" if chiral is not None else "time-reversal-symmetric"
         raise ValueError(f"this step drive has no {what} starting time: no segment centre or "
                          f"boundary is a mirror point of the sequence of steps")

@@ -139,8 +139,9 @@ def end_modes(point: Point, *, cells: int = 40, max_cells: int = 160,
               window: float = bd.WINDOW_FRACTION, method: str = "auto") -> dict[str, Any]:
     """End modes of an open chain: total and per end, at 0 (and pi/T if driven).
 
-    With a chiral operator (the model's ``"chiral"``; for a step drive in its chiral-symmetric
-    frame) each end is credited its chiral charge, so bound pairs at +-E are not zero modes.
+    With a chiral operator (the model's ``"chiral"``; for a drive in its chiral-symmetric
+    frame, when it has one) each end is credited its chiral charge, so bound pairs at +-E are
+    not zero modes.
     """
     missing = _unsliced("end_modes", point)
     if missing is not None:

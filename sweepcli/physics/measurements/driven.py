@@ -243,8 +243,8 @@ def _times(times: Any, period: float) -> list[float] | None:
     source=_CHIRAL,
     params=(Param("times", kind="vector", default=None,
                   doc="the two time-symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as "
-                      "fractions of the period (or t1 alone); found automatically for step "
-                      "drives", units="1", sweepable=False),
+                      "fractions of the period (or t1 alone); found automatically when "
+                      "omitted", units="1", sweepable=False),
             Param("kmesh", kind="int", default=WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4,
@@ -264,8 +264,8 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
                     phase_tol: float = PHASE_TOL) -> dict[str, Any]:
     """``nu_0 = (nu + nu')/2``, ``nu_pi = (nu - nu')/2`` from the two symmetric frames.
 
-    ``nu`` belongs to the first symmetric time ``t1`` (the earliest segment centre or boundary
-    that is a mirror point, :meth:`~sweepcli.physics.drives.steps.StepDrive.symmetric_times`); the
+    ``nu`` belongs to the first symmetric time ``t1`` (the earliest mirror point of the drive,
+    :meth:`~sweepcli.physics.drives.base.Drive.symmetric_times`); the
     number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
     """
     _need_drive(point)
@@ -319,7 +319,7 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
                   sweepable=False),
             Param("times", kind="vector", default=None,
                   doc="symmetric starting times t1, t2 = t1 + 1/2 (mod 1) as fractions of the "
-                      "period (found automatically for step drives)", units="1",
+                      "period (found automatically when omitted)", units="1",
                   sweepable=False),
             Param("kmesh", kind="int", default=WINDING_KMESH, low=4, doc=_KMESH_DOC,
                   sweepable=False),
