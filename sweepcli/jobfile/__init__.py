@@ -2,8 +2,9 @@
 
 A job file has the tables ``[job]``, ``[model]``, ``[params]``, ``[sweep]``, ``[drive]``,
 ``[measure]``, ``[confirm]`` and ``[output]`` (see README.md). :func:`load_job` checks the whole
-file once and returns a frozen :class:`Job`; every error names the file, the table and key, what was expected
-and what was given. Job files are data: expressions are parsed by :mod:`sweepcli.expressions`.
+file once and returns a frozen :class:`Job`; every error names the file, the table and key, what
+was expected and what was given. Job files are data: expressions are parsed by
+:mod:`sweepcli.expressions`.
 """
 
 from .load import build_job, load_job, read_toml
