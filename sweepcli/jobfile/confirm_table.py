@@ -72,6 +72,6 @@ def read_confirm(ck: Checker, doc: dict, measurements: list, dim: int, driven: b
     if stride is not None:
         stride = ck.number("confirm", "stride", stride, Param("stride", kind="int", low=1))
     if not across and per_region == 0 and stride is None:
-        raise ck.fail("confirm", "", "a selection: across = [invariants], per_region >= 1 or "
-                      "stride", "none of them")
+        raise JobError(f"{ck.path}: [confirm] must select cells: give across = [invariants], "
+                       "per_region >= 1 or stride; got per_region = 0 and no across or stride.")
     return Confirm(tuple(dict.fromkeys(across)), per_region, stride, tuple(chosen))
