@@ -26,6 +26,8 @@ class Reason(IntEnum):
     NOT_COMPUTED = 5  # the point was not (yet) evaluated
     FINITE_SIZE = 6  # a boundary count the largest allowed open sample cannot settle
     EDGE_GAP_CLOSED = 7  # the edges of the sample are gapless, so corner modes are not defined
+    # 8 is taken by another change under way.
+    NOT_REQUESTED = 9  # a [confirm] job did not select this cell for its boundary measurements
 
 
 @dataclass(frozen=True)

@@ -67,6 +67,10 @@ def run(ctx: typer.Context,
                    f"Resume with: {done.resume_command}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
     typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
+    if summary.chosen is not None:
+        typer.echo(f"boundary measurements: {summary.chosen} cells selected, computed on "
+                   f"{summary.confirmed}, not requested on {summary.total - summary.confirmed} "
+                   "(time and points cover both passes)")
 
 
 @app.command()

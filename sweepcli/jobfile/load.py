@@ -1,7 +1,8 @@
 """Reading a job file and assembling the :class:`~sweepcli.jobfile.spec.Job`: one pass over
 every table, each bad value a :class:`~sweepcli.errors.JobError` naming the file, the table and
 key. The small tables ``[job]``, ``[predict]`` and ``[output]`` are read here; the others in
-:mod:`.model_table`, :mod:`.sweep_tables`, :mod:`.drive_table` and :mod:`.measure_table`."""
+:mod:`.model_table`, :mod:`.sweep_tables`, :mod:`.drive_table`, :mod:`.measure_table` and
+:mod:`.confirm_table`."""
 
 from __future__ import annotations
 
@@ -19,13 +20,15 @@ from ..errors import JobError, suggest
 from ..physics.measurements import quantities_of
 from .checker import Checker
 from .checks import check_values
+from .confirm_table import read_confirm
 from .drive_table import read_drive
 from .measure_table import read_measure
 from .model_table import normalised_model, read_model
 from .spec import Job
 from .sweep_tables import finer_axis, order_expressions, read_parameters, read_refine
 
-TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "predict", "output")
+TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "confirm", "predict",
+          "output")
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
 
 
@@ -91,6 +94,10 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     driven = drive.kind != "static"
     measurements, filling, gap_tol = read_measure(ck, doc, dim, norb, custom, model, driven)
     refine = read_refine(ck, ck.table(doc, "refine"), measurements, dim, axes, driven)
+    confirm = read_confirm(ck, doc, measurements, dim, driven)
+    if confirm is not None and refine is not None:
+        raise JobError(f"{path}: [confirm] and [refine] exclude each other: the selection needs "
+                       "the bulk map on every point, which a refined sweep does not compute.")
     predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
         axes = tuple(finer_axis(a, refine.depth) for a in axes)
@@ -108,6 +115,8 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         raise JobError(f"{path}: [sweep] parameter {sorted(clash)[0]!r} has the name of a "
                        "measured quantity; rename it.")
 
+    # [confirm] is left out: which cells get the boundary measurements is no part of the job's
+    # identity, so a run resumes (and adds cells) when the selection changes.
     normalised = {
         "job": {"name": name, "title": title, "description": description},
         "model": normalised_model(model, model_t),
@@ -130,7 +139,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
               model_params=model_params, fixed=tuple(sorted(fixed.items())), derived=derived,
               axes=axes, drive=drive, measurements=tuple(measurements), filling=filling,
               gap_tol=gap_tol, output=output, normalised=tomli_w.dumps(normalised),
-              dim=dim, norb=norb, refine=refine, predict=predict, main=main)
+              dim=dim, norb=norb, refine=refine, predict=predict, main=main, confirm=confirm)
     if main is not None:
         stored = [q.name for _, qs in job.quantities() for q in qs] + [
             r.quantity.name for r in job.consistency_rules()]

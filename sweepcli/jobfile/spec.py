@@ -48,6 +48,31 @@ class Refine:
 
 
 @dataclass(frozen=True)
+class Confirm:
+    """The ``[confirm]`` table: the boundary ``measurements`` run only on the cells chosen from
+    the bulk map (both sides of every change of an ``across`` invariant along a grid axis and
+    the known neighbours of a missing value; ``per_region`` cells of each connected region of
+    equal invariants; every ``stride``-th cell along each axis). Not part of the job's sha256."""
+
+    across: tuple[str, ...]
+    per_region: int
+    stride: int | None
+    measurements: tuple[str, ...]
+
+    def normalised(self) -> dict:
+        return {"across": list(self.across), "per_region": self.per_region,
+                "measurements": list(self.measurements)} | (
+                    {"stride": self.stride} if self.stride is not None else {})
+
+    @property
+    def text(self) -> str:
+        """The table as TOML (stored in the results file's ``confirm`` attribute)."""
+        import tomli_w
+
+        return tomli_w.dumps(self.normalised())
+
+
+@dataclass(frozen=True)
 class CustomModel:
     """A model declared in the job file: matrices with coefficient expressions."""
 
@@ -153,6 +178,7 @@ class Job(Grid):
     refine: Refine | None = None
     predict: tuple[tuple[float, ...], ...] | None = None  # momenta for predicted transitions
     main: str | None = None  # [output] main: the quantity `sweepcli map` draws by default
+    confirm: Confirm | None = None  # [confirm]: boundary measurements on selected cells only
 
     @property
     def sha256(self) -> str:

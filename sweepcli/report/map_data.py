@@ -201,10 +201,41 @@ def missing_reasons(results: Results, var: str, index: tuple, mask: np.ndarray) 
     return Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
 
 
+def confirm_measurements(results: Results) -> list[str]:
+    """The measurements a ``[confirm]`` job ran on selected cells only (root attribute
+    ``confirm_measurements``); empty for other files."""
+    names = results.attrs.get("confirm_measurements", "").split(",")
+    return [n for n in names if f"{n}_reason" in results.variables]
+
+
+def not_requested(results: Results, var: str) -> np.ndarray:
+    """Grid mask where ``var`` is missing because a ``[confirm]`` job did not select the cell
+    (its measurement's reason is ``not_requested``)."""
+    rname = f"{results.variables[var].measurement}_reason"
+    if rname not in results.variables:
+        return np.zeros(results.shape, bool)
+    return results.data[rname] == int(Reason.NOT_REQUESTED)
+
+
+def confirmed(results: Results) -> np.ndarray | None:
+    """Grid mask of the cells where a ``[confirm]`` job computed a boundary measurement (its
+    reason is neither ``not_computed`` nor ``not_requested``); ``None`` for other files."""
+    names = confirm_measurements(results)
+    if not names:
+        return None
+    mask = np.zeros(results.shape, bool)
+    for m in names:
+        r = results.data[f"{m}_reason"]
+        mask |= (r != int(Reason.NOT_COMPUTED)) & (r != int(Reason.NOT_REQUESTED))
+    return mask
+
+
 @dataclass
 class Slice:
     """What a map draws: ``values`` of ``var`` on the drawn axes (NaN where missing),
-    ``not_computed`` (not evaluated yet) and ``ill`` (evaluated but missing) masks, ``levels``
+    ``not_computed`` (not evaluated yet), ``ill`` (evaluated but missing) and ``not_requested``
+    (a ``[confirm]`` job did not select the cell) masks, ``confirmed`` (the cells where a
+    ``[confirm]`` job computed its boundary measurements; ``None`` for other files), ``levels``
     (the discrete values, ``None`` for a continuous scale) and the counts for the title."""
 
     var: str
@@ -214,6 +245,8 @@ class Slice:
     levels: list[float] | None
     n_known: int
     n_total: int
+    not_requested: np.ndarray | None = None
+    confirmed: np.ndarray | None = None
 
 
 def map_slice(results: Results, var: str, index: tuple) -> Slice:
@@ -224,5 +257,8 @@ def map_slice(results: Results, var: str, index: tuple) -> Slice:
     values = data.astype(float)
     bad = (data == FILL_INT) if meta.dtype == "int32" else ~np.isfinite(values)
     values[bad | ~known] = np.nan
-    return Slice(var, values, ~known, known & bad, discrete_levels(meta.dtype, values, meta.units),
-                 n_known, results.size)
+    skipped = known & bad & not_requested(results, var)[index]
+    mask = confirmed(results)
+    return Slice(var, values, ~known, known & bad & ~skipped,
+                 discrete_levels(meta.dtype, values, meta.units), n_known, results.size,
+                 skipped, None if mask is None else mask[index] & known)

@@ -10,6 +10,7 @@ import numpy as np
 from ..store import Results
 from .map_data import Slice, disagreement, gap_variable_for, transition_rows
 from .map_style import (
+    CONFIRMED_MARK,
     HATCH_COLOUR,
     axis_label,
     level_text,
@@ -44,10 +45,15 @@ def draw_cut(ax, results: Results, s: Slice, index: tuple, axis,
         ax.plot(x, values, "o-", ms=3, color="tab:blue")
     # Missing points on the bottom edge of the axes, apart from every value level.
     for mask, style in ((s.ill, dict(marker="x", color="crimson")),
-                        (s.not_computed, dict(marker="s", mfc="none", mec=HATCH_COLOUR))):
-        if mask.any():
+                        (s.not_computed, dict(marker="s", mfc="none", mec=HATCH_COLOUR)),
+                        (s.not_requested, dict(marker="|", color=HATCH_COLOUR))):
+        if mask is not None and mask.any():
             ax.plot(x[mask], np.full(int(mask.sum()), 0.04), ls="", ms=5, clip_on=False,
                     transform=ax.get_xaxis_transform(), **style)
+    if s.confirmed is not None and s.confirmed.any():  # [confirm]: boundary measured here
+        ax.plot(x[s.confirmed], np.full(int(s.confirmed.sum()), 0.97), ls="", ms=5,
+                clip_on=False, transform=ax.get_xaxis_transform(),
+                **dict(CONFIRMED_MARK, marker="v", mfc="k"))
     handles += missing_handles(results, s, index, one_d=True)
     if axis.spacing == "log":
         ax.set_xscale("log")

@@ -16,6 +16,9 @@ MISSING_COLOUR = "#9a9a9a"  # ill-defined: gap closed, not converged, failed
 NOT_COMPUTED_FACE = "#ffffff"  # not evaluated (yet): white, hatched
 NOT_COMPUTED_HATCH = "////"
 HATCH_COLOUR = "#8c8c8c"
+NOT_REQUESTED_FACE = "#ffffff"  # a [confirm] job did not select the cell: white, dotted
+NOT_REQUESTED_HATCH = "..."
+CONFIRMED_MARK = dict(marker="s", mfc="none", mec="k", mew=0.7)  # boundary measured here
 ZERO_COLOUR = "#e9e4d4"  # the trivial phase: a neutral that is neither grey nor white
 #: |value| -> distance from the centre of the diverging red-blue scale (0.5 = its darkest end).
 #: Fixed, so that a value has one colour in every map; |value| >= 4 share the darkest shade.
@@ -63,15 +66,17 @@ def value_label(var: str, meta) -> str:
     return var + (f" [{meta.units}]" if meta.units not in ("", "1") else "")
 
 
-def hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray) -> None:
-    """White hatched rectangles over the cells of ``mask`` (shape (nx, ny)): not computed."""
+def hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray,
+                hatch: str = NOT_COMPUTED_HATCH) -> None:
+    """White hatched rectangles over the cells of ``mask`` (shape (nx, ny)): not computed
+    (``////``) or, with ``hatch=NOT_REQUESTED_HATCH``, not requested (dotted)."""
     from matplotlib.collections import PatchCollection
     from matplotlib.patches import Rectangle
 
     rects = [Rectangle((xe[i], ye[j]), xe[i + 1] - xe[i], ye[j + 1] - ye[j])
              for i, j in np.argwhere(mask)]
     ax.add_collection(PatchCollection(rects, facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
-                                      linewidth=0, hatch=NOT_COMPUTED_HATCH, zorder=1.5))
+                                      linewidth=0, hatch=hatch, zorder=1.5))
 
 
 def missing_handles(results: Results, s: Slice, index: tuple, one_d: bool) -> list:
@@ -84,9 +89,19 @@ def missing_handles(results: Results, s: Slice, index: tuple, one_d: bool) -> li
         text = missing_text(missing_reasons(results, s.var, index, s.ill))
         out.append(Line2D([], [], ls="", marker="x", color="crimson", label=text) if one_d
                    else Patch(facecolor=MISSING_COLOUR, label=text))
+    if s.not_requested is not None and s.not_requested.any():
+        text = f"not requested: [confirm] did not select the cell ({int(s.not_requested.sum())})"
+        out.append(Line2D([], [], ls="", marker="|", color=HATCH_COLOUR, label=text) if one_d
+                   else Patch(facecolor=NOT_REQUESTED_FACE, edgecolor=HATCH_COLOUR,
+                              hatch=NOT_REQUESTED_HATCH, label=text))
     if s.not_computed.any():
         text = f"not computed yet ({int(s.not_computed.sum())})"
         out.append(Line2D([], [], ls="", marker="s", mfc="none", mec=HATCH_COLOUR, label=text)
                    if one_d else Patch(facecolor=NOT_COMPUTED_FACE, edgecolor=HATCH_COLOUR,
                                        hatch=NOT_COMPUTED_HATCH, label=text))
+    if s.confirmed is not None and s.confirmed.any():
+        text = f"boundary measured here ([confirm]: {int(s.confirmed.sum())} cells)"
+        out.append(Line2D([], [], ls="", ms=5, label=text,
+                          **(dict(CONFIRMED_MARK, marker="v", mfc="k") if one_d
+                             else CONFIRMED_MARK)))
     return out

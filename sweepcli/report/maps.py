@@ -5,9 +5,12 @@ tied to their values, the same in every map of every file: 0 neutral, positive v
 negative values blue, deeper with magnitude (:func:`.map_style.value_colour`), with a colour bar
 that has one tick per value. Gaps get a continuous scale. Points where a quantity is ill-defined
 are grey; points not computed yet (an unfinished run) are hatched white, and the title counts
-them. Grid nodes next to a bulk-gap closing and predicted closings are marked over every 2D map
-so that phase changes can be compared with gap closings. A 1D sweep draws a line plot with the
-same colours (:mod:`.map_line`). What is drawn is chosen in :mod:`.map_data`.
+them. In a ``[confirm]`` file, cells whose boundary measurements were not requested are dotted
+white (not grey: nothing is ill-defined there) and the cells where they were computed carry a
+small open square on every map. Grid nodes next to a bulk-gap closing and predicted closings are
+marked over every 2D map so that phase changes can be compared with gap closings. A 1D sweep
+draws a line plot with the same colours (:mod:`.map_line`). What is drawn is chosen in
+:mod:`.map_data`.
 """
 
 from __future__ import annotations
@@ -31,7 +34,9 @@ from .map_data import (
 )
 from .map_line import draw_cut
 from .map_style import (
+    CONFIRMED_MARK,
     MISSING_COLOUR,
+    NOT_REQUESTED_HATCH,
     axis_label,
     hatch_cells,
     level_text,
@@ -113,6 +118,11 @@ def _draw_mesh(ax, results: Results, s: Slice, index: tuple, xa, ya,
     bar.set_label(value_label(s.var, meta))
     if s.not_computed.any():
         hatch_cells(ax, xe, ye, s.not_computed)
+    if s.not_requested is not None and s.not_requested.any():
+        hatch_cells(ax, xe, ye, s.not_requested, hatch=NOT_REQUESTED_HATCH)
+    if s.confirmed is not None and s.confirmed.any():
+        gx, gy = np.meshgrid(xa.values, ya.values, indexing="ij")
+        ax.plot(gx[s.confirmed], gy[s.confirmed], ls="", ms=5, zorder=3, **CONFIRMED_MARK)
     handles += missing_handles(results, s, index, one_d=False)
     if gap_name is not None:
         # Evaluated points only: filled-in values of a refined file are flat by construction.

@@ -5,7 +5,9 @@ grid is wider than the terminal); the first free axis runs left to right, the se
 top, as on a plotted map. Every value gets its own character, so the picture reads without
 colour; ANSI colours are added only on request (the CLI asks only when stdout is a terminal).
 A 1D sweep prints a strip of the same characters with a table of the runs of equal value
-(integers) or a sparkline with its range (floats).
+(integers) or a sparkline with its range (floats). In a ``[confirm]`` file, cells whose boundary
+measurements were not requested get ``-`` (missing ones ``·``), and a second picture on the same
+axes marks with ``+`` the cells where they were computed.
 """
 
 from __future__ import annotations
@@ -21,11 +23,20 @@ import numpy as np
 from ..schema import Reason
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
-from .map_data import check_variable, discrete_levels, missing_reasons, select
+from .map_data import (
+    check_variable,
+    confirmed,
+    discrete_levels,
+    missing_reasons,
+    not_requested,
+    select,
+)
 from .map_style import level_text
 
 MISSING_GLYPH = "·"
 NOT_COMPUTED_GLYPH = "?"
+NOT_REQUESTED_GLYPH = "-"  # a [confirm] job did not select the cell
+CONFIRMED_GLYPH = "+"  # a [confirm] job computed its boundary measurements here
 ZERO_GLYPH = "░"  # the trivial phase is drawn lightest
 LEVEL_GLYPHS = ("█", "▒", "#", "%", "@", "&", "$", "X", "O", "W", "M", "=", "+", "o", "x", "*")
 RAMP_GLYPHS = ("▁", "▂", "▃", "▄", "▅", "▆", "▇", "█")  # floats: low to high
@@ -266,7 +277,8 @@ def code_variable(results: Results, var: str, index: tuple) -> Coded:
                          f"{fmt(edges[k + 1])}{unit}" if nlev > 1 else f"{var} = {fmt(lo)}{unit}")
                 levels.append(Level(g, label, int(sel.sum()),
                                     RAMP_COLOURS[k] if nlev > 1 else RAMP_COLOURS[-1]))
-    ill = known & bad
+    skipped = known & bad & not_requested(results, var)[index]
+    ill = known & bad & ~skipped
     if ill.any():
         counts = missing_reasons(results, var, index, ill)
         if len(counts) > 1:
@@ -275,11 +287,33 @@ def code_variable(results: Results, var: str, index: tuple) -> Coded:
             label = "missing" + ("" if "missing" in counts else f" ({next(iter(counts))})")
         codes[ill] = len(levels)
         levels.append(Level(MISSING_GLYPH, label, int(ill.sum()), MISSING_COLOUR))
+    if skipped.any():
+        codes[skipped] = len(levels)
+        levels.append(Level(NOT_REQUESTED_GLYPH, "not requested ([confirm] did not select it)",
+                            int(skipped.sum()), NOT_COMPUTED_COLOUR))
     if (~known).any():
         codes[~known] = len(levels)
         levels.append(Level(NOT_COMPUTED_GLYPH, "not computed yet", int((~known).sum()),
                             NOT_COMPUTED_COLOUR))
     return Coded(codes, levels, ramp)
+
+
+def confirmed_grid(results: Results, index: tuple) -> Coded | None:
+    """Codes of where a ``[confirm]`` job computed its boundary measurements (``+``), did not
+    request them (``-``) or has not reached the cell yet (``?``); ``None`` for other files."""
+    mask = confirmed(results)
+    if mask is None:
+        return None
+    mask = mask[index]
+    known = results.done[index].astype(bool)
+    codes = np.where(mask, 0, np.where(known, 1, 2))
+    levels = [Level(CONFIRMED_GLYPH, "boundary measured here (confirmed)", int(mask.sum()),
+                    "1"),
+              Level(NOT_REQUESTED_GLYPH, "not requested", int((codes == 1).sum()),
+                    NOT_COMPUTED_COLOUR),
+              Level(NOT_COMPUTED_GLYPH, "not computed yet", int((codes == 2).sum()),
+                    NOT_COMPUTED_COLOUR)]
+    return Coded(codes, levels)
 
 
 def _runs(coded: Coded, values: np.ndarray) -> list[str]:
@@ -367,6 +401,24 @@ def terminal_map(results: Results, var: str | None = None, at: dict[str, float] 
     for lv in coded.levels:
         g = f"\x1b[{lv.colour}m{lv.glyph}{RESET}" if colour else lv.glyph
         lines.append(f"  {g}  {lv.label} ({lv.count} point{'s' if lv.count != 1 else ''})")
+    marks = confirmed_grid(results, index) if codes.ndim else None
+    if marks is not None:
+        # [confirm]: a second picture on the same axes marks the confirmed cells.
+        lines += ["", "boundary measurements ([confirm]):"]
+        xa = results.axes[free[0]]
+        ya = results.axes[free[1]] if len(free) > 1 else None
+        grid, _ = render_grid(marks.codes.reshape(-1, 1) if ya is None else marks.codes,
+                              [lv.glyph for lv in marks.levels],
+                              Axis(_axis_label(xa), xa.values),
+                              None if ya is None else Axis(_axis_label(ya), ya.values), width,
+                              height=1 if ya is None else height,
+                              colours=[lv.colour for lv in marks.levels] if colour else None,
+                              row_label="confirmed")
+        lines += grid
+        for lv in marks.levels:
+            if lv.count:
+                lines.append(f"  {lv.glyph}  {lv.label} ({lv.count} point"
+                             f"{'s' if lv.count != 1 else ''})")
     if len(free) == 1:
         axis = results.axes[free[0]]
         lines.append("")

@@ -21,7 +21,9 @@ class BatchPlan:
     """An array job's shape and size.
 
     ``seconds_per_point`` is the time the wall time was sized with and ``basis`` says where it
-    came from (given, estimated, or the larger of the estimate and one timed point).
+    came from (given, estimated, or the larger of the estimate and one timed point). A
+    ``[confirm]`` job's tasks each compute the bulk measurements on every point (the selection
+    needs the whole map) and the boundary ones on about ``cells_per_task`` selected cells.
     """
 
     tasks: int
@@ -31,6 +33,7 @@ class BatchPlan:
     points_per_task: int
     seconds_per_point: float
     basis: str
+    cells_per_task: int | None = None
 
 
 def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = None,
@@ -40,7 +43,9 @@ def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = N
     The per-point time is ``seconds_per_point`` if given; otherwise the estimate
     (:func:`~sweepcli.run.cost.estimate`), or the larger of the estimate and ``measured`` (the
     time of one evaluated grid point): one point may be an easy one, and the estimate is for a
-    typical point.
+    typical point. For a ``[confirm]`` job that time is split between bulk and boundary
+    measurements as in the estimate, and a task is sized for the bulk on every point plus its
+    share of the planned selected cells (:func:`~sweepcli.run.cost.selected_cells`).
     """
     cost = estimate(job)
     if seconds_per_point is not None:
@@ -52,9 +57,17 @@ def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = N
         basis = (f"the larger of the estimate ({cost.seconds_per_point:.3g} s) and the timed "
                  f"middle grid point ({measured:.3g} s)")
     per_task = math.ceil(job.size / tasks)
-    seconds = SAFETY * per_point * per_task / workers + MARGIN_S
+    cells = None
+    if cost.cells is None:
+        work = per_point * per_task
+    else:
+        scale = per_point / cost.seconds_per_point if cost.seconds_per_point > 0 else 1.0
+        cells = math.ceil(cost.cells[1] / tasks)
+        work = scale * (cost.bulk_seconds * job.size + cost.boundary_seconds * cells)
+    seconds = SAFETY * work / workers + MARGIN_S
     memory = math.ceil((cost.memory_bytes * workers) / 2**20) + 512
-    return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task, per_point, basis)
+    return BatchPlan(tasks, workers, int(math.ceil(seconds)), memory, per_task, per_point, basis,
+                     cells)
 
 
 def _hms(seconds: int) -> str:
@@ -81,6 +94,13 @@ def scripts(job: Job, job_path: str, p: BatchPlan) -> dict[str, str]:
             f"# Wall time: {SAFETY:g} x {p.seconds_per_point:.3g} s "
             f"per point ({p.basis}) + {MARGIN_S // 60} min;\n# memory from the estimate. Edit "
             "account and partition/queue below.\n")
+    if p.cells_per_task is not None:
+        head += ("# [confirm]: every task computes the bulk measurements on all "
+                 f"{job.size} points (the\n# selection needs the whole bulk map) and the "
+                 f"boundary measurements on its own selected\n# cells, sized for about "
+                 f"{p.cells_per_task} per task; a task that runs out of time saves its work,\n"
+                 "# and resubmitting it continues (--resume). Merging gives the file of one "
+                 "run.\n")
     submit = (f"# Submit:  jid=$(sbatch --parsable {name}.slurm.sh) && "
               f"sbatch --dependency=afterok:$jid {name}.merge.slurm.sh\n")
     slurm = f"""#!/bin/bash

@@ -25,6 +25,11 @@ meshes themselves):
   depends on how far a count doubles its sample, which varies across the grid); peak memory is
   that of the largest sample a count may double to.
 
+A ``[confirm]`` job (:mod:`sweepcli.run.confirm`) runs its boundary measurements only on the
+cells selected from the bulk map, which is not known before the run: the estimate is the bulk
+measurements on every point plus the boundary ones on a range of cells, from a lower bound
+(stride and one region) through a planned figure to every cell (:func:`selected_cells`).
+
 The probes are a few grid points (:func:`estimate`); points close to a transition walk further
 meshes and levels (a Rudner winding with a gap of 0.02 takes about five times longer), so the
 estimate is for a typical point; ``batch`` also times one grid point by default.
@@ -48,21 +53,73 @@ BASE_MEMORY = 200 * 2**20
 SAMPLE_PROBE_SECONDS = 3.0
 
 
+#: A ``[confirm]`` estimate plans for this many phase boundaries crossing the grid.
+PLANNED_BOUNDARIES = 3
+
+
 @dataclass
 class Cost:
+    """Seconds per grid point (every measurement), grid points and peak memory per worker.
+
+    For a ``[confirm]`` job, ``boundary_seconds`` is the part of ``seconds_per_point`` that the
+    confirmed (boundary) measurements take at a point, and ``cells`` the selected cells as
+    ``(at least, planned, at most)`` (:func:`selected_cells`).
+    """
+
     seconds_per_point: float
     points: int
     memory_bytes: int
+    boundary_seconds: float = 0.0
+    cells: tuple[int, int, int] | None = None
+
+    @property
+    def bulk_seconds(self) -> float:
+        return self.seconds_per_point - self.boundary_seconds
+
+    def core_seconds_for(self, cells: int) -> float:
+        """Bulk on every point plus boundary on ``cells`` cells (a ``[confirm]`` job)."""
+        return self.bulk_seconds * self.points + self.boundary_seconds * cells
 
     @property
     def core_seconds(self) -> float:
-        return self.seconds_per_point * self.points
+        if self.cells is None:
+            return self.seconds_per_point * self.points
+        return self.core_seconds_for(self.cells[1])
 
     def format(self) -> str:
-        return (f"about {self.seconds_per_point:.2g} s per point, {self.core_seconds / 3600:.2g} "
-                f"core-hours in all; peak memory per worker about "
-                f"{self.memory_bytes / 2**20:.0f} MiB (from the meshes and probes of three "
-                "grid points; points near transitions take longer)")
+        memory = (f"peak memory per worker about {self.memory_bytes / 2**20:.0f} MiB (from the "
+                  "meshes and probes of three grid points; points near transitions take longer)")
+        if self.cells is None:
+            return (f"about {self.seconds_per_point:.2g} s per point, "
+                    f"{self.core_seconds / 3600:.2g} core-hours in all; {memory}")
+        low, planned, high = self.cells
+        hours = [self.core_seconds_for(n) / 3600 for n in self.cells]
+        return (f"about {self.bulk_seconds:.2g} s per point for the bulk measurements on all "
+                f"{self.points} points, plus {self.boundary_seconds:.2g} s per selected cell for "
+                f"the boundary measurements; selected cells: at least {low}, about {planned} if "
+                f"{PLANNED_BOUNDARIES} phase boundaries cross the grid, at most {high} (every "
+                f"cell); {hours[0]:.2g} to {hours[2]:.2g} core-hours (about {hours[1]:.2g}); "
+                f"{memory}")
+
+
+def selected_cells(job: Job) -> tuple[int, int, int]:
+    """``(at least, planned, at most)`` cells a ``[confirm]`` selection may hold, before the bulk
+    map is known.
+
+    At least: the ``stride`` cells, or ``per_region`` cells of one region, whichever is more.
+    Planned: the stride cells, ``per_region`` cells in each of ``PLANNED_BOUNDARIES + 1``
+    regions and, with ``across``, two cells on each grid line that a phase boundary crosses,
+    for ``PLANNED_BOUNDARIES`` boundaries across the grid (a boundary across the shortest axis
+    crosses ``points / shortest`` lines). At most: every point.
+    """
+    c, size = job.confirm, job.size
+    strided = math.prod(math.ceil(n / c.stride) for n in job.shape) if c.stride else 0
+    low = min(size, max(strided, c.per_region))
+    lines = size // max(min((n for n in job.shape if n > 1), default=1), 1)
+    planned = strided + c.per_region * (PLANNED_BOUNDARIES + 1)
+    if c.across:
+        planned += 2 * lines * PLANNED_BOUNDARIES
+    return low, min(size, max(low, planned)), size
 
 
 def _seconds(f: Callable[[], object]) -> float:
@@ -209,7 +266,12 @@ def estimate(job: Job) -> Cost:
     per_point += sum(sum(t) / len(t) for t in sample_seconds.values())
     # Eigenvectors, Floquet operators and their products on the largest mesh, complex128.
     peak = max(16 * largest * job.norb ** 2 * 8, sample_peak)
-    return Cost(per_point, job.size, int(peak + BASE_MEMORY))
+    if job.confirm is None:
+        return Cost(per_point, job.size, int(peak + BASE_MEMORY))
+    # Open samples are timed on their own above; a confirmed one without a k-mesh is too.
+    boundary = sum(sum(t) / len(t) for n, t in sample_seconds.items()
+                   if n in job.confirm.measurements)
+    return Cost(per_point, job.size, int(peak + BASE_MEMORY), boundary, selected_cells(job))
 
 
 def time_one_point(job: Job) -> float:

@@ -46,4 +46,14 @@ def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
     if job.refine is not None:
         attrs["refine_by"] = job.refine.by
         attrs["refine_stride"] = str(job.refine.stride)
+    attrs.update(confirm_attrs(job))
     return new_results(axes, variables, attrs, argv)
+
+
+def confirm_attrs(job: Job) -> dict[str, str]:
+    """Root attributes of a ``[confirm]`` job: the table as TOML and the confirmed
+    measurements, which reports read to tell not-requested cells from missing ones; empty
+    strings for a job without the table (a resumed file then says so)."""
+    c = job.confirm
+    return {"confirm": c.text if c else "",
+            "confirm_measurements": ",".join(c.measurements) if c else ""}

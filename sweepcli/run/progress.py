@@ -22,8 +22,9 @@ class Progress:
     """Counts finished points of ``total``; ``already`` were done before this run started."""
 
     def __init__(self, total: int, already: int = 0, *, stream=None, interval: float = 30.0,
-                 enabled: bool = True) -> None:
+                 enabled: bool = True, label: str = "") -> None:
         self.total, self.already = total, already
+        self.label = label  # e.g. "pass 1 of 2, bulk": which pass of a [confirm] run
         self.count = already
         self.stream = stream if stream is not None else sys.stderr
         self.interval = interval
@@ -33,6 +34,7 @@ class Progress:
         if enabled and getattr(self.stream, "isatty", lambda: False)():
             from tqdm import tqdm
             self.bar = tqdm(total=total, initial=already, unit="pt", file=self.stream,
+                            desc=label or None,
                             dynamic_ncols=True, smoothing=0.1)
 
     def update(self, n: int) -> None:
@@ -54,7 +56,8 @@ class Progress:
         stamp = datetime.now().strftime("%Y-%m-%d %H:%M:%S")
         pct = 100.0 * self.count / self.total if self.total else 100.0
         eta_s = _duration(eta) if eta == eta else "?"
-        return (f"[{stamp}] {self.count}/{self.total} points ({pct:.0f}%), "
+        what = f" ({self.label})" if self.label else ""
+        return (f"[{stamp}] {self.count}/{self.total} points{what} ({pct:.0f}%), "
                 f"{rate:.3g} points/s, elapsed {_duration(elapsed)}, ETA {eta_s}")
 
     def close(self) -> None:

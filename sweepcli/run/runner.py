@@ -18,6 +18,7 @@ import numpy as np
 from ..errors import SweepError
 from ..jobfile import Job
 from ..store import Results
+from .confirm import NOT_COMPUTED, NOT_REQUESTED, reopen_not_requested, run_confirmed
 from .executors import make_executor
 from .progress import Progress
 from .refine import base_indices, level_indices
@@ -35,6 +36,10 @@ class RunSummary:
     failed: int
     interrupted: bool
     seconds: float
+    # [confirm] runs: cells chosen for the boundary measurements (of the points this run
+    # completes) and cells where they are computed; None for other jobs.
+    chosen: int | None = None
+    confirmed: int | None = None
 
 
 def pending_indices(results: Results, selection: np.ndarray | None = None) -> np.ndarray:
@@ -58,22 +63,22 @@ def default_chunk_size(n_points: int, workers: int) -> int:
     return max(1, min(64, math.ceil(n_points / (8 * workers))))
 
 
-def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int | None = None,
-              checkpoint: Callable[[Results], None] | None = None, checkpoint_every: float = 60.0,
-              progress: bool = True, selection: np.ndarray | None = None,
-              executor=None) -> RunSummary:
-    """Evaluate every pending point of ``job`` into ``results``.
+def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, tuple | None]],
+                    store: Callable[[int, dict, str], None], *, total: int, already: int,
+                    workers: int = 1, chunk_size: int | None = None,
+                    checkpoint: Callable[[Results], None] | None = None,
+                    checkpoint_every: float = 60.0, progress: bool = True, executor=None,
+                    label: str = "") -> bool:
+    """Evaluate ``groups`` (``(flat indices, measurement names or None for all)``) through the
+    executor, passing each record to ``store``; returns whether the run was interrupted.
 
     ``checkpoint(results)`` is called every ``checkpoint_every`` seconds, at the end and on
     interruption; SIGTERM is turned into the same clean stop as Ctrl-C.
     """
-    start = time.monotonic()
-    todo = pending_indices(results, selection)
-    total = len(todo) if selection is None else len(selection)
-    already = total - len(todo)
     executor = executor or make_executor(workers)
-    size = chunk_size or default_chunk_size(len(todo), executor.workers)
-    bar = Progress(total, already, enabled=progress)
+    n_todo = sum(len(g) for g, _ in groups)
+    size = chunk_size or default_chunk_size(n_todo, executor.workers)
+    bar = Progress(total, already, enabled=progress, label=label)
     interrupted = False
     last = time.monotonic()
     previous = signal.getsignal(signal.SIGTERM)
@@ -87,10 +92,10 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
         previous = None
     died = None
     try:
-        tasks = ((job, c) for c in chunks(todo, size))
+        tasks = ((job, c, only) for todo, only in groups for c in chunks(todo, size))
         for records in executor.imap(evaluate_chunk, tasks):
             for index, values, failure in records:
-                results.record(index, values, failure)
+                store(index, values, failure)
             bar.update(len(records))
             if checkpoint is not None and time.monotonic() - last >= checkpoint_every:
                 checkpoint(results)
@@ -110,6 +115,21 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
     if died is not None:
         raise WorkerDied(f"a worker process died ({died}); {results.n_done} finished points are "
                          "saved; rerun with --resume to continue.")
+    return interrupted
+
+
+def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int | None = None,
+              checkpoint: Callable[[Results], None] | None = None, checkpoint_every: float = 60.0,
+              progress: bool = True, selection: np.ndarray | None = None,
+              executor=None) -> RunSummary:
+    """Evaluate every pending point of ``job`` into ``results`` (see :func:`evaluate_groups`)."""
+    start = time.monotonic()
+    todo = pending_indices(results, selection)
+    total = results.size if selection is None else len(selection)
+    interrupted = evaluate_groups(
+        job, results, [(todo, None)], results.record, total=total, already=total - len(todo),
+        workers=workers, chunk_size=chunk_size, checkpoint=checkpoint,
+        checkpoint_every=checkpoint_every, progress=progress, executor=executor)
     sel_done = results.done.ravel() if selection is None else results.done.ravel()[selection]
     failed = results.failure.ravel() if selection is None else results.failure.ravel()[selection]
     return RunSummary(done=int(sel_done.sum()), total=total,
@@ -117,10 +137,43 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
                       seconds=time.monotonic() - start)
 
 
+def run_confirm_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
+                    **options) -> RunSummary:
+    """A job with ``[confirm]``: bulk on every point, then boundary on the chosen cells of
+    ``selection`` (a shard's points; all by default); see :mod:`sweepcli.run.confirm`."""
+    start = time.monotonic()
+
+    def run_groups(groups, store, total, already, label) -> bool:
+        return evaluate_groups(job, results, groups, store, total=total, already=already,
+                               label=label, **options)
+
+    interrupted, chosen, own = run_confirmed(job, results, share=selection,
+                                             evaluate_groups=run_groups)
+    done = results.done.ravel()[own]
+    failed = results.failure.ravel()[own]
+    confirmed = None
+    if chosen is not None:
+        computed = np.zeros(results.size, bool)
+        for m in job.confirm.measurements:
+            r = results.data[f"{m}_reason"].ravel()
+            computed |= (r != NOT_COMPUTED) & (r != NOT_REQUESTED)
+        confirmed = int((computed & own).sum())
+    return RunSummary(done=int(done.sum()), total=int(own.sum()),
+                      failed=int(np.count_nonzero(failed != "")), interrupted=interrupted,
+                      seconds=time.monotonic() - start,
+                      chosen=None if chosen is None else int((chosen & own).sum()),
+                      confirmed=confirmed)
+
+
 def run_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
             **options) -> RunSummary:
-    """Run a job: the whole grid (or ``selection``), or, with ``[refine]``, level by level."""
+    """Run a job: the whole grid (or ``selection``); with ``[refine]``, level by level; with
+    ``[confirm]``, bulk then boundary (:func:`run_confirm_job`)."""
+    if job.confirm is not None:
+        return run_confirm_job(job, results, selection=selection, **options)
     if job.refine is None:
+        # A file written with [confirm]: without it every cell is chosen.
+        reopen_not_requested(results, selection)
         return run_sweep(job, results, selection=selection, **options)
     if selection is not None:
         raise SweepError("a job with [refine] cannot be sharded: which points a level needs "

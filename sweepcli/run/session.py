@@ -19,7 +19,7 @@ from ..jobfile import Job, job_from_results, load_job
 from ..store import Results
 from ..store.merge import MergeReport, merge_results
 from ..store.provenance import now
-from .layout import results_for_job
+from .layout import confirm_attrs, results_for_job
 from .runner import RunSummary, run_job
 from .shards import Shard, parse_shard
 
@@ -92,7 +92,9 @@ class RunSession:
                 say(f"{job.path}: {job.title}; {results.n_done} of {results.size} points done, "
                     f"{todo} to go" + (f" (shard {part.label()})" if part else "")
                     + f"; {executor.workers if executor else self.workers} worker(s); "
-                    f"measurements: {', '.join(n for n, _ in job.measurements)}; -> {out}")
+                    f"measurements: {', '.join(n for n, _ in job.measurements)}"
+                    + (f" ({', '.join(job.confirm.measurements)} on selected cells only)"
+                       if job.confirm else "") + f"; -> {out}")
             summary = run_job(job, results, workers=self.workers, chunk_size=self.chunk_size,
                               checkpoint=lambda r: r.write(out),
                               checkpoint_every=self.checkpoint_every, progress=self.progress,
@@ -127,6 +129,9 @@ class RunSession:
                 raise SweepError(f"{out}: holds shard {results.attrs.get('shard') or 'none'!r}, "
                                  f"not {part.label() if part else 'none'!r}; refusing to resume.")
             results.attrs["command_line"] += " ; " + " ".join(self.argv)
+            # [confirm] is no part of the sha256: the file records the selection last run with.
+            results.attrs["job_text"] = job.text
+            results.attrs.update(confirm_attrs(job))
             return results
         if out.exists() and not self.force:
             raise SweepError(f"{out}: exists; refusing to overwrite it. Use --force to start "

@@ -10,16 +10,20 @@ from ..schema import Reason
 Record = tuple[int, dict, str]
 
 
-def evaluate_point(job: Job, index: int) -> Record:
-    """All measurements of flat grid point ``index``: ``(index, values, failure message)``.
+def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) -> Record:
+    """All measurements of flat grid point ``index`` (or those named in ``only``):
+    ``(index, values, failure message)``.
 
     A measurement that raises is recorded as missing with ``Reason.FAILED`` and its message, and
-    the other measurements (and the sweep) go on.
+    the other measurements (and the sweep) go on. The consistency flags need every measurement,
+    so they are added only without ``only`` (a ``[confirm]`` run adds them in the parent).
     """
     point = job.point(index)
     values: dict = {}
     failures = []
     for name, options in job.measurements:
+        if only is not None and name not in only:
+            continue
         try:
             result = dict(MEASUREMENTS[name].func(point, **dict(options)))
             reason = result.pop("reason")
@@ -30,9 +34,10 @@ def evaluate_point(job: Job, index: int) -> Record:
             failures.append(f"{name}: {type(exc).__name__}: {exc}")
         values.update(result)
         values[f"{name}_reason"] = int(reason)
-    values.update(evaluate(job.consistency_rules(), values))
+    if only is None:
+        values.update(evaluate(job.consistency_rules(), values))
     return index, values, "; ".join(failures)
 
 
-def evaluate_chunk(job: Job, indices) -> list[Record]:
-    return [evaluate_point(job, int(i)) for i in indices]
+def evaluate_chunk(job: Job, indices, only: tuple[str, ...] | None = None) -> list[Record]:
+    return [evaluate_point(job, int(i), only) for i in indices]

@@ -79,8 +79,14 @@ class Results(Grid):
     def axis(self, name: str) -> AxisData:
         return next(a for a in self.axes if a.name == name)
 
-    def record(self, index: int, values: Mapping[str, object], failure: str = "") -> None:
-        """Store the values of flat grid point ``index``; its completion bit is set last."""
+    def record(self, index: int, values: Mapping[str, object], failure: str = "", *,
+               complete: bool = True) -> None:
+        """Store the values of flat grid point ``index``; its completion bit is set last.
+
+        ``complete=False`` stores part of the point's measurements (a ``[confirm]`` run's bulk
+        or boundary pass): ``failure`` is added to the point's earlier message and ``done`` is
+        left for the caller, who knows whether the point is complete.
+        """
         multi = np.unravel_index(index, self.shape)
         for name, value in values.items():
             var = self.variables[name]
@@ -88,8 +94,11 @@ class Results(Grid):
                                  and np.isnan(value)):
                 value = var.missing()
             self.data[name][multi] = value
-        self.failure[multi] = failure
-        self.done[multi] = 1
+        if complete:
+            self.failure[multi] = failure
+            self.done[multi] = 1
+        elif failure:
+            self.failure[multi] = "; ".join(m for m in (self.failure[multi], failure) if m)
 
     # ----------------------------------------------------------------- files
     def write(self, path: str | Path) -> None:

@@ -52,7 +52,7 @@ def test_malformed_toml_names_line_and_column(tmp_path):
 def test_unknown_table_suggests(tmp_path):
     msg = run_bad(tmp_path, GOOD.replace("[sweep]", "[sweeps]"))
     assert msg == ("JOB: unknown table [sweeps] (allowed: job, model, params, sweep, refine, "
-                   "drive, measure, predict, output). Did you mean 'sweep'?")
+                   "drive, measure, confirm, predict, output). Did you mean 'sweep'?")
 
 
 def test_unknown_parameter_suggests(tmp_path):
