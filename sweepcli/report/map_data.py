@@ -192,12 +192,15 @@ def disagreement(results: Results) -> np.ndarray:
 
 def missing_reasons(results: Results, var: str, index: tuple, mask: np.ndarray) -> Counter:
     """Reason names (``"gap_closed"``, ...) of the points of ``mask`` (on the drawn slice) where
-    ``var`` is missing although evaluated, counted; ``{"missing": n}`` without a reason variable."""
-    meta = results.variables[var]
-    rname = f"{meta.measurement}_reason"
-    if rname not in results.variables or rname == var:
+    ``var`` is missing although evaluated, counted; ``{"missing": n}`` without a reason variable.
+
+    The reason is read from the reason variables ``var`` links to
+    (:meth:`~sweepcli.store.Results.reason_codes`: its own gap's reason, e.g.
+    ``corner_modes_pi_reason``; ``<measurement>_reason`` in older files)."""
+    codes = results.reason_codes(var, lambda n: display_values(results, n)[0])
+    if codes is None:
         return Counter({"missing": int(mask.sum())})
-    reasons = display_values(results, rname)[0][index][mask]
+    reasons = codes[index][mask]
     return Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
 
 

@@ -13,6 +13,7 @@ from . import DRIVES
 from .base import (
     TIME_RTOL,
     Factor,
+    NoSymmetricTime,
     SegmentDrive,
     check_compatible,
     check_period,
@@ -179,7 +180,7 @@ class StepDrive(SegmentDrive):
 
         Raises
         ------
-        ValueError
+        NoSymmetricTime (a ValueError)
             If no segment centre or boundary is a symmetry point.
         """
         T = self.period
@@ -201,5 +202,5 @@ class StepDrive(SegmentDrive):
                    for m in mids):
                 return ts, (ts + T / 2) % T
         what = "chiral-symmetric" if g is not None else "time-reversal-symmetric"
-        raise ValueError(f"this step drive has no {what} starting time: no segment centre or "
-                         f"boundary is a mirror point of the sequence of steps")
+        raise NoSymmetricTime(f"this step drive has no {what} starting time: no segment centre "
+                              f"or boundary is a mirror point of the sequence of steps")
