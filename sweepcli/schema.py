@@ -2,8 +2,8 @@
 
 Measurements (physics) return a :class:`Reason` beside their values and declare their outputs
 as :class:`Quantity`; the job file and the runner pass them on; the store writes them (the
-reason codes become the ``flag_values`` of each ``<measurement>_reason`` variable, see
-results-schema.md); reports read them back. The job and the stored results both span a grid
+reason codes become the ``flag_values`` of each reason variable, see :func:`reason_variable`
+and results-schema.md); reports read them back. The job and the stored results both span a grid
 from their axes, whose shape and size :class:`Grid` computes for both. Standard library only,
 so that any layer may import it without pulling in another.
 """
@@ -16,7 +16,8 @@ from enum import IntEnum
 
 
 class Reason(IntEnum):
-    """Why a quantity at a point is missing; stored as ``<measurement>_reason`` (uint8)."""
+    """Why a quantity at a point is missing; stored in a reason variable (uint8), one per
+    measurement or one per gap (:func:`reason_variable`)."""
 
     OK = 0
     GAP_CLOSED = 1  # the gap the invariant needs is below the tolerance
@@ -26,18 +27,31 @@ class Reason(IntEnum):
     NOT_COMPUTED = 5  # the point was not (yet) evaluated
     FINITE_SIZE = 6  # a boundary count the largest allowed open sample cannot settle
     EDGE_GAP_CLOSED = 7  # the edges of the sample are gapless, so corner modes are not defined
-    # 8 is taken by another change under way.
+    NO_CHIRAL_FRAME = 8  # the drive has no chiral-symmetric time frame: chiral invariants undefined
     NOT_REQUESTED = 9  # a [confirm] job did not select this cell for its boundary measurements
 
 
 @dataclass(frozen=True)
 class Quantity:
-    """A stored output variable: lowercase snake-case name, dtype, units and long name."""
+    """A stored output variable: lowercase snake-case name, dtype, units and long name.
+
+    ``group`` is the reason group the quantity belongs to (``"0"`` or ``"pi"``: the quasienergy
+    gap whose invariant or count it is) for a measurement that stores one reason per gap;
+    ``""`` for a quantity of the whole measurement (a solver code, a k-mesh, the sectors of a
+    line symmetry), which is explained by all of the measurement's reasons together.
+    """
 
     name: str
     dtype: str  # "float64" or "int32"
     units: str
     long_name: str
+    group: str = ""
+
+
+def reason_variable(measurement: str, group: str = "") -> str:
+    """Name of a reason variable: ``<measurement>_reason`` for a measurement with one reason,
+    ``<measurement>_<group>_reason`` for one reason group of it (``corner_modes_pi_reason``)."""
+    return f"{measurement}_{group}_reason" if group else f"{measurement}_reason"
 
 
 class Grid:

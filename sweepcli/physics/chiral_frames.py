@@ -9,7 +9,7 @@ quasienergies and gaps: :mod:`sweepcli.physics.quasienergy`.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Collection, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,7 +36,7 @@ class ChiralWindings:
     gap_0, gap_pi : gaps on the line's mesh (energy units, ``2 min |eps|`` as in the module
         docstring).
     kmesh : mesh used last.
-    reason : Reason.
+    reason : Reason (the first that is not OK; :meth:`gap_reason` tells the gaps apart).
     """
 
     nu_0: int | None
@@ -47,6 +47,21 @@ class ChiralWindings:
     gap_pi: float
     kmesh: int | None
     reason: Reason
+
+    def gap_reason(self, gap: str, gap_tol: float) -> Reason:
+        """Why the invariant of one gap (``"0"`` or ``"pi"``) is missing; ``OK`` when present.
+
+        ``GAP_CLOSED`` when that gap is below ``gap_tol`` on the mesh, else the record's reason
+        (``NOT_CONVERGED``, ``SECTOR_GAP_CLOSED``), so an open gap whose value is given reads
+        ``OK`` even when the other gap is closed.
+        """
+        if (self.nu_0 if gap == "0" else self.nu_pi) is not None:
+            return Reason.OK
+        if self.reason == Reason.SECTOR_GAP_CLOSED:
+            return self.reason
+        if (self.gap_0 if gap == "0" else self.gap_pi) < gap_tol:
+            return Reason.GAP_CLOSED
+        return self.reason if self.reason != Reason.OK else Reason.NOT_CONVERGED
 
 
 def check_chiral_frame(u: np.ndarray, g: np.ndarray, what: str) -> None:
@@ -59,7 +74,8 @@ def check_chiral_frame(u: np.ndarray, g: np.ndarray, what: str) -> None:
 
 def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np.ndarray,
                        period: float, *, gap_tol: float = 1e-6,
-                       phase_tol: float = PHASE_TOL) -> tuple[ChiralWindings, float]:
+                       phase_tol: float = PHASE_TOL, closed_gaps: Collection[str] = ()
+                       ) -> tuple[ChiralWindings, float]:
     """``nu_0, nu_pi`` from the frames ``U_1 = U(t1 + T, t1)``, ``U_2`` and ``F = U(t1 + T/2, t1)``.
 
     Construction (Asboth and Obuse 2013; Asboth, Tarasinski and Delplace 2014): in a symmetric
@@ -78,6 +94,9 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
     ----------
     u1, u2, f : (N, m, m) on a closed loop ``k_j = k(2 pi j / N)``.
     chiral : (m, m) chiral operator (Hermitian, squares to 1, traceless).
+    closed_gaps : gaps (``"0"``, ``"pi"``) to treat as closed whatever the loop shows: those
+        closed in the bulk of a 2D (or, between mesh points, 1D) drive. The other gap then
+        takes the half-period formula, which needs only its own gap.
 
     Returns
     -------
@@ -88,7 +107,8 @@ def chiral_from_frames(u1: np.ndarray, u2: np.ndarray, f: np.ndarray, chiral: np
     eps = quasienergy_values(u1, period)
     d0, dpi = gap_distances(eps, period)
     gap0, gappi = 2 * float(d0.min()), 2 * float(dpi.min())
-    open0, openpi = gap0 >= gap_tol, gappi >= gap_tol
+    open0 = gap0 >= gap_tol and "0" not in closed_gaps
+    openpi = gappi >= gap_tol and "pi" not in closed_gaps
     n = u1.shape[0]
     if not (open0 or openpi):
         return ChiralWindings(None, None, None, None, gap0, gappi, n, Reason.GAP_CLOSED), 0.0
@@ -181,8 +201,8 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
                     origin: Sequence[float] | None = None,
                     direction: Sequence[float] | None = None, gap_tol: float = 1e-6,
                     kmesh_n: int = WINDING_KMESH, max_kmesh: int = 4096,
-                    phase_tol: float = PHASE_TOL, slicing: Slicing | None = None
-                    ) -> ChiralWindings:
+                    phase_tol: float = PHASE_TOL, slicing: Slicing | None = None,
+                    closed_gaps: Collection[str] = ()) -> ChiralWindings:
     """``nu_0`` and ``nu_pi`` of a chiral 1D drive (or along a line of a 2D drive).
 
     Parameters
@@ -199,6 +219,7 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
     slicing : the drive's time slicing if already decided
         (:func:`~sweepcli.physics.drives.evolution.decide_slicing`); otherwise converged per frame
         and mesh.
+    closed_gaps : gaps closed in the bulk (see :func:`chiral_from_frames`).
 
     Raises
     ------
@@ -218,6 +239,6 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
         check_chiral_frame(u1, g, f"frame at t = {t1:g}")
         check_chiral_frame(u2, g, f"frame at t = {t2:g}")
         return chiral_from_frames(u1, u2, f, g, drive.period, gap_tol=gap_tol,
-                                  phase_tol=phase_tol)
+                                  phase_tol=phase_tol, closed_gaps=closed_gaps)
 
     return refine_windings(measure, kmesh_n, max_kmesh, phase_tol)

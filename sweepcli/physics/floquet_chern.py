@@ -218,6 +218,7 @@ class RudnerWinding:
     kmesh : last k-mesh used.
     reason : Reason (GAP_CLOSED if either gap is closed, NOT_CONVERGED if a computed value did
         not settle; the other winding is still reported when it is well defined).
+    reason_0, reason_pi : the reason of each winding alone (OK where it is given).
     """
 
     w_0: int | None
@@ -227,6 +228,8 @@ class RudnerWinding:
     residue: float
     kmesh: int | None
     reason: Reason
+    reason_0: Reason = Reason.OK
+    reason_pi: Reason = Reason.OK
 
 
 def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
@@ -240,10 +243,11 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     """
     if not gaps.converged:
         return RudnerWinding(None, None, math.nan, math.nan, math.nan, None,
-                             Reason.NOT_CONVERGED)
+                             Reason.NOT_CONVERGED, Reason.NOT_CONVERGED, Reason.NOT_CONVERGED)
     open_ = (gaps.gap_0 >= gap_tol, gaps.gap_pi >= gap_tol)
     if not any(open_):
-        return RudnerWinding(None, None, math.nan, math.nan, math.nan, None, Reason.GAP_CLOSED)
+        return RudnerWinding(None, None, math.nan, math.nan, math.nan, None, Reason.GAP_CLOSED,
+                             Reason.GAP_CLOSED, Reason.GAP_CLOSED)
     # The slice count at which the mesh evolution converged (sliced drives).
     slices = None if drive.exact else gaps.slices
     levels = [lv for lv in RUDNER_LEVELS if kmesh_n <= lv[0] <= max_kmesh] or \
@@ -272,5 +276,7 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     else:
         reason = Reason.OK
     raw_out = [raw[g] if open_[g] else math.nan for g in (0, 1)]
+    each = [Reason.GAP_CLOSED if not open_[g] else
+            Reason.NOT_CONVERGED if vals[g] is None else Reason.OK for g in (0, 1)]
     return RudnerWinding(vals[0], vals[1], raw_out[0], raw_out[1],
-                         max(residues) if residues else math.nan, n_used, reason)
+                         max(residues) if residues else math.nan, n_used, reason, *each)

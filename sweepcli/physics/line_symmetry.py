@@ -9,7 +9,7 @@ corner modes at 0 or pi are counted from the bulk). The frames and windings are 
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Collection, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -99,7 +99,8 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                          direction: Sequence[float], times: Sequence[float] | None = None,
                          gap_tol: float = 1e-6, kmesh_n: int = WINDING_KMESH,
                          max_kmesh: int = 4096, phase_tol: float = PHASE_TOL,
-                         slicing: Slicing | None = None) -> list[SectorWinding]:
+                         slicing: Slicing | None = None, closed_gaps: Collection[str] = ()
+                         ) -> list[SectorWinding]:
     """Windings at the 0 and pi gaps of each eigen-sector of ``S`` on a line of the BZ.
 
     On the line ``k(s) = origin + s direction`` (reduced coordinates, ``s`` in ``[0, 2 pi)``,
@@ -111,7 +112,8 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
     :func:`chiral_windings` (static: the winding of ``det P_- H_s P_+``). A sector whose
     chiral operator has unequal numbers of +1 and -1 eigenvalues has no winding (its result is
     missing with ``Reason.SECTOR_GAP_CLOSED``, the sector being gapless at 0). ``slicing`` as
-    in :func:`chiral_windings`.
+    in :func:`chiral_windings`. ``closed_gaps`` (``"0"``, ``"pi"``) are treated as closed
+    whatever the line shows: gaps closed in the bulk, off the line.
 
     Raises
     ------
@@ -170,7 +172,7 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                 hs = qh @ x1 @ q
                 e = np.linalg.eigvalsh(hs)
                 gap0 = 2 * float(np.min(np.abs(e)))
-                if not gap0 >= gap_tol:
+                if not gap0 >= gap_tol or "0" in closed_gaps:
                     return ChiralWindings(None, None, None, None, gap0, math.nan, n,
                                           Reason.GAP_CLOSED), 0.0
                 v, step = det_winding(chiral_blocks(hs, gs))
@@ -179,7 +181,8 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                 return ChiralWindings(None, None, None, None, math.nan, math.nan, n,
                                       Reason.NOT_CONVERGED), math.pi
             return chiral_from_frames(qh @ x1 @ q, qh @ x2 @ q, qh @ f @ q, gs, source.period,
-                                      gap_tol=gap_tol, phase_tol=phase_tol)
+                                      gap_tol=gap_tol, phase_tol=phase_tol,
+                                      closed_gaps=closed_gaps)
 
         out.append(SectorWinding(lam, m, refine_windings(measure, kmesh_n, max_kmesh, phase_tol)))
     return out

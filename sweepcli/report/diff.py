@@ -156,10 +156,10 @@ def compare_variable(a: Results, b: Results, grid: GridMatch, name: str, rtol: f
     flat = np.flatnonzero(differ.ravel())
     ranked = flat[np.argsort(-score.ravel()[flat], kind="stable")][:top]
     reasons = {}
-    for side, r, v in (("a", a, va), ("b", b, vb)):
-        rname = f"{v.measurement}_reason"
-        if rname in r.variables and rname != name:
-            reasons[side] = _common(r, grid, rname, side)
+    for side, r in (("a", a), ("b", b)):
+        codes = r.reason_codes(name, lambda n, r=r, side=side: _common(r, grid, n, side))
+        if codes is not None:
+            reasons[side] = codes
     worst = []
     for k in ranked:
         multi = np.unravel_index(k, da.shape)

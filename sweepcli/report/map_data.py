@@ -192,12 +192,15 @@ def disagreement(results: Results) -> np.ndarray:
 
 def missing_reasons(results: Results, var: str, index: tuple, mask: np.ndarray) -> Counter:
     """Reason names (``"gap_closed"``, ...) of the points of ``mask`` (on the drawn slice) where
-    ``var`` is missing although evaluated, counted; ``{"missing": n}`` without a reason variable."""
-    meta = results.variables[var]
-    rname = f"{meta.measurement}_reason"
-    if rname not in results.variables or rname == var:
+    ``var`` is missing although evaluated, counted; ``{"missing": n}`` without a reason variable.
+
+    The reason is read from the reason variables ``var`` links to
+    (:meth:`~sweepcli.store.Results.reason_codes`: its own gap's reason, e.g.
+    ``corner_modes_pi_reason``; ``<measurement>_reason`` in older files)."""
+    codes = results.reason_codes(var, lambda n: display_values(results, n)[0])
+    if codes is None:
         return Counter({"missing": int(mask.sum())})
-    reasons = display_values(results, rname)[0][index][mask]
+    reasons = codes[index][mask]
     return Counter(Reason(int(r)).name.lower() for r in reasons.ravel())
 
 
@@ -205,16 +208,22 @@ def confirm_measurements(results: Results) -> list[str]:
     """The measurements a ``[confirm]`` job ran on selected cells only (root attribute
     ``confirm_measurements``); empty for other files."""
     names = results.attrs.get("confirm_measurements", "").split(",")
-    return [n for n in names if f"{n}_reason" in results.variables]
+    return [n for n in names if _reasons_of(results, n)]
+
+
+def _reasons_of(results: Results, measurement: str) -> list[str]:
+    """The stored reason variables of ``measurement`` (one, or one per gap)."""
+    return [name for name, v in results.variables.items()
+            if v.is_reason and v.measurement == measurement]
 
 
 def not_requested(results: Results, var: str) -> np.ndarray:
     """Grid mask where ``var`` is missing because a ``[confirm]`` job did not select the cell
     (its measurement's reason is ``not_requested``)."""
-    rname = f"{results.variables[var].measurement}_reason"
-    if rname not in results.variables:
+    codes = results.reason_codes(var)
+    if codes is None:
         return np.zeros(results.shape, bool)
-    return results.data[rname] == int(Reason.NOT_REQUESTED)
+    return codes == int(Reason.NOT_REQUESTED)
 
 
 def confirmed(results: Results) -> np.ndarray | None:
@@ -225,8 +234,9 @@ def confirmed(results: Results) -> np.ndarray | None:
         return None
     mask = np.zeros(results.shape, bool)
     for m in names:
-        r = results.data[f"{m}_reason"]
-        mask |= (r != int(Reason.NOT_COMPUTED)) & (r != int(Reason.NOT_REQUESTED))
+        for rname in _reasons_of(results, m):
+            r = results.data[rname]
+            mask |= (r != int(Reason.NOT_COMPUTED)) & (r != int(Reason.NOT_REQUESTED))
     return mask
 
 

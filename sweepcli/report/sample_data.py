@@ -31,6 +31,7 @@ import numpy as np
 
 from ..errors import ResultsError, SweepError, suggest
 from ..jobfile import job_from_results
+from ..schema import Reason
 from ..store import FILL_INT, Results
 from .map_data import axis_index
 
@@ -69,6 +70,9 @@ class SampleDrawing:
         "left", "right"}`` (chain), ``{"chiral"}`` (ribbon); ``None`` where missing.
     stored : the same counts as stored in the file at this point, when the job measured this
         sample with these options (else empty).
+    stored_reasons : gap -> the reason stored in the file for that gap's count (read through
+        the count's ``ancillary_variables`` link, e.g. ``corner_modes_pi_reason``), beside
+        ``stored``.
     density : chain/flake: ``shape`` array, ``sum |psi|^2`` of the chosen gap's in-window
         states per cell (sums to their number); ``None`` for a ribbon.
     corner_weight : chain/flake: ``(2**d,)`` density inside each corner (end) region.
@@ -88,6 +92,7 @@ class SampleDrawing:
     mode_indices: np.ndarray
     counts: dict[str, dict[str, int | None]]
     stored: dict[str, dict[str, int | None]] = field(default_factory=dict)
+    stored_reasons: dict[str, str] = field(default_factory=dict)
     density: np.ndarray | None = None
     corner_weight: np.ndarray | None = None
     reasons: dict[str, str] = field(default_factory=dict)
@@ -195,6 +200,22 @@ def _stored(results: Results, kind: str, index: tuple[int, ...], driven: bool
             v = results.data[var][index]
             values[key] = None if (v == FILL_INT or not results.done[index]) else int(v)
         out[g] = values
+    return out
+
+
+def _stored_reasons(results: Results, kind: str, index: tuple[int, ...], driven: bool
+                    ) -> dict[str, str]:
+    """Gap -> name of the stored reason of that gap's count at ``index`` (through the count's
+    reason link; ``<measurement>_reason`` in files written before per-gap reasons)."""
+    out = {}
+    for g in GAPS[: 2 if driven else 1]:
+        var = {"flake": f"corner_modes_{g}", "chain": f"end_modes_{g}"}.get(
+            kind, f"chiral_edge_modes_{g}")
+        if var not in results.variables or not results.done[index]:
+            continue
+        codes = results.reason_codes(var)
+        if codes is not None:
+            out[g] = Reason(int(codes[index])).name.lower()
     return out
 
 
@@ -356,7 +377,8 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
                                 full_spectrum=raw["full"], region=raw["region"])
     drawing = replace(drawing, chosen=chosen)
     if as_measured:
-        drawing = replace(drawing, stored=_stored(results, kind, index, driven))
+        drawing = replace(drawing, stored=_stored(results, kind, index, driven),
+                          stored_reasons=_stored_reasons(results, kind, index, driven))
     raw.update(job=job, point=point, windows=windows, driven=driven)
     return raw, drawing
 

@@ -54,7 +54,10 @@ def _title(job, drawing: SampleDrawing, options: dict) -> str:
         if g in drawing.stored:
             s = drawing.stored[g]
             key = "chiral" if drawing.kind == "ribbon" else "total"
-            text += f"   [file: {s[key] if s[key] is not None else 'missing'}]"
+            why = drawing.stored_reasons.get(g, "")
+            shown = (s[key] if s[key] is not None
+                     else "missing" + (f" ({why.replace('_', ' ')})" if why else ""))
+            text += f"   [file: {shown}]"
         lines.append(text)
     return "\n".join(textwrap.fill(line, 120) for line in lines)
 

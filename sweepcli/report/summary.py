@@ -44,14 +44,17 @@ def empty_slots(results: Results) -> list[str]:
     """Variables with no value at any evaluated point where their measurement succeeded
     (reason ``ok``): slots a measurement declares but this job never fills, such as the
     windings of symmetry sectors beyond those its operator has (``line_w0_s3`` of a
-    two-sector operator)."""
+    two-sector operator). "Succeeded" is judged by the variable's own reason variables
+    (:meth:`~sweepcli.store.Results.reason_variables`)."""
     done = results.done.astype(bool)
     out = []
     for var in results.variables.values():
-        rname = f"{var.measurement}_reason"
-        if var.is_reason or rname not in results.variables or var.dtype not in ("int32", "float64"):
+        if var.dtype not in ("int32", "float64"):
             continue
-        ok = done & (results.data[rname] == Reason.OK)
+        codes = results.reason_codes(var.name)
+        if codes is None:
+            continue
+        ok = done & (codes == Reason.OK)
         if not ok.any():
             continue
         data = results.data[var.name][ok]

@@ -26,6 +26,7 @@ import time
 import numpy as np
 
 from ..jobfile import Job
+from ..physics.measurements import reason_names
 from ..physics.measurements.consistency import evaluate
 from ..schema import Reason
 from ..store import FILL_INT, Results
@@ -201,13 +202,19 @@ def point_values(job: Job, results: Results, index: int) -> dict:
     return out
 
 
+def reason_arrays(job: Job, results: Results, measurement: str) -> list[np.ndarray]:
+    """Flat views of the reason variables of ``measurement`` (one, or one per gap)."""
+    names = reason_names(measurement, job.dim, job.drive.kind != "static").values()
+    return [results.data[n].reshape(-1) for n in names]
+
+
 class Recorder:
     """Stores the partial records of a ``[confirm]`` run and completes a point (consistency
     flags, ``done``) once none of its measurements is still ``NOT_COMPUTED``."""
 
     def __init__(self, job: Job, results: Results) -> None:
         self.job, self.results = job, results
-        self.reasons = [results.data[f"{m}_reason"].reshape(-1) for m, _ in job.measurements]
+        self.reasons = [r for m, _ in job.measurements for r in reason_arrays(job, results, m)]
         self.rules = job.consistency_rules()
 
     def complete(self, index: int) -> bool:
@@ -222,12 +229,14 @@ class Recorder:
             self.results.done.reshape(-1)[index] = 1
 
 
-def pending_groups(results: Results, names, cells: np.ndarray) -> list[tuple[np.ndarray, tuple]]:
+def pending_groups(job: Job, results: Results, names, cells: np.ndarray
+                   ) -> list[tuple[np.ndarray, tuple]]:
     """The cells (of ``cells``) where some of ``names`` is ``NOT_COMPUTED``, grouped by which:
     ``[(flat indices, measurement names), ...]``."""
     if not len(names):
         return []
-    flags = np.stack([results.data[f"{m}_reason"].reshape(-1)[cells] == NOT_COMPUTED
+    flags = np.stack([np.logical_or.reduce([r[cells] == NOT_COMPUTED
+                                            for r in reason_arrays(job, results, m)])
                       for m in names], axis=1)
     groups = []
     for key in np.unique(flags, axis=0):
@@ -253,24 +262,24 @@ def run_confirmed(job: Job, results: Results, *, share: np.ndarray | None = None
     bulk = [m for m, _ in job.measurements if m not in boundary]
     done = results.done.reshape(-1)
     for m in bulk:  # a measurement no longer confirmed runs everywhere again
-        r = results.data[f"{m}_reason"].reshape(-1)
-        reopen = r == NOT_REQUESTED
-        r[reopen] = NOT_COMPUTED
-        done[reopen] = 0
+        for r in reason_arrays(job, results, m):
+            reopen = r == NOT_REQUESTED
+            r[reopen] = NOT_COMPUTED
+            done[reopen] = 0
     store = Recorder(job, results)
     everything = np.arange(size)
-    groups = pending_groups(results, bulk, everything)
+    groups = pending_groups(job, results, bulk, everything)
     todo = sum(len(g) for g, _ in groups)
     if evaluate_groups(groups, store, size, size - todo, "pass 1 of 2, bulk"):
         return True, None, own
     chosen = chosen_cells(job, results)
     for m in boundary:
-        r = results.data[f"{m}_reason"].reshape(-1)
-        r[chosen & own & (r == NOT_REQUESTED)] = NOT_COMPUTED
-        r[~chosen & own & (r == NOT_COMPUTED)] = NOT_REQUESTED
+        for r in reason_arrays(job, results, m):
+            r[chosen & own & (r == NOT_REQUESTED)] = NOT_COMPUTED
+            r[~chosen & own & (r == NOT_COMPUTED)] = NOT_REQUESTED
     complete = np.logical_and.reduce([r != NOT_COMPUTED for r in store.reasons])
     done[own] = complete[own]
-    groups = pending_groups(results, list(boundary), np.flatnonzero(own & chosen))
+    groups = pending_groups(job, results, list(boundary), np.flatnonzero(own & chosen))
     todo = sum(len(g) for g, _ in groups)
     total = int((own & chosen).sum())
     interrupted = evaluate_groups(groups, store, total, total - todo, "pass 2 of 2, boundary")

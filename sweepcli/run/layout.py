@@ -2,7 +2,10 @@
 
 This is where the job meets the store: the axes take their units and long names from the job
 file or, failing that, from the model's declared parameters, and every measurement adds its
-quantities and a ``<measurement>_reason`` variable (results-schema.md).
+quantities and its reason variables: ``<measurement>_reason``, or one
+``<measurement>_<group>_reason`` per gap for a measurement with reason groups
+(results-schema.md). Every variable names the reason variables that explain it
+(``ancillary_variables``); a bulk-boundary flag those of the variables it reads.
 """
 
 from __future__ import annotations
@@ -10,10 +13,22 @@ from __future__ import annotations
 import numpy as np
 
 from ..jobfile import Job
+from ..physics.measurements import reason_links, reason_names
 from ..physics.models import MODELS
 from ..store import Results, Variable
 from ..store.provenance import new_results
 from ..store.results import AxisData
+
+_GAP_WORDS = {"0": "quasienergy (energy) 0", "pi": "quasienergy pi/T"}
+
+
+def rule_links(reads: tuple[str, ...], links: dict[str, tuple[str, ...]]) -> tuple[str, ...]:
+    """The reason variables of a bulk-boundary flag: those of the variables it reads, keeping
+    only the per-gap ones when some are per gap (a flag at pi reads ``line_sectors``, which
+    every gap of ``line_winding`` explains, but only the pi reasons explain the flag)."""
+    single = [links[n] for n in reads if len(links.get(n, ())) == 1]
+    chosen = single or [links.get(n, ()) for n in reads]
+    return tuple(dict.fromkeys(r for rs in chosen for r in rs))
 
 
 def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
@@ -25,14 +40,21 @@ def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
         long_name = a.doc or (param.doc if param is not None and param.doc else a.name)
         axes.append(AxisData(a.name, np.array(a.values), units, long_name, a.spacing))
     variables = []
+    driven = job.drive.kind != "static"
+    links: dict[str, tuple[str, ...]] = {}
     for measurement, quantities in job.quantities():
+        links.update(reason_links(measurement, job.dim, driven))
         for q in quantities:
-            variables.append(Variable(q.name, q.dtype, q.units, q.long_name, measurement))
-        variables.append(Variable(f"{measurement}_reason", "uint8", "1",
-                                  f"why {measurement} is missing (0 = not missing)", measurement))
+            variables.append(Variable(q.name, q.dtype, q.units, q.long_name, measurement,
+                                      links[q.name]))
+        for group, rname in reason_names(measurement, job.dim, driven).items():
+            what = measurement + (f" at {_GAP_WORDS.get(group, group)}" if group else "")
+            variables.append(Variable(rname, "uint8", "1",
+                                      f"why {what} is missing (0 = not missing)", measurement))
     for rule in job.consistency_rules():
         q = rule.quantity
-        variables.append(Variable(q.name, q.dtype, q.units, q.long_name, "consistency"))
+        variables.append(Variable(q.name, q.dtype, q.units, q.long_name, "consistency",
+                                  rule_links(rule.reads, links)))
     attrs = {
         "title": job.title,
         "job_name": job.name,

@@ -18,7 +18,13 @@ import numpy as np
 from ..errors import SweepError
 from ..jobfile import Job
 from ..store import Results
-from .confirm import NOT_COMPUTED, NOT_REQUESTED, reopen_not_requested, run_confirmed
+from .confirm import (
+    NOT_COMPUTED,
+    NOT_REQUESTED,
+    reason_arrays,
+    reopen_not_requested,
+    run_confirmed,
+)
 from .executors import make_executor
 from .progress import Progress
 from .refine import base_indices, level_indices
@@ -155,8 +161,8 @@ def run_confirm_job(job: Job, results: Results, *, selection: np.ndarray | None 
     if chosen is not None:
         computed = np.zeros(results.size, bool)
         for m in job.confirm.measurements:
-            r = results.data[f"{m}_reason"].ravel()
-            computed |= (r != NOT_COMPUTED) & (r != NOT_REQUESTED)
+            for r in reason_arrays(job, results, m):
+                computed |= (r != NOT_COMPUTED) & (r != NOT_REQUESTED)
         confirmed = int((computed & own).sum())
     return RunSummary(done=int(done.sum()), total=int(own.sum()),
                       failed=int(np.count_nonzero(failed != "")), interrupted=interrupted,

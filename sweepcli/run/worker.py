@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..jobfile import Job
-from ..physics.measurements import MEASUREMENTS, quantities_of
+from ..physics.measurements import MEASUREMENTS, quantities_of, reason_names, split_reason
 from ..physics.measurements.consistency import evaluate
 from ..schema import Reason
 
@@ -14,11 +14,14 @@ def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) ->
     """All measurements of flat grid point ``index`` (or those named in ``only``):
     ``(index, values, failure message)``.
 
-    A measurement that raises is recorded as missing with ``Reason.FAILED`` and its message, and
-    the other measurements (and the sweep) go on. The consistency flags need every measurement,
+    The reasons are stored per reason variable (``<name>_reason``, or ``<name>_<group>_reason``
+    for a measurement with one reason per gap). A measurement that raises is recorded as
+    missing with ``Reason.FAILED`` in every one of its reason variables and its message, and the
+    other measurements (and the sweep) go on. The consistency flags need every measurement,
     so they are added only without ``only`` (a ``[confirm]`` run adds them in the parent).
     """
     point = job.point(index)
+    driven = job.drive.kind != "static"
     values: dict = {}
     failures = []
     for name, options in job.measurements:
@@ -26,14 +29,13 @@ def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) ->
             continue
         try:
             result = dict(MEASUREMENTS[name].func(point, **dict(options)))
-            reason = result.pop("reason")
+            reasons = split_reason(name, result.pop("reason"), job.dim, driven)
         except Exception as exc:  # noqa: BLE001 - any failure of one point is recorded, not fatal
-            result = {q.name: None for q in quantities_of(name, job.dim,
-                                                          job.drive.kind != "static")}
-            reason = Reason.FAILED
+            result = {q.name: None for q in quantities_of(name, job.dim, driven)}
+            reasons = {r: int(Reason.FAILED) for r in reason_names(name, job.dim, driven).values()}
             failures.append(f"{name}: {type(exc).__name__}: {exc}")
         values.update(result)
-        values[f"{name}_reason"] = int(reason)
+        values.update(reasons)
     if only is None:
         values.update(evaluate(job.consistency_rules(), values))
     return index, values, "; ".join(failures)

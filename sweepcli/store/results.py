@@ -9,7 +9,7 @@ checkpoint writes a complete new file ``OUT.tmp``, flushes and fsyncs it, and re
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -27,13 +27,20 @@ REASON_FLAGS = " ".join(r.name.lower() for r in Reason)
 
 @dataclass(frozen=True)
 class Variable:
-    """One stored grid-shaped variable."""
+    """One stored grid-shaped variable.
+
+    ``ancillary`` names the reason variables that say why it is missing at a point (written as
+    the CF attribute ``ancillary_variables``, blank-separated); empty for a reason variable and
+    in files written before the link existed (readers then fall back to
+    ``<measurement>_reason``, see :meth:`Results.reason_variables`).
+    """
 
     name: str
     dtype: str  # "float64", "int32" or "uint8" (reason codes)
     units: str
     long_name: str
     measurement: str  # the measurement that produced it
+    ancillary: tuple[str, ...] = ()
 
     @property
     def is_reason(self) -> bool:
@@ -78,6 +85,32 @@ class Results(Grid):
 
     def axis(self, name: str) -> AxisData:
         return next(a for a in self.axes if a.name == name)
+
+    def reason_variables(self, name: str) -> tuple[str, ...]:
+        """The stored reason variables that explain where variable ``name`` is missing.
+
+        Its ``ancillary_variables`` link (one per-gap reason such as ``corner_modes_pi_reason``,
+        or several for a quantity shared by the gaps); for a file written before the link,
+        ``<measurement>_reason`` when stored. ``()`` for a reason variable itself and for a
+        variable without any.
+        """
+        var = self.variables[name]
+        if var.is_reason:
+            return ()
+        if var.ancillary:
+            return tuple(r for r in var.ancillary if r in self.variables and r != name)
+        legacy = f"{var.measurement}_reason"
+        return (legacy,) if legacy in self.variables and legacy != name else ()
+
+    def reason_codes(self, name: str, data_of=None) -> np.ndarray | None:
+        """Grid of the reason why ``name`` is missing: the first code that is not ``ok`` among
+        its reason variables (:meth:`reason_variables`, 0 before pi), or ``None`` if it has none.
+        ``data_of(reason_name)`` supplies the arrays (default: the stored ones)."""
+        names = self.reason_variables(name)
+        if not names:
+            return None
+        get = data_of or (lambda n: self.data[n])
+        return first_reason([get(n) for n in names])
 
     def record(self, index: int, values: Mapping[str, object], failure: str = "", *,
                complete: bool = True) -> None:
@@ -151,6 +184,8 @@ class Results(Grid):
             ds.attrs["units"] = var.units
             ds.attrs["long_name"] = var.long_name
             ds.attrs["measurement"] = var.measurement
+            if var.ancillary:
+                ds.attrs["ancillary_variables"] = " ".join(var.ancillary)
             if var.dtype == "int32":
                 ds.attrs["_FillValue"] = FILL_INT
             elif var.dtype == "uint8":
@@ -206,7 +241,9 @@ class Results(Grid):
         for name in (n for n in _text(f.attrs["variables"]).split(",") if n):
             ds = f[name]
             variables.append(Variable(name, str(ds.dtype), _text(ds.attrs["units"]),
-                                      _text(ds.attrs["long_name"]), _text(ds.attrs["measurement"])))
+                                      _text(ds.attrs["long_name"]), _text(ds.attrs["measurement"]),
+                                      tuple(_text(ds.attrs.get("ancillary_variables",
+                                                               "")).split())))
         out = cls(axes, variables, attrs)
         for v in variables:
             out.data[v.name] = f[v.name][()]
@@ -220,6 +257,13 @@ class Results(Grid):
                                         else group[c][()]) for c in cols}
         return out
 
+
+def first_reason(codes: Sequence[np.ndarray]) -> np.ndarray:
+    """Elementwise the first reason code that is not ``ok`` (``ok`` where all are)."""
+    out = np.array(codes[0], dtype=np.uint8, copy=True)
+    for c in codes[1:]:
+        out = np.where(out == Reason.OK, c, out).astype(np.uint8)
+    return out
 
 
 def _text(value: object) -> str:

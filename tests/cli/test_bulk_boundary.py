@@ -195,7 +195,7 @@ max_size = 16
 """)
     assert abs(r.data["line_wpi_s1"][0] - r.data["line_wpi_s2"][0]) == 4
     assert r.data["corner_modes_pi"][0] == FILL_INT
-    assert r.data["corner_modes_reason"][0] == Reason.FINITE_SIZE
+    assert r.data["corner_modes_pi_reason"][0] == Reason.FINITE_SIZE
     assert abs(r.data["line_wpi_s1"][1] - r.data["line_wpi_s2"][1]) == 2
     counted = [int(r.data[f"corner_modes_pi_{c}"][1]) for c in ("00", "10", "01", "11")]
     assert counted == [1, 1, 1, 1]

@@ -12,6 +12,7 @@ from sweepcli.cli import app
 from sweepcli.physics import samples
 from sweepcli.physics.models import MODELS
 from sweepcli.report.sample_plot import draw_sample
+from sweepcli.schema import Reason
 from sweepcli.store import Results
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
@@ -95,6 +96,7 @@ def test_corner_flake_at_a_topological_point(corner_file, tmp_path):
     assert d.counts["0"] == _stored(r, "corner_modes_0", keys, (0,))
     assert d.counts["0"] == {"total": 4, "00": 1, "10": 1, "01": 1, "11": 1}
     assert d.stored["0"] == d.counts["0"]
+    assert d.stored_reasons == {"0": "ok"} == d.reasons  # through corner_modes_0's link
     assert d.full_spectrum and d.levels.size == side * side * 4
     assert len(d.mode_indices) == 4
 
@@ -141,6 +143,8 @@ def test_driven_chain_end_modes_at_zero_and_pi(chain_file, tmp_path):
     keys = {"total": "", "left": "_left", "right": "_right"}
     for g in ("0", "pi"):
         assert d.counts[g] == _stored(r, f"end_modes_{g}", keys, (1,))
+        assert d.stored_reasons[g] == d.reasons[g]
+        assert r.data[f"end_modes_{g}_reason"][1] == Reason[d.reasons[g].upper()]
     assert max(d.counts["pi"]["left"], d.counts["0"]["left"]) == 2
 
     # The whole quasienergy spectrum against scipy.linalg.expm of the two dense steps.

@@ -170,7 +170,7 @@ def test_corner_edge_gap_closed_through_the_measurement():
     tb = as_model(onsite, hops)
     point = Point({}, lambda p: tb)
     out = MEASUREMENTS["corner_modes"].func(point, size=16, max_size=16)
-    assert out["reason"] == Reason.EDGE_GAP_CLOSED and out["corner_modes_0"] is None
+    assert out["reason"] == {"0": Reason.EDGE_GAP_CLOSED} and out["corner_modes_0"] is None
     assert out["corner_modes_0_edge_gap"] < 1e-6
 
 

@@ -219,9 +219,9 @@ def measure(name: str, pt: Point, **options):
 def test_end_modes_measurement():
     out = measure("end_modes", point("ssh", v=0.5, w=1.0), cells=24)
     assert (out["end_modes_0"], out["end_modes_0_left"], out["end_modes_0_right"]) == (2, 1, 1)
-    assert out["end_modes_method"] == 0 and out["reason"] == Reason.OK
+    assert out["end_modes_method"] == 0 and out["reason"] == {"0": Reason.OK}
     out = measure("end_modes", point("ssh", v=1.0, w=1.0), cells=24)
-    assert out["end_modes_0"] is None and out["reason"] == Reason.GAP_CLOSED
+    assert out["end_modes_0"] is None and out["reason"] == {"0": Reason.GAP_CLOSED}
 
 
 def test_corner_and_edge_measurements():
@@ -383,12 +383,13 @@ def test_driven_measurements_through_a_point():
     pt = Point(params={}, build=lambda p: model("bbh", gamma=0.5),
                drive=two_step("bbh", dict(gamma=0.5, lam=0.0), dict(gamma=0.0, lam=1.2)))
     out = MEASUREMENTS["corner_modes"].func(pt, size=12)
-    assert out["corner_modes_0"] == 4 and out["corner_modes_pi"] == 0 and out["reason"] == 0
+    assert out["corner_modes_0"] == 4 and out["corner_modes_pi"] == 0
+    assert out["reason"] == {"0": Reason.OK, "pi": Reason.OK}
 
 
 def test_driven_edge_modes_through_a_point():
     pt = Point(params={}, build=lambda p: model("qwz", m=1.0), drive=rlbl(0.9 * np.pi / 2, 0.3))
     out = MEASUREMENTS["edge_modes"].func(pt, width=10)
     names = {q.name for q in MEASUREMENTS["edge_modes"].extra["quantities"](2, True)}
-    assert set(out) == names | {"reason"} and out["reason"] == Reason.OK
+    assert set(out) == names | {"reason"} and out["reason"] == {"0": Reason.OK, "pi": Reason.OK}
     assert abs(out["chiral_edge_modes_pi"]) == 1 == abs(out["chiral_edge_modes_0"])

@@ -331,7 +331,7 @@ def test_driven_measurement_records():
 
     chain = driven_point(vw_drive(0.6 * np.pi, 0.8 * np.pi), model("ssh", v=0.5))
     r = MEASUREMENTS["chiral_windings"].func(chain)
-    assert (r["nu_0"], r["nu_pi"], r["reason"]) == (1, -1, Reason.OK)
+    assert (r["nu_0"], r["nu_pi"], r["reason"]) == (1, -1, {"0": Reason.OK, "pi": Reason.OK})
     lw = MEASUREMENTS["line_winding"].func(
         driven_point(leg_drive(((0.3, 0.9), (0.6 * np.pi, 0.8 * np.pi)), (1,)),
                      two_chains(((0.5, 1.0), (0.5, 1.0)), (1,))),
@@ -347,3 +347,97 @@ def test_driven_measurement_records():
         assert MEASUREMENTS[name].extra["driven"] in (True, None)
         for q in quantities_of(name, 2 if name not in ("chiral_windings",) else 1):
             assert q.name == q.name.lower() and q.dtype in ("float64", "int32")
+
+
+# ---------------------------------------------------------------------------------------------
+# An invariant of a gap that is closed in the bulk is missing (gap_closed in that gap's reason)
+#
+# The mass-switched corner model (jobs/driven-corner-modes.toml): bhz_corner with delta2 = 0.8,
+# m = M_A for the first 0.4 T and m = M_B for the remaining 0.6 T. At Gamma (k = 0) and M
+# (k = (pi, pi)) the delta1 and delta2 terms vanish (sin k = 0, cos k1 = cos k2), so both steps
+# are multiples of tau_z there and commute:
+#     U(Gamma) = exp(-i T mbar_G tau_z),  mbar_G = 0.4 (M_A + 2t) + 0.6 (M_B + 2t),
+#     U(M)     = exp(-i T mbar_M tau_z),  mbar_M = 0.4 (M_A - 2t) + 0.6 (M_B - 2t),
+# with quasienergies +-mbar (mod 2 pi / T). The 0 gap closes where T mbar = 2 pi n, the pi gap
+# where T mbar = (2n + 1) pi, i.e. at omega = mbar / n and omega = 2 mbar / (2n + 1). For
+# M_A = -0.5, M_B = 3, t = 1: mbar_G = 3.6, mbar_M = -0.4, so the 0 gap closes at Gamma for
+# omega = 3.6 and the pi gap at Gamma for omega = 7.2 (n = 0).
+
+M_A, M_B, SPAN_A = -0.5, 3.0, 0.4
+
+
+def corner_drive(omega: float) -> StepDrive:
+    T = 2 * np.pi / omega
+    return StepDrive(T, ((SPAN_A * T, model("bhz_corner", m=M_A, delta2=0.8)),
+                         ((1 - SPAN_A) * T, model("bhz_corner", m=M_B, delta2=0.8))))
+
+
+def corner_hamiltonian(k1: float, k2: float, m: float, delta2: float = 0.8) -> np.ndarray:
+    """bhz_corner's H(k) written out here (basis tau x sigma, t = delta1 = 1)."""
+    s = {c: pauli(c) for c in ("z0", "xx", "xy", "y0")}
+    return ((m + np.cos(k1) + np.cos(k2)) * s["z0"] + np.sin(k1) * s["xx"]
+            + np.sin(k2) * s["xy"] + delta2 * (np.cos(k1) - np.cos(k2)) * s["y0"])
+
+
+def expm_gaps(omega: float, n: int = 24) -> tuple[float, float]:
+    """Bulk gaps at 0 and pi/T on an n x n k-grid, U(k) by scipy.linalg.expm (reference)."""
+    T = 2 * np.pi / omega
+    g0 = gpi = np.inf
+    for k1 in 2 * np.pi * np.arange(n) / n:
+        for k2 in 2 * np.pi * np.arange(n) / n:
+            u = (sl.expm(-1j * (1 - SPAN_A) * T * corner_hamiltonian(k1, k2, M_B))
+                 @ sl.expm(-1j * SPAN_A * T * corner_hamiltonian(k1, k2, M_A)))
+            eps = np.angle(np.linalg.eigvals(u)) / T
+            g0 = min(g0, 2 * np.min(np.abs(eps)))
+            gpi = min(gpi, 2 * np.min(np.pi / T - np.abs(eps)))
+    return g0, gpi
+
+
+@pytest.mark.parametrize("closed, omega", [("0", 3.6), ("pi", 7.2)])
+def test_line_winding_of_a_gap_closed_in_the_bulk_is_missing(closed, omega):
+    mbar_g = SPAN_A * (M_A + 2) + (1 - SPAN_A) * (M_B + 2)
+    assert mbar_g == pytest.approx(3.6)
+    other = "pi" if closed == "0" else "0"
+    # the reference: the closed gap is zero at Gamma, the other gap is wide open everywhere
+    g = dict(zip(("0", "pi"), expm_gaps(omega)))
+    assert g[closed] < 1e-9 and g[other] > 0.15
+    pt = Point(params={}, build=lambda p: model("bhz_corner", m=M_A, delta2=0.8),
+               drive=corner_drive(omega))
+    out = MEASUREMENTS["line_winding"].func(pt, operator="mirror_diag", direction=[1, 1])
+    assert out["reason"] == {closed: Reason.GAP_CLOSED, other: Reason.OK}
+    assert out["line_sectors"] == 2
+    assert all(out[f"line_w{closed}_s{j}"] is None for j in (1, 2, 3, 4))
+    present = [out[f"line_w{other}_s{j}"] for j in (1, 2)]
+    assert all(isinstance(v, int) for v in present)
+    # The same line with its mesh shifted off Gamma: the line's own points stay gapped (the
+    # closing falls between them), the bulk gap does not. The closed gap is still missing and
+    # the open gap keeps its windings (taken from the half-period operator alone).
+    shifted = MEASUREMENTS["line_winding"].func(pt, operator="mirror_diag", direction=[1, 1],
+                                                origin=[0.013, 0.013])
+    assert shifted["reason"] == out["reason"]
+    assert [shifted[f"line_w{other}_s{j}"] for j in (1, 2)] == present
+    assert all(shifted[f"line_w{closed}_s{j}"] is None for j in (1, 2))
+    # The other gap stays open between this point and one where both gaps are open, so its
+    # windings there (from both symmetric frames) are the same integers.
+    near = omega - 0.1 if closed == "0" else omega + 0.1
+    both = MEASUREMENTS["line_winding"].func(
+        Point(params={}, build=lambda p: model("bhz_corner", m=M_A, delta2=0.8),
+              drive=corner_drive(near)), operator="mirror_diag", direction=[1, 1])
+    assert both["reason"] == {"0": Reason.OK, "pi": Reason.OK}
+    assert [both[f"line_w{other}_s{j}"] for j in (1, 2)] == present
+
+
+def test_line_winding_of_a_drive_without_a_chiral_frame():
+    # Three steps with three different masses: the cyclic sequence (a, b, c) has no mirror
+    # point, so no frame is chiral symmetric and the windings are undefined in both gaps
+    # (Asboth and Obuse, PRB 88, 121406 (2013)); a reason of its own, not a failure.
+    T = 2 * np.pi / 5.0
+    drive = StepDrive(T, tuple((span * T, model("bhz_corner", m=m, delta2=0.8))
+                               for span, m in ((0.3, -0.5), (0.3, 1.0), (0.4, 3.0))))
+    with pytest.raises(ValueError, match="no chiral-symmetric starting time"):
+        drive.symmetric_times(pauli("xz"))
+    pt = Point(params={}, build=lambda p: model("bhz_corner", m=-0.5, delta2=0.8), drive=drive)
+    out = MEASUREMENTS["line_winding"].func(pt, operator="mirror_diag", direction=[1, 1])
+    assert out["reason"] == {"0": Reason.NO_CHIRAL_FRAME, "pi": Reason.NO_CHIRAL_FRAME}
+    assert out["line_w0_s1"] is None and out["line_wpi_s1"] is None
+    assert int(Reason.NO_CHIRAL_FRAME) == 8

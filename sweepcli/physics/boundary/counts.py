@@ -10,7 +10,8 @@ Localisation and pinning
 A state bound to a boundary decays into the bulk as ``exp(-d / xi)`` (amplitude). The decay
 length is set by the gap that confines the mode and by the dispersion at the gap edge: for a
 massive Dirac branch ``sqrt(d_0^2 + v^2 q^2)`` it is ``v / d_0``, which the curvature of the
-branch at its minimum gives as ``sqrt(d'' / d_0)`` (:func:`sweepcli.physics.boundary.gap_and_decay`).
+branch at its minimum gives as ``sqrt(d'' / d_0)``
+(:func:`sweepcli.physics.boundary.gap_and_decay`).
 The gap is the bulk gap for the ends of a chain, and for the corners of a flake the smallest gap
 of ribbons as wide as the flake (a corner mode of a second-order phase decays along the edges
 with the edge gap).

@@ -62,6 +62,11 @@ Factor = tuple[float, TightBinding]
 TIME_RTOL = 1e-9
 
 
+class NoSymmetricTime(ValueError):
+    """The drive has no (chiral-)symmetric starting time at all, as opposed to a protocol that
+    cannot look for one: its chiral invariants are undefined (``Reason.NO_CHIRAL_FRAME``)."""
+
+
 class Drive(ABC):
     """The protocol every periodic drive follows (implementations are frozen dataclasses).
 
@@ -111,6 +116,8 @@ class Drive(ABC):
 
         Raises
         ------
+        NoSymmetricTime
+            When the protocol has searched every candidate and the drive has none.
         ValueError
             When the drive has no symmetric time (or the protocol cannot find them; give the
             times explicitly then).

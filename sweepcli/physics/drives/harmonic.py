@@ -14,6 +14,7 @@ from . import DRIVES
 from .base import (
     SLICING_KEYS,
     Factor,
+    NoSymmetricTime,
     SlicedDrive,
     Slicing,
     check_period,
@@ -220,7 +221,7 @@ class HarmonicDrive(SlicedDrive):
 
         static = largest(image(c[0]) - c[0])
         if static > atol:
-            raise ValueError(f"this harmonic drive has no {what} starting time: the time "
+            raise NoSymmetricTime(f"this harmonic drive has no {what} starting time: the time "
                              f"average of H(t) is not {odd}; it deviates by {static:.3g}")
         harmonics = range(1, nsamp // 2)
         present = [m for m in harmonics if max(largest(c[m]), largest(c[-m])) > atol / 4]
@@ -229,7 +230,7 @@ class HarmonicDrive(SlicedDrive):
         m1 = max(present, key=lambda m: largest(c[m]) + largest(c[-m]))
         zm = np.vdot(c[-m1], image(c[m1]))  # P[c_m] = z^m c_{-m}, z^m estimated
         if abs(zm) <= atol ** 2:
-            raise ValueError(f"this harmonic drive has no {what} starting time: harmonic {m1} "
+            raise NoSymmetricTime(f"this harmonic drive has no {what} starting time: harmonic {m1} "
                              f"of H(t) is at no time its own mirror image")
         base = -float(np.angle(zm)) / (4 * math.pi * m1)
         cands = []
@@ -256,7 +257,7 @@ class HarmonicDrive(SlicedDrive):
         total, ts, worst = best
         rule = ("chiral H(t* + s) chiral = -H(t* - s)" if g is not None
                 else "H(t* + s) = H(t* - s)")
-        raise ValueError(f"this harmonic drive has no {what} starting time: no t* has {rule} "
+        raise NoSymmetricTime(f"this harmonic drive has no {what} starting time: no t* has {rule} "
                          f"for all s; the candidates of harmonic {m1} (first t* = "
                          f"{min(cands) / T:.6g} T) leave a deviation of at least {total:.3g}, "
                          f"most of it from harmonic {worst}")

@@ -14,6 +14,7 @@ from .base import (
     TIME_RTOL,
     Drive,
     Factor,
+    NoSymmetricTime,
     check_compatible,
     check_period,
     combine,
@@ -207,7 +208,7 @@ class KickDrive(Drive):
         dev = mirror_defect(self.base, self.base, g)
         if dev > atol:
             odd = "chiral odd (chiral H chiral = -H)" if g is not None else "real"
-            raise ValueError(f"this kick drive has no {what} starting time: the Hamiltonian "
+            raise NoSymmetricTime(f"this kick drive has no {what} starting time: the Hamiltonian "
                              f"between kicks is not {odd}; it deviates by {dev:.3g}")
         groups = self.groups()
         if not groups:
@@ -234,7 +235,7 @@ class KickDrive(Drive):
             ts = 0.0 if T - ts <= eps else ts
             if mirrored(ts):
                 return ts, (ts + T / 2) % T
-        raise ValueError(f"this kick drive has no {what} starting time: no reflection of the "
+        raise NoSymmetricTime(f"this kick drive has no {what} starting time: no reflection of the "
                          f"period maps the kicks (at t/T = "
                          f"{', '.join(f'{t / T:.6g}' for t, _ in groups)}) onto their mirror "
                          f"images")

@@ -15,6 +15,7 @@ from .base import (
     SLICING_KEYS,
     TIME_RTOL,
     Factor,
+    NoSymmetricTime,
     SegmentDrive,
     SlicedDrive,
     Slicing,
@@ -219,8 +220,8 @@ class RampDrive(SegmentDrive, SlicedDrive):
                 return ts, (ts + T / 2) % T
         what = "chiral-symmetric" if g is not None else "time-reversal-symmetric"
         if points:
-            raise ValueError(f"this ramp drive has no {what} starting time: the steps are "
+            raise NoSymmetricTime(f"this ramp drive has no {what} starting time: the steps are "
                              f"symmetric about t/T = {', '.join(f'{t / T:.6g}' for t in points)}"
                              f", but the ramps between them are not")
-        raise ValueError(f"this ramp drive has no {what} starting time: no segment centre or "
+        raise NoSymmetricTime(f"this ramp drive has no {what} starting time: no segment centre or "
                          f"boundary is a mirror point of the sequence of steps")

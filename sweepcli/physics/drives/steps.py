@@ -13,6 +13,7 @@ from . import DRIVES
 from .base import (
     TIME_RTOL,
     Factor,
+    NoSymmetricTime,
     SegmentDrive,
     check_compatible,
     check_period,
@@ -195,12 +196,12 @@ class StepDrive(SegmentDrive):
 
         Raises
         ------
-        ValueError
+        NoSymmetricTime (a ValueError)
             If no segment centre or boundary is a symmetry point.
         """
         points = self.mirror_points(chiral, atol)
         if points:
             return points[0], (points[0] + self.period / 2) % self.period
         what = "chiral-symmetric" if chiral is not None else "time-reversal-symmetric"
-        raise ValueError(f"this step drive has no {what} starting time: no segment centre or "
-                         f"boundary is a mirror point of the sequence of steps")
+        raise NoSymmetricTime(f"this step drive has no {what} starting time: no segment "
+                              f"centre or boundary is a mirror point of the sequence of steps")

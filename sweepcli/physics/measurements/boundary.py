@@ -20,9 +20,11 @@ Layout of the stored variables (``g`` is ``0``, plus ``pi`` for driven jobs):
   (the gap that sets the window); and ``corner_modes_method``.
 
 ``*_method`` is 0 for dense diagonalisation, 1 for Lanczos. The quantities of a driven job are
-``quantities(dim, driven=True)``. The stored reason is the first non-OK reason of the gaps
-(0 before pi): a closed gap at 0 leaves the ``_0`` variables missing while the ``_pi`` ones may
-still be filled.
+``quantities(dim, driven=True)``. Each measurement has one reason per gap (reason groups
+``"0"``, ``"pi"``; stored as ``end_modes_0_reason``, ``end_modes_pi_reason``, ...): a closed gap
+at 0 leaves the ``_0`` variables missing with ``gap_closed`` in the ``_0`` reason while the
+``_pi`` ones may still be filled with reason ``ok``. ``*_method`` belongs to no gap (one solver
+code for the samples of both gaps); its reasons are both gaps' reasons.
 """
 
 from __future__ import annotations
@@ -82,40 +84,44 @@ def point_factors(point: Point) -> list | None:
     return point.memo(("boundary.factors",), compute)
 
 
+def gap_groups(dim: int, driven: bool = False) -> tuple[str, ...]:
+    """Reason groups of the boundary measurements: the gaps, ``("0",)`` or ``("0", "pi")``."""
+    return _GAPS[driven]
+
+
 def _unsliced(name: str, point: Point) -> dict[str, Any] | None:
     """All-missing result (``NOT_CONVERGED``) when a drive's time slicing did not converge."""
     if point.drive is None or point_factors(point) is not None:
         return None
     out: dict[str, Any] = {q.name: (None if q.dtype.startswith("int") else float("nan"))
                            for q in MEASUREMENTS[name].extra["quantities"](point.drive.dim, True)}
-    out["reason"] = Reason.NOT_CONVERGED
+    out["reason"] = {g: Reason.NOT_CONVERGED for g in _GAPS[True]}
     return out
 
 
-def _reason(results: dict[str, Any]) -> Reason:
-    for r in results.values():
-        if r.reason != Reason.OK:
-            return r.reason
-    return Reason.OK
+def _reasons(results: dict[str, Any]) -> dict[str, Reason]:
+    """One reason per gap: ``{"0": ..., "pi": ...}``."""
+    return {g: Reason(r.reason) for g, r in results.items()}
 
 
 def _trust_quantities(prefix: str, g: str, size: str, size_doc: str) -> list[Quantity]:
     """What a reader needs to trust a count: in-window states, least bound weight, sample used."""
     return [Quantity(f"{prefix}_{g}_states", "int32", "1",
-                     f"in-window states of the sample {_AT[g]}"),
+                     f"in-window states of the sample {_AT[g]}", g),
             Quantity(f"{prefix}_{g}_weight", "float64", "1",
                      f"smallest weight inside the boundary regions among the counted states "
-                     f"{_AT[g]}"),
-            Quantity(f"{prefix}_{g}_{size}", "int32", "1", f"{size_doc} {_AT[g]}")]
+                     f"{_AT[g]}", g),
+            Quantity(f"{prefix}_{g}_{size}", "int32", "1", f"{size_doc} {_AT[g]}", g)]
 
 
 def _end_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = []
     for g in _GAPS[driven]:
-        qs += [Quantity(f"end_modes_{g}", "int32", "1", f"end modes of an open chain {_AT[g]}"),
-               Quantity(f"end_modes_{g}_left", "int32", "1", f"end modes {_AT[g]} at cell 0"),
-               Quantity(f"end_modes_{g}_right", "int32", "1", f"end modes {_AT[g]} at the last "
-                                                               f"cell"),
+        qs += [Quantity(f"end_modes_{g}", "int32", "1", f"end modes of an open chain {_AT[g]}",
+                        g),
+               Quantity(f"end_modes_{g}_left", "int32", "1", f"end modes {_AT[g]} at cell 0", g),
+               Quantity(f"end_modes_{g}_right", "int32", "1",
+                        f"end modes {_AT[g]} at the last cell", g),
                *_trust_quantities("end_modes", g, "cells", "chain length used, cells")]
     qs.append(Quantity("end_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
     return tuple(qs)
@@ -133,7 +139,8 @@ def _end_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
                   sweepable=False),
             _WINDOW,
             _METHOD),
-    quantities=_end_quantities, dims=(1,), driven=None, operators=(),
+    quantities=_end_quantities, reason_groups=gap_groups, dims=(1,), driven=None,
+    operators=(),
 )
 def end_modes(point: Point, *, cells: int = 40, max_cells: int = 160,
               window: float = bd.WINDOW_FRACTION, method: str = "auto") -> dict[str, Any]:
@@ -156,7 +163,7 @@ def end_modes(point: Point, *, cells: int = 40, max_cells: int = 160,
         out[f"end_modes_{g}_right"] = None if pc is None else int(pc[1])
         out.update(_trust("end_modes", g, "cells", r))
     out["end_modes_method"] = _method_code(results)
-    out["reason"] = _reason(results)
+    out["reason"] = _reasons(results)
     return out
 
 
@@ -258,9 +265,9 @@ def _edge_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     for g in _GAPS[driven]:
         qs += [Quantity(f"chiral_edge_modes_{g}", "int32", "1",
                         f"net chiral modes {_AT[g]} on the low edge of a ribbon (+1 towards "
-                        f"+k_par)"),
+                        f"+k_par)", g),
                Quantity(f"edge_gap_{g}", "float64", "energy",
-                        f"gap of the ribbon spectrum {_AT[g]}, minimised over k_par")]
+                        f"gap of the ribbon spectrum {_AT[g]}, minimised over k_par", g)]
     return tuple(qs)
 
 
@@ -278,7 +285,8 @@ def _edge_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
             Param("nk", kind="int", default=128, low=8,
                   doc="first number of k_par points (doubled until crossings resolve)",
                   sweepable=False)),
-    quantities=_edge_quantities, dims=(2,), driven=None, operators=(),
+    quantities=_edge_quantities, reason_groups=gap_groups, dims=(2,), driven=None,
+    operators=(),
 )
 def edge_modes(point: Point, *, width: int = 24, window: float = bd.WINDOW_FRACTION,
                open_axis: int = 1, nk: int = 128) -> dict[str, Any]:
@@ -297,7 +305,7 @@ def edge_modes(point: Point, *, width: int = 24, window: float = bd.WINDOW_FRACT
     for g, r in results.items():
         out[f"chiral_edge_modes_{g}"] = r.chiral
         out[f"edge_gap_{g}"] = r.edge_gap
-    out["reason"] = _reason(results)
+    out["reason"] = _reasons(results)
     return out
 
 
@@ -305,15 +313,15 @@ def _corner_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
     qs = []
     for g in _GAPS[driven]:
         qs.append(Quantity(f"corner_modes_{g}", "int32", "1",
-                           f"corner modes of a square flake {_AT[g]}, all corners"))
+                           f"corner modes of a square flake {_AT[g]}, all corners", g))
         for c in _CORNERS:
             qs.append(Quantity(f"corner_modes_{g}_{c}", "int32", "1",
                                f"corner modes {_AT[g]} at the corner ({c[0]}, {c[1]}) "
-                               f"(0 low, 1 high end of a_1, a_2)"))
+                               f"(0 low, 1 high end of a_1, a_2)", g))
         qs += _trust_quantities("corner_modes", g, "size", "flake side used, cells")
         qs.append(Quantity(f"corner_modes_{g}_edge_gap", "float64", "energy",
                            f"gap confining the corner modes {_AT[g]}: the smaller of the bulk "
-                           f"gap and the edge gaps of ribbons as wide as the flake"))
+                           f"gap and the edge gaps of ribbons as wide as the flake", g))
     qs.append(Quantity("corner_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
     return tuple(qs)
 
@@ -330,7 +338,8 @@ def _corner_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
                   sweepable=False),
             _WINDOW,
             _METHOD),
-    quantities=_corner_quantities, dims=(2,), driven=None, operators=(),
+    quantities=_corner_quantities, reason_groups=gap_groups, dims=(2,), driven=None,
+    operators=(),
 )
 def corner_modes(point: Point, *, size: int = 16, max_size: int = 48,
                  window: float = bd.WINDOW_FRACTION, method: str = "auto") -> dict[str, Any]:
@@ -352,5 +361,5 @@ def corner_modes(point: Point, *, size: int = 16, max_size: int = 48,
         out.update(_trust("corner_modes", g, "size", r))
         out[f"corner_modes_{g}_edge_gap"] = float("nan") if r.window is None else r.window.gap
     out["corner_modes_method"] = _method_code(results)
-    out["reason"] = _reason(results)
+    out["reason"] = _reasons(results)
     return out

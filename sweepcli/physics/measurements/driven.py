@@ -24,12 +24,14 @@ from .. import chiral_frames as cf
 from .. import floquet_chern as fc
 from .. import line_symmetry as ls
 from .. import quasienergy as qe
+from ..drives.base import NoSymmetricTime
 from ..drives.evolution import Slicing, decide_slicing
 from ..invariant_base import CHERN_KMESH, CHERN_MAX_KMESH, FLUX_TOL, PHASE_TOL, WINDING_KMESH
 from ..lattice import pauli
 from ..point import Point
 from ..registry import Param
 from . import MEASUREMENTS
+from .static import point_gap
 
 #: Default mesh of the quasienergy-gap search (points per direction; minima are refined).
 GAP_KMESH = qe.GAP_KMESH
@@ -68,6 +70,32 @@ def point_gaps(point: Point, kmesh: int = GAP_KMESH, refine: bool = True) -> qe.
 def _need_drive(point: Point) -> None:
     if point.drive is None:
         raise ValueError("this measurement needs a periodic drive; the job has none")
+
+
+def gap_groups(dim: int, driven: bool = False) -> tuple[str, ...]:
+    """Reason groups of the invariants of the two gaps: ``("0", "pi")``, static ``("0",)``."""
+    return ("0", "pi") if driven else ("0",)
+
+
+def bulk_closed(point: Point) -> frozenset[str]:
+    """The gaps (``"0"``, ``"pi"``) whose bulk gap is at or below ``point.gap_tol``.
+
+    Driven: the refined quasienergy gaps of the whole Brillouin zone (:func:`point_gaps`; none
+    when the time integration did not converge, which the invariants report themselves);
+    static: the direct gap above the filled bands (:func:`~.static.point_gap`), the gap
+    ``"0"``. An invariant of a closed gap is missing with ``GAP_CLOSED`` even where the loop
+    it is computed on (a line of a 2D zone, the points of a 1D mesh) stays gapped.
+    """
+    def compute() -> frozenset[str]:
+        if point.drive is None:
+            return frozenset({"0"}) if not point_gap(point).gap > point.gap_tol else frozenset()
+        g = point_gaps(point)
+        if not g.converged:
+            return frozenset()
+        return frozenset(name for name, width in (("0", g.gap_0), ("pi", g.gap_pi))
+                         if not width > point.gap_tol)
+
+    return point.memo(("bulk_closed",), compute)
 
 
 def _gap_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
@@ -172,26 +200,56 @@ def floquet_chern(point: Point, *, kmesh: int = CHERN_KMESH,
                   open_high=True,
                   doc="largest accepted distance of the raw integral from an integer",
                   sweepable=False)),
-    quantities=(Quantity("w_0", "int32", "1", "winding number of the gap at quasienergy 0"),
-                Quantity("w_pi", "int32", "1", "winding number of the gap at quasienergy pi/T"),
+    quantities=(Quantity("w_0", "int32", "1", "winding number of the gap at quasienergy 0",
+                         "0"),
+                Quantity("w_pi", "int32", "1", "winding number of the gap at quasienergy pi/T",
+                         "pi"),
                 Quantity("w_residue", "float64", "1",
                          "largest distance of the raw winding integrals from integers"),
                 Quantity("w_kmesh", "int32", "1", "k-mesh points per direction used last")),
-    dims=(2,), driven=True, operators=(),
+    reason_groups=gap_groups, dims=(2,), driven=True, operators=(),
 )
 def rudner_winding(point: Point, *, kmesh: int = 16, max_kmesh: int = 128,
                    residue_tol: float = fc.RESIDUE_TOL) -> dict[str, Any]:
     """``W_0``, ``W_pi``; sign such that ``C(band) = W(gap above) - W(gap below)``.
 
-    A winding is missing when its gap is closed (``GAP_CLOSED``; the other one is still given)
-    or when the integral does not settle within ``residue_tol`` (``NOT_CONVERGED``).
+    A winding is missing when its gap is closed (``GAP_CLOSED`` in that gap's reason; the other
+    one is still given) or when the integral does not settle within ``residue_tol``
+    (``NOT_CONVERGED``).
     """
     _need_drive(point)
     g = point_gaps(point)
     r = fc.rudner_winding(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
                           max_kmesh=max_kmesh, residue_tol=residue_tol)
-    return {"w_0": r.w_0, "w_pi": r.w_pi, "w_residue": r.residue, "w_kmesh": r.kmesh,
-            "reason": r.reason}
+    out = {"w_0": r.w_0, "w_pi": r.w_pi, "w_residue": r.residue, "w_kmesh": r.kmesh,
+           "reason": {"0": r.reason_0, "pi": r.reason_pi}}
+    return _close_gaps(out, bulk_closed(point), {"0": ("w_0",), "pi": ("w_pi",)})
+
+
+def _close_gaps(out: dict[str, Any], closed: frozenset[str], names: dict[str, tuple[str, ...]]
+                ) -> dict[str, Any]:
+    """``out`` with the invariants ``names[g]`` of every closed gap ``g`` missing (``None``)
+    and that gap's reason ``GAP_CLOSED``; the other gap's values are left as they are."""
+    for g in closed:
+        for n in names.get(g, ()):
+            out[n] = None
+        out["reason"][g] = Reason.GAP_CLOSED
+    return out
+
+
+def frame_times_of(point: Point, times: list[float] | None) -> tuple[float, float] | None:
+    """The two symmetric starting times (absolute) of the point's drive: the job's ``times``
+    (fractions of the period), or those the drive finds; ``None`` when the drive has none
+    (:class:`~sweepcli.physics.drives.base.NoSymmetricTime`: no chiral-symmetric frame, so its
+    chiral invariants are undefined, ``Reason.NO_CHIRAL_FRAME``). A protocol that cannot
+    search raises ``ValueError`` (give ``times`` then)."""
+    given = _times(times, point.drive.period)
+    if given is not None:
+        return cf.frame_times(point.drive, _chiral_op(point), given)
+    try:
+        return point.drive.symmetric_times(_chiral_op(point))
+    except NoSymmetricTime:
+        return None
 
 
 def _chiral_op(point: Point) -> np.ndarray:
@@ -253,11 +311,12 @@ def _times(times: Any, period: float) -> list[float] | None:
                   open_high=True, units="rad",
                   doc="largest accepted phase step of a determinant between neighbouring k",
                   sweepable=False)),
-    quantities=(Quantity("nu_0", "int32", "1", "chiral invariant of the gap at quasienergy 0"),
+    quantities=(Quantity("nu_0", "int32", "1", "chiral invariant of the gap at quasienergy 0",
+                         "0"),
                 Quantity("nu_pi", "int32", "1",
-                         "chiral invariant of the gap at quasienergy pi/T"),
+                         "chiral invariant of the gap at quasienergy pi/T", "pi"),
                 Quantity("nu_kmesh", "int32", "1", "k-mesh points used last")),
-    dims=(1,), driven=True, operators=("chiral",),
+    reason_groups=gap_groups, dims=(1,), driven=True, operators=("chiral",),
 )
 def chiral_windings(point: Point, *, times: list[float] | None = None,
                     kmesh: int = WINDING_KMESH, max_kmesh: int = 4096,
@@ -267,13 +326,28 @@ def chiral_windings(point: Point, *, times: list[float] | None = None,
     ``nu`` belongs to the first symmetric time ``t1`` (the earliest mirror point of the drive,
     :meth:`~sweepcli.physics.drives.base.Drive.symmetric_times`); the
     number of 0 (pi) modes at each end of an open chain is ``|nu_0|`` (``|nu_pi|``).
+
+    One reason per gap: ``GAP_CLOSED`` for a gap closed in the bulk (:func:`bulk_closed`, the
+    refined quasienergy gaps, so a closing between mesh points counts), ``NO_CHIRAL_FRAME``
+    in both when the drive has no chiral-symmetric time (a step sequence without a mirror
+    point).
     """
     _need_drive(point)
-    r = cf.chiral_windings(point.drive, _chiral_op(point),
-                           times=_times(times, point.drive.period),
+    frame = frame_times_of(point, times)
+    if frame is None:
+        return {"nu_0": None, "nu_pi": None, "nu_kmesh": None,
+                "reason": {"0": Reason.NO_CHIRAL_FRAME, "pi": Reason.NO_CHIRAL_FRAME}}
+    closed = bulk_closed(point)
+    if closed >= {"0", "pi"}:
+        return {"nu_0": None, "nu_pi": None, "nu_kmesh": None,
+                "reason": {"0": Reason.GAP_CLOSED, "pi": Reason.GAP_CLOSED}}
+    r = cf.chiral_windings(point.drive, _chiral_op(point), times=list(frame),
                            gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
-                           phase_tol=phase_tol, slicing=point_slicing(point))
-    return {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh, "reason": r.reason}
+                           phase_tol=phase_tol, slicing=point_slicing(point),
+                           closed_gaps=closed)
+    out = {"nu_0": r.nu_0, "nu_pi": r.nu_pi, "nu_kmesh": r.kmesh,
+           "reason": {g: r.gap_reason(g, point.gap_tol) for g in ("0", "pi")}}
+    return _close_gaps(out, closed, {"0": ("nu_0",), "pi": ("nu_pi",)})
 
 
 def _line_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
@@ -285,10 +359,10 @@ def _line_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
                         f"this phase in (-pi, pi])"),
                Quantity(f"line_w0_s{j}", "int32", "1",
                         f"winding of sector {j} at quasienergy 0" if driven else
-                        f"winding of sector {j} at energy 0")]
+                        f"winding of sector {j} at energy 0", "0")]
         if driven:
             qs.append(Quantity(f"line_wpi_s{j}", "int32", "1",
-                               f"winding of sector {j} at quasienergy pi/T"))
+                               f"winding of sector {j} at quasienergy pi/T", "pi"))
     return tuple(qs)
 
 
@@ -325,7 +399,8 @@ def _matrix(value: Any, n: int, operators: dict | None = None) -> np.ndarray:
                   sweepable=False),
             Param("max_kmesh", kind="int", default=4096, low=4, doc="largest k-mesh",
                   sweepable=False)),
-    quantities=_line_quantities, dims=(1, 2), driven=None, operators=("chiral",),
+    quantities=_line_quantities, reason_groups=gap_groups, dims=(1, 2), driven=None,
+    operators=("chiral",),
 )
 def line_winding(point: Point, *, operator: Any, direction: list[float],
                  origin: list[float] | None = None, times: list[float] | None = None,
@@ -334,38 +409,53 @@ def line_winding(point: Point, *, operator: Any, direction: list[float],
 
     Layout: ``line_sectors`` = number of distinct eigenvalues of ``S`` (at most
     ``MAX_SECTORS`` = 4); slot ``j`` (1-based) holds the sector with the ``j``-th smallest
-    eigenvalue phase ``line_phase_s{j}``; unused slots are missing (nan / None). The reason is
-    the worst over the sectors (a gapless sector makes its own windings missing). Raises
-    ValueError if ``S`` does not commute with ``U(k)`` on the line or with the chiral operator.
+    eigenvalue phase ``line_phase_s{j}``; unused slots are missing (nan / None). One reason per
+    gap, the worst over the sectors (a gapless sector makes its own windings missing); a gap
+    closed in the bulk (:func:`bulk_closed`: the 2D quasienergy gap, or the static gap) leaves
+    that gap's windings missing with ``GAP_CLOSED`` even where the line stays gapped, and a
+    drive without a chiral-symmetric time leaves everything missing with
+    ``NO_CHIRAL_FRAME``. Raises ValueError if ``S`` does not commute with ``U(k)`` on the
+    line or with the chiral operator.
     """
-    source = point.drive if point.drive is not None else point.tb  # U(k) or, static, H(k)
+    driven = point.drive is not None
+    groups = gap_groups(0, driven)
+    source = point.drive if driven else point.tb  # U(k) or, static, H(k)
     n = source.norb
     s = _matrix(operator, n, point.tb.operators)
     org = np.zeros(source.dim) if origin is None else np.asarray(origin, dtype=float)
-    slicing = point_slicing(point) if point.drive is not None else None
+    frame = frame_times_of(point, times) if driven else None
+    if driven and frame is None:
+        out: dict[str, Any] = {q.name: (None if q.dtype == "int32" else math.nan)
+                               for q in _line_quantities(source.dim, True)}
+        out["reason"] = {g: Reason.NO_CHIRAL_FRAME for g in groups}
+        return out
+    closed = bulk_closed(point)
+    slicing = point_slicing(point) if driven else None
     sectors = ls.line_sector_windings(source, s, _chiral_op(point), origin=org,
                                       direction=direction,
-                                      times=None if point.drive is None
-                                      else _times(times, point.drive.period),
+                                      times=list(frame) if driven else None,
                                       gap_tol=point.gap_tol, kmesh_n=kmesh, max_kmesh=max_kmesh,
-                                      slicing=slicing)
+                                      slicing=slicing, closed_gaps=closed)
     if len(sectors) > MAX_SECTORS:
         raise ValueError(f"the operator has {len(sectors)} distinct eigenvalues; at most "
                          f"{MAX_SECTORS} sectors are stored")
-    out: dict[str, Any] = {"line_sectors": len(sectors)}
-    worst = Reason.OK
+    out = {"line_sectors": len(sectors)}
+    worst = {g: Reason.OK for g in groups}
     for j in range(1, MAX_SECTORS + 1):
         if j <= len(sectors):
             sec = sectors[j - 1]
             out[f"line_phase_s{j}"] = float(np.angle(sec.eigenvalue))
             out[f"line_w0_s{j}"] = sec.result.nu_0
-            if point.drive is not None:
+            if driven:
                 out[f"line_wpi_s{j}"] = sec.result.nu_pi
-            worst = max(worst, sec.result.reason)
+            for g in groups:
+                worst[g] = max(worst[g], sec.result.gap_reason(g, point.gap_tol))
         else:
             out[f"line_phase_s{j}"] = math.nan
             out[f"line_w0_s{j}"] = None
-            if point.drive is not None:
+            if driven:
                 out[f"line_wpi_s{j}"] = None
-    out["reason"] = Reason(worst)
-    return out
+    out["reason"] = {g: Reason(r) for g, r in worst.items()}
+    slots = range(1, MAX_SECTORS + 1)
+    return _close_gaps(out, closed, {"0": tuple(f"line_w0_s{j}" for j in slots),
+                                     "pi": tuple(f"line_wpi_s{j}" for j in slots)})
