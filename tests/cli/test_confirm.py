@@ -28,7 +28,7 @@ w = { start = 0.3, stop = 1.9, num = 5 }
 [measure.end_modes]
 """
 BOUNDARY = ("end_modes_0", "end_modes_0_left", "end_modes_0_right", "end_modes_0_states",
-            "end_modes_0_weight", "end_modes_0_cells", "end_modes_method", "end_modes_reason",
+            "end_modes_0_weight", "end_modes_0_cells", "end_modes_method", "end_modes_0_reason",
             "agree_winding_end")
 
 
@@ -67,7 +67,7 @@ def test_boundary_only_on_chosen_cells_and_not_requested_elsewhere(tmp_path):
     assert 0 < chosen.sum() < r.size
     assert f"{int(chosen.sum())} cells selected, computed on {int(chosen.sum())}" in out
     assert r.done.all() and r.attrs["confirm_measurements"] == "end_modes"
-    reason = r.data["end_modes_reason"]
+    reason = r.data["end_modes_0_reason"]
     assert (reason[~chosen] == Reason.NOT_REQUESTED).all()
     assert (reason[chosen] == Reason.OK).all()
     assert (r.data["end_modes_0_left"][chosen] == winding_map()[chosen]).all()
@@ -82,7 +82,7 @@ def test_resume_with_a_larger_selection_keeps_and_adds(tmp_path):
     small = write(tmp_path, '[confirm]\nacross = ["winding"]\nper_region = 1\n', "small")
     run(small)
     first = Results.read(tmp_path / "small.h5")
-    kept = first.data["end_modes_reason"] == Reason.OK
+    kept = first.data["end_modes_0_reason"] == Reason.OK
     # Mark a computed cell so that recomputing it would show.
     i = tuple(np.argwhere(kept)[0])
     first.data["end_modes_0_cells"][i] = 12345
@@ -95,7 +95,7 @@ def test_resume_with_a_larger_selection_keeps_and_adds(tmp_path):
     assert resumed.data["end_modes_0_cells"][i] == 12345  # kept, not recomputed
     resumed.data["end_modes_0_cells"][i] = fresh.data["end_modes_0_cells"][i]
     same(resumed, fresh)
-    now = resumed.data["end_modes_reason"] == Reason.OK
+    now = resumed.data["end_modes_0_reason"] == Reason.OK
     assert (now & kept).sum() == kept.sum() and now.sum() > kept.sum()
     assert "stride = 2" in resumed.attrs["confirm"]
 
@@ -105,7 +105,7 @@ def test_resume_after_the_bulk_pass_computes_the_pending_cells(tmp_path):
     run(job)
     fresh = Results.read(tmp_path / "job.h5")
     cut = Results.read(tmp_path / "job.h5")  # as if stopped in pass 2
-    todo = cut.data["end_modes_reason"] == Reason.OK
+    todo = cut.data["end_modes_0_reason"] == Reason.OK
     for name in BOUNDARY:
         var = cut.variables[name]
         cut.data[name][todo] = var.missing()
@@ -120,7 +120,7 @@ def test_without_confirm_a_resumed_run_computes_every_cell(tmp_path):
     run(job)
     run(write(tmp_path, "", "job"), "--resume")
     r = Results.read(tmp_path / "job.h5")
-    assert (r.data["end_modes_reason"] == Reason.OK).all() and r.done.all()
+    assert (r.data["end_modes_0_reason"] == Reason.OK).all() and r.done.all()
     assert r.attrs["confirm"] == ""
 
 
@@ -186,7 +186,7 @@ def test_maps_tell_not_requested_from_missing_and_mark_confirmed(tmp_path):
     job = write(tmp_path, '[confirm]\nacross = ["winding"]\nper_region = 1\n', "job")
     run(job)
     r = Results.read(tmp_path / "job.h5")
-    n_ok = int((r.data["end_modes_reason"] == Reason.OK).sum())
+    n_ok = int((r.data["end_modes_0_reason"] == Reason.OK).sum())
     text = CliRunner().invoke(app, ["map", str(tmp_path / "job.h5"), "--var", "end_modes_0",
                                     "--terminal"]).stdout
     assert f"-  not requested ([confirm] did not select it) ({30 - n_ok} points)" in text
