@@ -33,10 +33,13 @@ from .lattice import TightBinding
 #: Bytes per complex128 number.
 _C16 = 16
 #: ``"auto"`` uses dense diagonalisation up to this many sample orbitals: the measured one-core
-#: crossovers of benchmarks/bench_flake_modes.py (static: dense eigh against shift-invert
-#: Lanczos, equal near 350 orbitals; driven: dense U against Lanczos on (U + U^dagger)/2,
-#: equal near 1100 orbitals).
-DENSE_MAX = 400
+#: crossovers of benchmarks/bench_flake_modes.py and bench_corner_count.py. Static: dense eigh
+#: against shift-invert Lanczos, dense/Lanczos 0.7 at 256 and 1.6 at 400 orbitals, equal near
+#: 300. Driven (dense U formed by Chebyshev steps on the identity against Lanczos on
+#: (U + U^dagger)/2, both gaps of one flake): equal near 900 orbitals for the two-step BBH
+#: drive, 1100 for a bhz_corner mass drive at omega = 3.5 and beyond 1600 for the same drive at
+#: omega = 6 (clustered levels at pi slow Lanczos down); 1200 sits between them.
+DENSE_MAX = 300
 DENSE_MAX_DRIVEN = 1200
 #: Memory assumed when the machine's cannot be read (bytes).
 FALLBACK_MEMORY = 24 * 2**30

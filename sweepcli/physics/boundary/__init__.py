@@ -29,6 +29,7 @@ from .boxes import (
     check_sample_side,
     count_boxes,
     floquet_boundary_gap,
+    floquet_boundary_gaps,
     floquet_box_modes,
     gap_and_decay,
     static_boundary_gap,
@@ -42,7 +43,14 @@ from .ribbons import (
     ribbon_modes,
     signed_crossings,
 )
-from .solvers import SIGMA_OFFSET, V0_SEED, floquet_levels, sample_steps, static_levels
+from .solvers import (
+    SIGMA_OFFSET,
+    V0_SEED,
+    FloquetSample,
+    floquet_levels,
+    sample_steps,
+    static_levels,
+)
 from .windows import (
     WINDOW_FRACTION,
     Window,
@@ -54,9 +62,10 @@ from .windows import (
 
 __all__ = [
     "DECAY_STEP", "K_OFFSET", "SIGMA_OFFSET", "V0_SEED", "WINDOW_FRACTION",
-    "EdgeModes", "ModeCount", "Window",
+    "EdgeModes", "FloquetSample", "ModeCount", "Window",
     "box_modes", "box_sizes", "check_sample_side", "count_boxes", "default_kmesh",
-    "edge_window", "floquet_boundary_gap", "floquet_box_modes", "floquet_levels",
+    "edge_window", "floquet_boundary_gap", "floquet_boundary_gaps",
+    "floquet_box_modes", "floquet_levels",
     "floquet_ribbon_modes", "floquet_windows", "gap_and_decay", "low_edge_mask",
     "ribbon_kgrid", "ribbon_modes", "sample_steps", "signed_crossings", "static_boundary_gap",
     "static_levels", "static_window",

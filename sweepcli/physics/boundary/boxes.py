@@ -23,11 +23,10 @@ from scipy.sparse.linalg import ArpackNoConvergence
 from ...schema import Reason
 from .. import quasienergy as qe
 from .. import samples
-from ..drives.evolution import evolve
 from ..lattice import TightBinding
 from . import counts
 from .ribbons import ribbon_kgrid
-from .solvers import floquet_levels, sample_steps, static_levels
+from .solvers import FloquetSample, sample_steps, static_levels
 from .windows import Window
 
 #: Step in k (rad) of the central difference for the curvature of a gap at its minimum.
@@ -105,6 +104,15 @@ def _sizes_to_try(shape: Sequence[int], max_side: int | None, xi: float, charged
     return boxes
 
 
+#: Quasienergy distances ``d`` with ``d T`` below this are recomputed from the eigenvalues of
+#: ``U`` itself: from ``(U + U^dagger)/2`` they are ``arccos(lambda) / T``, whose relative
+#: rounding error ``~1e-15 / (d T)^2`` stays below ``1e-11`` above it.
+ARCCOS_GUARD = 1e-2
+#: Evaluations spent on proving that the twice-wider ribbon's gap cannot halve (else its
+#: minimum is polished as by :func:`gap_and_decay`).
+CERTIFY_EVALS = 12
+
+
 def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = None,
                         nk: int = 64) -> tuple[float, float]:
     """Gap around ``centre`` that confines boundary modes, and their decay length (cells).
@@ -116,29 +124,167 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
     ribbon, not a gap: it is returned as 0. Returns the smallest gap and the longest decay
     length over the geometries (:func:`gap_and_decay`).
     """
-    def dist(h: TightBinding, k: np.ndarray) -> np.ndarray:
-        return np.min(np.abs(np.linalg.eigvalsh(h.bloch(k[:, None])) - centre), axis=-1)
+    def dists_of(h: TightBinding) -> Callable[[np.ndarray], np.ndarray]:
+        def dists(k: np.ndarray) -> np.ndarray:
+            e = np.linalg.eigvalsh(h.bloch(k[:, None]))
+            return np.min(np.abs(e - centre), axis=-1)[None]
+        return dists
 
-    return _settled([[gap_and_decay(lambda k, h=h: dist(h, k), nk) for h in pair]
-                     for pair in _geometries(tb, width)])
+    found = []
+    for geometry in _geometries(tb, width):
+        lip = _slope_bound([(1.0, geometry[-1])])
+        found.append(_geometry_gaps([dists_of(h) for h in geometry], 1, nk, lip)[0])
+    return _settled_all([found])[0]
 
 
 def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: float,
                          centre: float, width: int | None = None,
                          nk: int = 64) -> tuple[float, float]:
     """:func:`static_boundary_gap` of a drive, around quasienergy ``centre`` (0 or ``pi/T``)."""
-    def dist(parts: list, k: np.ndarray) -> np.ndarray:
-        u = evolve([(t, h.bloch(k[:, None])) for t, h in parts])
-        eps = -np.angle(np.linalg.eigvals(u)) / period
-        return np.min(np.abs(qe.wrap_quasienergy(eps - centre, period)), axis=-1)
+    return floquet_boundary_gaps(factors, period, [centre], width, nk)[0]
 
+
+def floquet_boundary_gaps(factors: Sequence[tuple[float, TightBinding]], period: float,
+                          centres: Sequence[float], width: int | None = None,
+                          nk: int = 64) -> list[tuple[float, float]]:
+    """:func:`floquet_boundary_gap` at several centres, sharing the ribbon evolutions.
+
+    ``U(k_par)`` of each ribbon is evolved once per momentum for all centres; the distance of
+    the nearest level from a centre ``c`` is ``arccos(lambda_max) / T`` with ``lambda_max`` the
+    largest eigenvalue of the Hermitian part of ``exp(i c T) U`` (one Hermitian eigenvalue
+    problem serves both 0 and ``pi/T``), and is recomputed from the eigenvalues of ``U`` where
+    it is below ``ARCCOS_GUARD / T``. Returns ``[(gap, xi), ...]`` in the order of ``centres``.
+    """
+    centres = [float(c) for c in centres]
     per_step = [_geometries(f, width) for _, f in factors]
     found = []
     for j in range(len(per_step[0])):
-        found.append([gap_and_decay(lambda k, j=j, w=w: dist(
-            [(t, g[j][w]) for (t, _), g in zip(factors, per_step)], k), nk)
-            for w in range(len(per_step[0][j]))])
-    return _settled(found)
+        geometry = [[(float(t), g[j][w]) for (t, _), g in zip(factors, per_step)]
+                    for w in range(len(per_step[0][j]))]
+        lip = _slope_bound(geometry[-1]) / period
+        found.append(_geometry_gaps([_floquet_dists(parts, period, centres)
+                                     for parts in geometry], len(centres), nk, lip))
+    return _settled_all(list(zip(*found)))
+
+
+def _floquet_dists(parts: list[tuple[float, TightBinding]], period: float,
+                   centres: list[float]) -> Callable[[np.ndarray], np.ndarray]:
+    """``k -> (len(centres), nk)`` distances of the nearest quasienergy from each centre."""
+    signs = []
+    for c in centres:
+        turn = c * period / np.pi
+        signs.append(1.0 if turn == 0 else (-1.0 if abs(turn - 1) <= 1e-12 else None))
+
+    def exact(u: np.ndarray, c: float) -> np.ndarray:
+        eps = -np.angle(np.linalg.eigvals(u)) / period
+        return np.min(np.abs(qe.wrap_quasienergy(eps - c, period)), axis=-1)
+
+    def dists(k: np.ndarray) -> np.ndarray:
+        u = _similar_floquet(parts, k)
+        out = np.empty((len(centres), k.size))
+        herm = None
+        for i, (c, sign) in enumerate(zip(centres, signs)):
+            if sign is None:
+                out[i] = exact(u, c)
+                continue
+            if herm is None:
+                herm = np.linalg.eigvalsh(0.5 * (u + np.conj(np.swapaxes(u, -1, -2))))
+            top = herm[:, -1] if sign > 0 else -herm[:, 0]
+            d = np.arccos(np.clip(top, -1.0, 1.0)) / period
+            close = d * period < ARCCOS_GUARD
+            if np.any(close):
+                d[close] = exact(u[close], c)
+            out[i] = d
+        return out
+
+    return dists
+
+
+def _similar_floquet(parts: list[tuple[float, TightBinding]], k: np.ndarray) -> np.ndarray:
+    """``(nk, n, n)`` unitaries with the eigenvalues of the ribbon's ``U(k)`` (not ``U`` itself).
+
+    With ``H_j = V_j D_j V_j^dagger``, ``V_1^dagger U V_1 = M_1 e^{-i D_n t_n} M_n ...
+    M_2 e^{-i D_1 t_1}`` with ``M_j = V_j^dagger V_{j-1}`` (``M_1 = V_1^dagger V_n``): one
+    product per step instead of forming each exponential and multiplying them.
+    """
+    vs, phases = [], []
+    for t, h in parts:
+        w, v = np.linalg.eigh(h.bloch(k[:, None]))
+        vs.append(v)
+        phases.append(np.exp(-1j * t * w))
+    if len(parts) == 1:
+        y = np.zeros(vs[0].shape, dtype=complex)
+        idx = np.arange(y.shape[-1])
+        y[..., idx, idx] = phases[0]
+        return y
+    first = np.conj(np.swapaxes(vs[1], -1, -2)) @ vs[0]  # M_2
+    y = phases[1][..., :, None] * first * phases[0][..., None, :]
+    for j in range(2, len(parts)):
+        y = phases[j][..., :, None] * ((np.conj(np.swapaxes(vs[j], -1, -2)) @ vs[j - 1]) @ y)
+    last = (np.conj(np.swapaxes(first, -1, -2)) if len(parts) == 2
+            else np.conj(np.swapaxes(vs[0], -1, -2)) @ vs[-1])  # M_1
+    return last @ y
+
+
+def _slope_bound(parts: Sequence[tuple[float, TightBinding]]) -> float:
+    """Bound on ``|d level / d k_par|`` of a ribbon: ``sum_j t_j sum_R 2 |R| ||T_R||_2``.
+
+    A level of ``H(k)`` moves no faster than ``||dH/dk||``, and an eigenphase of a product of
+    exponentials no faster than ``sum_j t_j ||dH_j/dk||`` (divide by ``T`` for quasienergy).
+    """
+    total = 0.0
+    for t, tb in parts:
+        total += abs(t) * sum(2 * abs(r[0]) * float(np.linalg.norm(m, 2))
+                              for r, m in tb.hoppings.items())
+    return total * (1 + 1e-6)
+
+
+def _geometry_gaps(dists: list[Callable[[np.ndarray], np.ndarray]], ncentre: int, nk: int,
+                   lip: float) -> list[tuple[tuple[float, float], bool]]:
+    """``[((gap, xi), halved), ...]`` per centre for one geometry (a chain, or ribbons of width
+    ``W`` and ``2 W``): what :func:`gap_and_decay` gives for the first, and whether the second's
+    gap is below half of it (decided without polishing its minimum when provably not)."""
+    k = ribbon_kgrid(nk)
+    grid = dists[0](k)
+    out = []
+    for i in range(ncentre):
+        out.append([_gap_and_decay(lambda x, i=i: dists[0](x)[i], k, grid[i]), False])
+    if len(dists) > 1 and any(gap > 0 for (gap, _), _ in out):
+        grid2 = dists[1](k)
+        for i in range(ncentre):
+            gap = out[i][0][0]
+            if gap > 0:
+                out[i][1] = _halved(lambda x, i=i: dists[1](x)[i], k, grid2[i], gap / 4, lip)
+    return [tuple(x) for x in out]
+
+
+def _halved(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray, d: np.ndarray,
+            threshold: float, lip: float) -> bool:
+    """Whether :func:`gap_and_decay` of ``dist`` would give a gap below ``4 threshold``.
+
+    That is ``d_0 < threshold`` with ``d_0`` the grid minimum or, when lower, the bounded
+    minimum around it. When ``d`` (slope at most ``lip``) provably stays above ``threshold``
+    on the polishing interval, the minimisation is skipped; otherwise it is run as there.
+    """
+    nk = k.size
+    j = int(np.argmin(d))
+    if d[j] < threshold:
+        return True
+    step = 2 * np.pi / nk
+    # d is periodic in k_par: the grid neighbours bound the polishing interval.
+    pts = [(k[j] - step, float(d[(j - 1) % nk])), (float(k[j]), float(d[j])),
+           (k[j] + step, float(d[(j + 1) % nk]))]
+    for _ in range(CERTIFY_EVALS):
+        bad = [i for i in range(len(pts) - 1)
+               if (pts[i][1] + pts[i + 1][1] - lip * (pts[i + 1][0] - pts[i][0])) / 2
+               < threshold]
+        if not bad:
+            return False
+        i = bad[0]
+        x = 0.5 * (pts[i][0] + pts[i + 1][0])
+        pts.insert(i + 1, (x, float(dist(np.array([x]))[0])))
+    gap, _ = _gap_and_decay(dist, k, d, curvature=False)
+    return gap < 2 * threshold
 
 
 def _geometries(tb: TightBinding, width: int | None) -> list[list[TightBinding]]:
@@ -148,15 +294,20 @@ def _geometries(tb: TightBinding, width: int | None) -> list[list[TightBinding]]
     return [[samples.ribbon(tb, int(w), axis) for w in (width, 2 * width)] for axis in (0, 1)]
 
 
-def _settled(found: list[list[tuple[float, float]]]) -> tuple[float, float]:
-    gaps, xis = [], []
-    for pair in found:
-        gap, xi = pair[0]
-        if len(pair) > 1 and pair[1][0] < gap / 2:
-            gap, xi = 0.0, math.inf
-        gaps.append(gap)
-        xis.append(xi)
-    return min(gaps), max(xis)
+def _settled_all(found: list[list[tuple[tuple[float, float], bool]]]
+                 ) -> list[tuple[float, float]]:
+    """Per centre: the smallest gap and longest decay length over the geometries, a halved
+    gap counting as closed."""
+    out = []
+    for per_geometry in found:
+        gaps, xis = [], []
+        for (gap, xi), halved in per_geometry:
+            if halved:
+                gap, xi = 0.0, math.inf
+            gaps.append(gap)
+            xis.append(xi)
+        out.append((min(gaps), max(xis)))
+    return out
 
 
 def gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], nk: int) -> tuple[float, float]:
@@ -170,19 +321,26 @@ def gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], nk: int) -> tuple[fl
     Returns ``(gap, xi)``; ``xi`` is ``inf`` for a closed gap.
     """
     k = ribbon_kgrid(nk)
-    d = dist(k)
+    return _gap_and_decay(dist, k, dist(k))
+
+
+def _gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray, d: np.ndarray,
+                   curvature: bool = True) -> tuple[float, float]:
+    """:func:`gap_and_decay` with the grid values ``d = dist(k)`` already known."""
     j = int(np.argmin(d))
-    step = 2 * np.pi / nk
+    step = 2 * np.pi / k.size
     res = minimize_scalar(lambda x: float(dist(np.array([x]))[0]),
                           bounds=(k[j] - step, k[j] + step), method="bounded",
                           options={"xatol": 1e-10})
     k0, d0 = (float(res.x), float(res.fun)) if res.fun < d[j] else (float(k[j]), float(d[j]))
     if not d0 > 0:
         return 0.0, math.inf
+    if not curvature:
+        return 2 * d0, math.nan
     h = DECAY_STEP
     dm, dc, dp = dist(np.array([k0 - h, k0, k0 + h]))
-    curvature = max((dm - 2 * dc + dp) / h**2, 0.0)
-    return 2 * d0, math.sqrt(curvature / d0)
+    curv = max((dm - 2 * dc + dp) / h**2, 0.0)
+    return 2 * d0, math.sqrt(curv / d0)
 
 
 def count_boxes(shape: Sequence[int], window: Window, xi: float,
@@ -272,15 +430,20 @@ def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequ
     check_sample_side(shape)
     samples.choose_method(tb0, shape, method, driven=True, limit=memory_limit)
     if xi is None:
-        xi = {g: floquet_boundary_gap(factors, w.period, w.centre, int(shape[0]))[1]
-              if not w.closed(gap_tol) else math.inf for g, w in windows.items()}
-    steps: dict[tuple[int, ...], list] = {}
+        xi = {g: math.inf for g in windows}
+        open_gaps = [g for g, w in windows.items() if not w.closed(gap_tol)]
+        if open_gaps:
+            period = windows[open_gaps[0]].period
+            found = floquet_boundary_gaps(factors, period, [windows[g].centre for g in open_gaps],
+                                          int(shape[0]))
+            xi.update({g: x for g, (_, x) in zip(open_gaps, found)})
+    solvers: dict[tuple[int, ...], FloquetSample] = {}
 
     def levels_of(window: Window) -> Callable:
         def solve(box: tuple[int, ...], m: str) -> tuple[np.ndarray, np.ndarray]:
-            if box not in steps:
-                steps[box] = sample_steps(factors, box)
-            return floquet_levels(steps[box], window, m)
+            if box not in solvers:
+                solvers[box] = FloquetSample(sample_steps(factors, box))
+            return solvers[box].levels(window, m)
         return solve
 
     return {name: count_boxes(

@@ -1,14 +1,15 @@
 """In-window levels and eigenvectors of one open sample, static or driven.
 
 ``method`` is chosen by the caller (:func:`sweepcli.physics.samples.choose_method`: dense up to
-400 orbitals static, 1200 driven, the measured one-core crossovers).
+300 orbitals static, 1200 driven, the measured one-core crossovers).
 Static samples: dense ``eigh`` (eigenvectors of the window only), or shift-invert Lanczos
 (``scipy.sparse.linalg.eigsh`` with ``sigma`` at the gap centre, one LU factorisation and a
 fixed start vector), asking for more levels until the farthest one found lies outside the
-window. Driven samples: dense ``U`` from :func:`sweepcli.physics.drives.evolution.evolve`, or
-the extremal eigenvalues of the Hermitian ``A = (U + U^dagger)/2`` (eigenvalue ``cos(eps T)``:
-near +1 is quasienergy near 0, near -1 is near ``pi/T``) by Lanczos on a linear operator that
-applies ``U`` and ``U^dagger`` to vectors through ``evolve``, never forming ``U``. Both driven
+window. Driven samples (:class:`FloquetSample`, one per sample, shared by its windows): dense ``U``
+formed by Chebyshev steps on the identity, or the extremal eigenvalues of the Hermitian
+``A = (U + U^dagger)/2`` (eigenvalue ``cos(eps T)``: near +1 is quasienergy near 0, near -1 is
+near ``pi/T``) by Lanczos on a linear operator that applies ``U`` and ``U^dagger`` to vectors
+by Chebyshev steps whose data are built once per sample, never forming ``U``. Both driven
 paths then diagonalise ``Q^dagger U Q`` on the subspace found (invariant under ``U``, as a union
 of eigenspaces of ``A``), which separates ``+eps`` from ``-eps``.
 """
@@ -25,7 +26,7 @@ from scipy.sparse.linalg import LinearOperator, eigsh, splu
 
 from .. import quasienergy as qe
 from .. import samples
-from ..drives.evolution import evolve
+from ..drives.evolution import ChebyshevPlan
 from ..lattice import TightBinding
 from .windows import Window
 
@@ -35,6 +36,8 @@ V0_SEED = 20240601
 #: chiral-symmetric samples with an odd number of orbitals have an exact zero mode, where the
 #: factorisation of ``H - sigma`` would be singular.
 SIGMA_OFFSET = 1e-3 * (math.sqrt(5) - 1)
+#: Smallest Lanczos basis of the driven sparse solver.
+NCV_MIN = 40
 
 
 def _v0(n: int) -> np.ndarray:
@@ -100,6 +103,120 @@ def _wrap(x: np.ndarray, period: float) -> np.ndarray:
     return qe.wrap_quasienergy(x, period)
 
 
+class FloquetSample:
+    """One driven open sample, solved at any number of windows with shared work.
+
+    Everything that depends only on the sample is built once and kept: the Chebyshev data of
+    each step (:class:`~sweepcli.physics.drives.evolution.ChebyshevPlan`: bounds, scaled
+    matrix, coefficients, shared by ``U`` and ``U^dagger``), the dense ``U`` of the dense path
+    (formed column-block-wise by the same Chebyshev steps, far cheaper than a dense
+    exponential per step), and the levels of every window already solved, so that box
+    doublings and the two gaps of a count never repeat a diagonalisation.
+
+    Parameters
+    ----------
+    steps : ``(duration, H)`` pairs in time order, ``H`` an ``(N, N)`` sparse sample matrix;
+        ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)``.
+    """
+
+    def __init__(self, steps: Sequence[tuple[float, sp.spmatrix]]) -> None:
+        self.steps = [(float(t), h) for t, h in steps]
+        self.n = self.steps[0][1].shape[0]
+        self._plans: list[ChebyshevPlan] | None = None
+        self._u: np.ndarray | None = None
+        self._solved: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+        #: Applications of ``U`` or ``U^dagger`` to single vectors so far (for benchmarks).
+        self.applications = 0
+
+    @property
+    def plans(self) -> list[ChebyshevPlan]:
+        if self._plans is None:
+            self._plans = [ChebyshevPlan(h, t) for t, h in self.steps]
+        return self._plans
+
+    def apply_u(self, x: np.ndarray) -> np.ndarray:
+        """``U @ x``."""
+        x = np.asarray(x, dtype=complex)
+        self.applications += 1 if x.ndim == 1 else x.shape[1]
+        for plan in self.plans:
+            x = plan.apply(x)
+        return x
+
+    def apply_u_adjoint(self, x: np.ndarray) -> np.ndarray:
+        """``U^dagger @ x``."""
+        x = np.asarray(x, dtype=complex)
+        self.applications += 1 if x.ndim == 1 else x.shape[1]
+        for plan in reversed(self.plans):
+            x = plan.apply(x, adjoint=True)
+        return x
+
+    def apply_a(self, x: np.ndarray) -> np.ndarray:
+        """``(U + U^dagger) / 2 @ x``."""
+        return 0.5 * (self.apply_u(x) + self.apply_u_adjoint(x))
+
+    def dense_u(self) -> np.ndarray:
+        """The dense ``(N, N)`` Floquet operator (formed once)."""
+        if self._u is None:
+            eye = np.eye(self.n, dtype=complex)
+            block = max(1, min(self.n, 256))
+            self._u = np.concatenate([self.apply_u(eye[:, i:i + block])
+                                      for i in range(0, self.n, block)], axis=1)
+        return self._u
+
+    def levels(self, window: Window, method: str) -> tuple[np.ndarray, np.ndarray]:
+        """:func:`floquet_levels` of this sample (computed once per window and method)."""
+        key = (window.centre, window.halfwidth, window.period, method)
+        if key not in self._solved:
+            self._solved[key] = self._levels(window, method)
+        levels, vectors = self._solved[key]
+        return levels.copy(), vectors.copy()
+
+    def _levels(self, window: Window, method: str) -> tuple[np.ndarray, np.ndarray]:
+        period = window.period
+        n = self.n
+        at_pi = window.centre != 0.0
+        # |eps - centre| <= hw  <=>  +-cos(eps T) >= cos(hw T)
+        threshold = math.cos(min(window.halfwidth * period, math.pi))
+        sign = -1.0 if at_pi else 1.0
+        if method == "sparse":
+            op = LinearOperator((n, n), matvec=self.apply_a, matmat=self.apply_a, dtype=complex)
+            # Few levels at a time: every level asked for beyond the window must converge too,
+            # and those sit in the clustered part of the spectrum of A (measured: 6 levels cost
+            # half the applications of U that 16 do on a 16 x 16 flake).
+            nev = 6
+            while True:
+                nev = min(nev, n - 2)
+                # A longer Lanczos basis between restarts (ncv >= NCV_MIN) converges the
+                # clustered extremal levels of A in fewer applications of U (measured: ~10 %).
+                a, q = eigsh(op, k=nev, which="SA" if at_pi else "LA", v0=_v0(n),
+                             ncv=min(n - 1, max(2 * nev + 1, NCV_MIN)))
+                inside = sign * a >= threshold
+                if not inside.all() or nev >= n - 2:
+                    break
+                nev *= 2
+            q = q[:, inside]
+            apply_u = self.apply_u
+        else:
+            u = self.dense_u()
+            bounds = (-np.inf, -threshold) if at_pi else (threshold, np.inf)
+            _, q = sla.eigh(0.5 * (u + u.conj().T), subset_by_value=bounds, driver="evr")
+            apply_u = u.__matmul__
+        if q.shape[1] == 0:
+            return np.zeros(0), q
+        q, _ = np.linalg.qr(q)
+        small = q.conj().T @ apply_u(q)
+        # The subspace is invariant under U (it is a union of eigenspaces of A, which commutes
+        # with U); its compression is unitary and normal, so its Schur form is diagonal.
+        t, z = sla.schur(small, output="complex")
+        eps = -np.angle(np.diag(t)) / period
+        rel = _wrap(eps - window.centre, period)
+        vecs = q @ z
+        keep = np.abs(rel) <= window.halfwidth
+        rel, vecs = rel[keep], vecs[:, keep]
+        order = np.argsort(rel)
+        return rel[order], vecs[:, order]
+
+
 def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, method: str
                    ) -> tuple[np.ndarray, np.ndarray]:
     """Quasienergies of a driven sample inside ``window`` (centre 0 or ``pi/T``), relative to it.
@@ -109,63 +226,18 @@ def floquet_levels(steps: Sequence[tuple[float, sp.spmatrix]], window: Window, m
     steps : ``(duration, H)`` pairs in time order, ``H`` an ``(N, N)`` sparse sample matrix;
         ``U = exp(-i H_last t_last) ... exp(-i H_1 t_1)``.
     window : from :func:`floquet_windows`.
-    method : ``"dense"`` (``U`` formed by :func:`~sweepcli.physics.drives.evolution.evolve`, all of
-        ``A = (U + U^dagger)/2`` diagonalised) or ``"sparse"`` (Lanczos for the extremal
+    method : ``"dense"`` (``U`` formed by Chebyshev steps on the identity, the window's part
+        of ``A = (U + U^dagger)/2`` diagonalised) or ``"sparse"`` (Lanczos for the extremal
         eigenvalues of ``A`` with ``U`` and ``U^dagger`` applied to vectors).
 
     Returns
     -------
     levels : (m,) quasienergies minus the centre, in ``(-pi/T, pi/T]``, ascending.
     vectors : (N, m) orthonormal eigenvectors of ``U``.
+
+    Several windows of one sample should share one :class:`FloquetSample`.
     """
-    period = window.period
-    n = steps[0][1].shape[0]
-    at_pi = window.centre != 0.0
-    # |eps - centre| <= hw  <=>  +-cos(eps T) >= cos(hw T)
-    threshold = math.cos(min(window.halfwidth * period, math.pi))
-    sign = -1.0 if at_pi else 1.0
-    back = [(t, -h) for t, h in reversed(steps)]
-
-    if method == "sparse":
-        def apply_a(x: np.ndarray) -> np.ndarray:
-            x = np.asarray(x, dtype=complex)
-            return 0.5 * (evolve(steps, x) + evolve(back, x))
-
-        op = LinearOperator((n, n), matvec=apply_a, matmat=apply_a, dtype=complex)
-        # Few levels at a time: every level asked for beyond the window must converge too, and
-        # those sit in the clustered part of the spectrum of A (measured: 6 levels cost half
-        # the applications of U that 16 do on a 16 x 16 flake).
-        nev = 6
-        while True:
-            nev = min(nev, n - 2)
-            a, q = eigsh(op, k=nev, which="SA" if at_pi else "LA", v0=_v0(n))
-            inside = sign * a >= threshold
-            if not inside.all() or nev >= n - 2:
-                break
-            nev *= 2
-        q = q[:, inside]
-
-        def apply_u(x: np.ndarray) -> np.ndarray:
-            return evolve(steps, x)
-    else:
-        u = evolve([(t, h.toarray()) for t, h in steps])
-        bounds = (-np.inf, -threshold) if at_pi else (threshold, np.inf)
-        _, q = sla.eigh(0.5 * (u + u.conj().T), subset_by_value=bounds, driver="evr")
-        apply_u = u.__matmul__
-    if q.shape[1] == 0:
-        return np.zeros(0), q
-    q, _ = np.linalg.qr(q)
-    small = q.conj().T @ apply_u(q)
-    # The subspace is invariant under U (it is a union of eigenspaces of A, which commutes with
-    # U); its compression is unitary and normal, so its Schur form is diagonal.
-    t, z = sla.schur(small, output="complex")
-    eps = -np.angle(np.diag(t)) / period
-    rel = _wrap(eps - window.centre, period)
-    vecs = q @ z
-    keep = np.abs(rel) <= window.halfwidth
-    rel, vecs = rel[keep], vecs[:, keep]
-    order = np.argsort(rel)
-    return rel[order], vecs[:, order]
+    return FloquetSample(steps).levels(window, method)
 
 
 def sample_steps(factors: Sequence[tuple[float, TightBinding]], shape: Sequence[int]

@@ -31,6 +31,65 @@ SLICING_KMESH = 8
 CHEBYSHEV_TOL = 1e-15
 
 
+class ChebyshevPlan:
+    """What :func:`chebyshev_propagate` needs for one sparse ``h`` and one time ``t``, built once.
+
+    The spectral bounds, the scaled matrix ``g = (h - a) / b`` and the Bessel coefficients
+    depend only on ``h`` and ``t``; a Lanczos run applies the same few steps thousands of times,
+    so they are computed here once and :meth:`apply` only runs the recurrence. The adjoint
+    ``exp(+i t h)`` shares ``g`` and uses the complex-conjugate coefficients (``J_k`` is real).
+
+    Parameters
+    ----------
+    h : (N, N) sparse Hermitian; t : time (any real).
+    """
+
+    def __init__(self, h: sp.spmatrix, t: float) -> None:
+        h = sp.csr_matrix(h)
+        self.n = h.shape[0]
+        self.trivial = t == 0 or h.nnz == 0
+        if self.trivial:
+            return
+        diag = h.diagonal().real
+        radius = np.asarray(abs(h).sum(axis=1)).ravel() - np.abs(diag)
+        lo, hi = float(np.min(diag - radius)), float(np.max(diag + radius))
+        a, b = 0.5 * (hi + lo), max(0.5 * (hi - lo), 1e-300)
+        x = b * abs(t)
+        kmax = int(x + 20)
+        while abs(jv(kmax, x)) > CHEBYSHEV_TOL:
+            kmax += 10
+        coeff = jv(np.arange(kmax + 1), x) * (-1j * np.sign(t)) ** np.arange(kmax + 1)
+        coeff[1:] *= 2
+        self.coeff = coeff
+        self.coeff_adjoint = coeff.conj()
+        self.phase = np.exp(-1j * a * t)
+        self.g = sp.csr_matrix((h - a * sp.identity(self.n, format="csr")) / b)
+        self.g.sort_indices()
+
+    @property
+    def terms(self) -> int:
+        """Sparse products per application (0 for a trivial step)."""
+        return 0 if self.trivial else self.coeff.size - 1
+
+    def apply(self, vectors: np.ndarray, adjoint: bool = False) -> np.ndarray:
+        """``exp(-i t h) @ vectors`` (``exp(+i t h) @ vectors`` when ``adjoint``)."""
+        psi = np.asarray(vectors, dtype=complex)
+        if self.trivial:
+            return psi.copy()
+        coeff = self.coeff_adjoint if adjoint else self.coeff
+        g = self.g
+        prev, cur = psi, g @ psi
+        out = coeff[0] * prev + coeff[1] * cur
+        for c in coeff[2:]:
+            nxt = g @ cur
+            nxt *= 2
+            nxt -= prev
+            prev, cur = cur, nxt
+            out += c * cur
+        out *= np.conj(self.phase) if adjoint else self.phase
+        return out
+
+
 def chebyshev_propagate(h: sp.spmatrix, t: float, vectors: np.ndarray) -> np.ndarray:
     """``exp(-i t h) @ vectors`` for a sparse Hermitian ``h`` by a Chebyshev expansion.
 
@@ -41,33 +100,14 @@ def chebyshev_propagate(h: sp.spmatrix, t: float, vectors: np.ndarray) -> np.nda
     fall off super-exponentially for ``k > b t``, so about ``b t + 20`` sparse products with
     the whole block of vectors give machine precision, with no per-call norm estimates (which
     dominated ``scipy.sparse.linalg.expm_multiply`` on the repeated applications of a
-    Lanczos run).
+    Lanczos run). Repeated applications of one step should build its :class:`ChebyshevPlan`
+    once.
 
     Parameters
     ----------
     h : (N, N) sparse Hermitian; t : time (any real); vectors : (N,) or (N, m).
     """
-    h = sp.csr_matrix(h)
-    psi = np.asarray(vectors, dtype=complex)
-    if t == 0 or h.nnz == 0:
-        return psi.copy()
-    diag = h.diagonal().real
-    radius = np.asarray(abs(h).sum(axis=1)).ravel() - np.abs(diag)
-    lo, hi = float(np.min(diag - radius)), float(np.max(diag + radius))
-    a, b = 0.5 * (hi + lo), max(0.5 * (hi - lo), 1e-300)
-    x = b * abs(t)
-    kmax = int(x + 20)
-    while abs(jv(kmax, x)) > CHEBYSHEV_TOL:
-        kmax += 10
-    coeff = jv(np.arange(kmax + 1), x) * (-1j * np.sign(t)) ** np.arange(kmax + 1)
-    coeff[1:] *= 2
-    g = (h - a * sp.identity(h.shape[0], format="csr")) / b
-    prev, cur = psi, g @ psi
-    out = coeff[0] * prev + coeff[1] * cur
-    for c in coeff[2:]:
-        prev, cur = cur, 2 * (g @ cur) - prev
-        out += c * cur
-    return np.exp(-1j * a * t) * out
+    return ChebyshevPlan(h, t).apply(vectors)
 
 
 def _dirac_exponential(h: np.ndarray, t: float | np.ndarray, rtol: float) -> np.ndarray | None:

@@ -236,17 +236,18 @@ def _box(point: Point, shape: tuple[int, ...], max_side: int, fraction: float, m
     tb0 = factors[0][1] if driven else point.tb
     samples.choose_method(tb0, shape, method, driven=driven)
     wins = dict(point_windows(point, fraction))  # a copy: the memoised bulk windows stay
-    xi = {}
-    for g, w in wins.items():
-        if w.closed(point.gap_tol):
-            xi[g] = math.inf
-            continue
-        if driven:
-            gap, xi[g] = bd.floquet_boundary_gap(factors, point.drive.period, w.centre, shape[0])
-        else:
-            gap, xi[g] = bd.static_boundary_gap(point.tb, w.centre, shape[0])
+    xi = {g: math.inf for g in wins}
+    open_gaps = [g for g, w in wins.items() if not w.closed(point.gap_tol)]
+    if driven and open_gaps:
+        # One evolution and one eigenvalue problem per ribbon momentum serve both gaps.
+        found = bd.floquet_boundary_gaps(factors, point.drive.period,
+                                         [wins[g].centre for g in open_gaps], shape[0])
+    else:
+        found = [bd.static_boundary_gap(point.tb, wins[g].centre, shape[0]) for g in open_gaps]
+    for g, (gap, x) in zip(open_gaps, found):
+        xi[g] = x
         if corners:
-            wins[g] = bd.edge_window(w, gap)
+            wins[g] = bd.edge_window(wins[g], gap)
     frame, chiral = _chiral_frame(point)
     factors = frame or factors
     w0 = wins["0"]
