@@ -120,6 +120,22 @@ def test_driven_levels_and_projectors_match_expm(name, shape):
     assert found > 0  # some window holds states, so the projectors were compared
 
 
+@pytest.mark.parametrize("halfwidth", [0.0015, 0.013])
+def test_lanczos_finds_every_copy_of_degenerate_in_window_states(halfwidth):
+    # mass_low on a 16 x 16 flake: four states at +-0.00103773 (and four at +-0.01148802),
+    # each value twice; +eps and -eps also share their eigenvalue of (U + U^dagger)/2. Plain
+    # Lanczos returned 2 of the first 4, mixed into two wrong levels (-0.00097666,
+    # 0.00093649). Reference: expm and numpy eig of the same flake, written here.
+    drive = mass_drive(3.5)
+    shape = (16, 16)
+    factors = drive.factors()
+    window = bd.Window(0.0, halfwidth, bd.floquet_windows(drive)["0"].gap, drive.period)
+    ref = reference_floquet_levels(dense_floquet(factors, shape), window)
+    assert ref[0].size == (4 if halfwidth < 0.01 else 8)
+    got = bd.FloquetSample(bd.sample_steps(factors, shape)).levels(window, "sparse")
+    assert_same_states(*got, *ref)
+
+
 @pytest.mark.parametrize("name, kw", [("bhz_corner", dict(m=1.0, delta2=0.5)),
                                       ("bbh", dict(gamma=0.4))])
 def test_static_levels_and_projectors_match_eigh(name, kw):

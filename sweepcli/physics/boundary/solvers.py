@@ -60,6 +60,50 @@ def _ritz(h: sp.spmatrix, vectors: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return e, q @ z
 
 
+def _deflated(apply: callable, q: np.ndarray) -> LinearOperator:
+    """``P apply P`` with ``P = 1 - q q^dagger`` (``q`` orthonormal columns): the operator with
+    the subspace already found removed, for a second look at what Lanczos may have missed."""
+    n = q.shape[0]
+
+    def matvec(x: np.ndarray) -> np.ndarray:
+        x = np.asarray(x, dtype=complex)
+        x = x - q @ (q.conj().T @ x)
+        y = apply(x)
+        return y - q @ (q.conj().T @ y)
+
+    return LinearOperator((n, n), matvec=matvec, matmat=matvec, dtype=complex)
+
+
+def _invariant_span(q: np.ndarray, uq: np.ndarray, tol: float = 1e-8) -> np.ndarray:
+    """Orthonormal basis of ``span(q, U q)``, dropping directions below ``tol``."""
+    basis, r = np.linalg.qr(np.concatenate([q, uq], axis=1))
+    keep = np.abs(np.diag(r)) > tol * max(1.0, float(np.abs(r).max()))
+    return basis[:, keep]
+
+
+def _complete(q: np.ndarray, apply: callable, which: str, inside: callable) -> np.ndarray:
+    """Add the in-window eigenvectors a Lanczos run missed: ``q`` plus every eigenvector of the
+    deflated operator (:func:`_deflated`) whose eigenvalue passes ``inside``, until none does.
+
+    Single-vector Lanczos can return only some copies of an exactly degenerate eigenvalue (four
+    corner modes related by symmetry; for a drive also ``+eps`` and ``-eps``, which share the
+    eigenvalue ``cos(eps T)`` of ``(U + U^dagger)/2``): measured on a 16 x 16 flake of the
+    mass-switched corner model, 2 of 4 in-window states, mixed into two wrong levels. The
+    deflated operator has the missed copies as its extremal eigenvalues, so a run on it finds
+    them or proves that none is left.
+    """
+    n = q.shape[0]
+    while q.shape[1] < n - 3:
+        q, _ = np.linalg.qr(q)
+        vals, vecs = eigsh(_deflated(apply, q), k=2, which=which, v0=_v0(n),
+                           ncv=min(n - 1, NCV_MIN))
+        new = inside(vals)
+        if not new.any():
+            break
+        q = np.concatenate([q, vecs[:, new]], axis=1)
+    return q
+
+
 def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarray, np.ndarray]:
     """Levels of a Hermitian sample matrix inside ``window``, relative to its centre.
 
@@ -89,7 +133,10 @@ def static_levels(h: sp.spmatrix, window: Window, method: str) -> tuple[np.ndarr
             if not inside.all() or nev >= n - 2:
                 break
             nev *= 2
-        e, v = _ritz(h, v[:, inside])
+        # Eigenvalues mu of (H - sigma)^-1 are levels sigma + 1 / mu.
+        v = _complete(v[:, inside], lu.solve, "LM",
+                      lambda mu: np.abs(sigma + 1.0 / mu.real - c) <= hw)
+        e, v = _ritz(h, v)
     else:
         # Only the in-window eigenvectors are computed (MRRR), 3-4x faster than all of them.
         e, v = sla.eigh(h.toarray(), subset_by_value=(c - hw, c + hw), driver="evr")
@@ -195,6 +242,12 @@ class FloquetSample:
                     break
                 nev *= 2
             q = q[:, inside]
+            if q.shape[1]:
+                # +eps and -eps share their eigenvalue of A: the span of q and U q holds both
+                # members of every pair of which Lanczos found a mixture.
+                q = _invariant_span(q, self.apply_u(q))
+            q = _complete(q, self.apply_a, "SA" if at_pi else "LA",
+                          lambda a: sign * a >= threshold)
             apply_u = self.apply_u
         else:
             u = self.dense_u()
