@@ -442,7 +442,8 @@ def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequ
     def levels_of(window: Window) -> Callable:
         def solve(box: tuple[int, ...], m: str) -> tuple[np.ndarray, np.ndarray]:
             if box not in solvers:
-                solvers[box] = FloquetSample(sample_steps(factors, box))
+                solvers[box] = FloquetSample(sample_steps(factors, box), windows=[
+                    w for w in windows.values() if not w.closed(gap_tol)])
             return solvers[box].levels(window, m)
         return solve
 
