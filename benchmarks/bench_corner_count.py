@@ -77,7 +77,8 @@ class Phases:
         "ribbons": [(bd, "floquet_boundary_gaps"), (bd, "floquet_boundary_gap"),
                     (bd, "static_boundary_gap")],
         "flake": [(boxes, "floquet_levels"), (boxes, "static_levels"), (boxes, "sample_steps"),
-                  (getattr(solvers, "FloquetSample", None), "_levels")],
+                  (getattr(solvers, "FloquetSample", None), "_levels"),
+                  (getattr(solvers, "FloquetSample", None), "_filtered_levels")],
         "counting": [(boxes.counts, "count")],
     }
 

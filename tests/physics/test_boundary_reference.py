@@ -258,3 +258,29 @@ def test_static_edge_gaps_and_decay_lengths_match_a_plain_reference(name, kw):
 
     ref = plain_boundary_gap([[dist_of(rb) for rb in pair] for pair in ribbons(tb, 8)])
     check_gap(bd.static_boundary_gap(tb, centre, 8), ref)
+
+
+def test_filtered_block_finds_eight_degenerate_states_at_both_gaps_at_once():
+    # mass_high on a 10 x 10 flake, the sparse path forced: each window is set between the
+    # 8th and 9th state nearest its centre (expm and numpy eig of the same flake, written
+    # here), so it holds 8 states in exactly degenerate groups (C4 copies of corner modes,
+    # +-eps pairs), and both windows are solved by one block iteration (``windows`` hint).
+    drive = mass_drive(6.0)
+    shape = (10, 10)
+    factors = drive.factors()
+    u = dense_floquet(factors, shape)
+    eps = -np.angle(np.linalg.eigvals(u)) / drive.period
+    windows = []
+    for w in bd.floquet_windows(drive).values():
+        dist = np.sort(np.abs(wrap(eps - w.centre, drive.period)))
+        assert dist[8] - dist[7] > 1e-6  # a clear edge between the 8th and 9th state
+        windows.append(bd.Window(w.centre, 0.5 * (dist[7] + dist[8]), w.gap, w.period))
+    sample = bd.FloquetSample(bd.sample_steps(factors, shape), windows=windows)
+    for w in windows:
+        ref = reference_floquet_levels(u, w)
+        assert ref[0].size == 8
+        # Degenerate: every level of the window occurs at least twice.
+        levels = np.sort(ref[0])
+        assert all(np.sum(np.abs(levels - x) < 1e-9) >= 2 for x in levels)
+        got = sample.levels(w, "sparse")
+        assert_same_states(*got, *ref)

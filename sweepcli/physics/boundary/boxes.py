@@ -447,11 +447,16 @@ def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequ
                                           int(shape[0]))
             xi.update({g: x for g, (_, x) in zip(open_gaps, found)})
     solvers: dict[tuple[int, ...], FloquetSample] = {}
+    # The windows each box will be solved at (those of the gaps whose count may reach it):
+    # the sparse path solves them in one block iteration.
+    wanted = {name: _sizes_to_try(shape, max_side, xi[name], chiral is not None)
+              for name, w in windows.items() if not w.closed(gap_tol)}
 
     def levels_of(window: Window) -> Callable:
         def solve(box: tuple[int, ...], m: str) -> tuple[np.ndarray, np.ndarray]:
             if box not in solvers:
-                solvers[box] = FloquetSample(sample_steps(factors, box))
+                solvers[box] = FloquetSample(sample_steps(factors, box), windows=[
+                    windows[name] for name, sizes in wanted.items() if box in sizes])
             return solvers[box].levels(window, m)
         return solve
 
