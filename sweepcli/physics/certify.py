@@ -129,7 +129,7 @@ def _corners(x: np.ndarray) -> np.ndarray:
 
 #: Largest share of hot base plaquettes that is subdivided; above it the next (uniform) base
 #: mesh is taken, which shares the new points between neighbouring cells.
-HOT_SHARE = 0.25
+HOT_SHARE = 0.5
 
 
 def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],

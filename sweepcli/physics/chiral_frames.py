@@ -185,6 +185,31 @@ def frames_on(drive: Drive, k: np.ndarray, t1: float, t2: float, slicing: Slicin
     return e1.u, e2.u, ef.u, e1.converged and e2.converged and ef.converged
 
 
+class LoopCache:
+    """Arrays computed at loop parameters, kept so that a refined loop computes only its new
+    points: ``cache(s)`` returns ``compute(s_new)``'s arrays ``(N, ...)`` at every ``s`` (in
+    that order) and whether every call reported success."""
+
+    def __init__(self, compute: Callable[[np.ndarray], tuple[tuple[np.ndarray, ...], bool]]
+                 ) -> None:
+        self.compute = compute
+        self.s = np.zeros(0)
+        self.arrays: tuple[np.ndarray, ...] | None = None
+        self.ok = True
+
+    def __call__(self, s: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
+        new = s[~np.isin(s, self.s)]
+        if new.size:
+            arrays, ok = self.compute(new)
+            self.ok = self.ok and ok
+            self.s = np.concatenate([self.s, new])
+            self.arrays = arrays if self.arrays is None else tuple(
+                np.concatenate([a, b]) for a, b in zip(self.arrays, arrays))
+        idx = np.searchsorted(self.s, s, sorter=np.argsort(self.s))
+        order = np.argsort(self.s)[idx]
+        return tuple(a[order] for a in self.arrays), self.ok
+
+
 def drive_lipschitz(drive: Drive, direction: np.ndarray, start: float, stop: float,
                     slicing: Slicing | None = None) -> float:
     """Bound on ``||dU/ds||`` of ``U(stop, start)`` along ``k = k0 + s direction``:
@@ -283,8 +308,14 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
     lip_u = drive_lipschitz(drive, direction, t1, t1 + drive.period, slicing)
     lip_f = drive_lipschitz(drive, direction, t1, t1 + drive.period / 2, slicing)
 
-    def measure(s: np.ndarray) -> tuple[ChiralWindings, np.ndarray]:
+    def compute(s: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
         u1, u2, f, ok = frames_on(drive, line_points(origin, direction, s), t1, t2, slicing)
+        return (u1, u2, f), ok
+
+    frames = LoopCache(compute)
+
+    def measure(s: np.ndarray) -> tuple[ChiralWindings, np.ndarray]:
+        (u1, u2, f), ok = frames(s)
         if not ok:
             return ChiralWindings(None, None, None, None, math.nan, math.nan, s.size,
                                   Reason.NOT_CONVERGED), np.ones(s.size, bool)

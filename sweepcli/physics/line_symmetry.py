@@ -19,6 +19,7 @@ from .certify import hopping_bounds
 from .chiral_frames import (
     SYMMETRY_TOL,
     ChiralWindings,
+    LoopCache,
     check_chiral_frame,
     check_direction,
     chiral_from_frames,
@@ -141,29 +142,29 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
     t1 = t2 = 0.0
     if not static:
         t1, t2 = frame_times(source, g, times)
-    cache: dict[bytes, tuple] = {}
     if static:
         lip_u = lip_f = hopping_bounds(source.hoppings, direction)[0]
     else:
         lip_u = drive_lipschitz(source, direction, t1, t1 + source.period, slicing)
         lip_f = drive_lipschitz(source, direction, t1, t1 + source.period / 2, slicing)
 
+    def compute(params: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
+        k = line_points(origin, direction, params)
+        if static:
+            h = source.bloch(k)
+            _commutator_check(s, h, "H(k)", line)
+            return (h, h, h), True
+        u1, u2, f, ok = frames_on(source, k, t1, t2, slicing)
+        for u, t in ((u1, t1), (u2, t2)):
+            _commutator_check(s, u, f"U(k) of the frame at t = {t:g}", line)
+            check_chiral_frame(u, g, f"frame at t = {t:g}")
+        return (u1, u2, f), ok
+
+    cache = LoopCache(compute)
+
     def data(params: np.ndarray):
-        n = params.tobytes()
-        if n not in cache:
-            cache.clear()
-            k = line_points(origin, direction, params)
-            if static:
-                h = source.bloch(k)
-                _commutator_check(s, h, "H(k)", line)
-                cache[n] = (h, None, None, True)
-            else:
-                u1, u2, f, ok = frames_on(source, k, t1, t2, slicing)
-                for u, t in ((u1, t1), (u2, t2)):
-                    _commutator_check(s, u, f"U(k) of the frame at t = {t:g}", line)
-                    check_chiral_frame(u, g, f"frame at t = {t:g}")
-                cache[n] = (u1, u2, f, ok)
-        return cache[n]
+        (x1, x2, f), ok = cache(params)
+        return x1, x2, f, ok
 
     out: list[SectorWinding] = []
     for lam, q in sectors:
