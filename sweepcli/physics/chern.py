@@ -77,6 +77,8 @@ from .lattice import TightBinding, kmesh
 #: levels (up to 4**4 = 256 times finer locally).
 SUBDIVIDE = 4
 SUBDIVIDE_LEVELS = 4
+#: Work limit of the proven mesh, in uniform meshes of ``max_kmesh`` points per direction.
+WORK = 2
 #: Largest base mesh the gap rule may ask for (the bound subdivides where needed).
 START_CAP = 48
 #: Most plaquettes of one mesh that are subdivided; a mesh with more is too coarse as a whole.
@@ -294,8 +296,9 @@ def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_t
     corners and the second-derivative bound of the hoppings) does not prove it, or whose
     phase is at or above ``flux_tol``, is subdivided until all are proven
     (:func:`~sweepcli.physics.certify.certified_chern`: what is proven and what is assumed).
-    When that would evaluate more than ``max_kmesh**2`` points in all, the value is missing
-    with ``NOT_CONVERGED``.
+    When that would evaluate more than ``WORK * max_kmesh**2`` points in all (about the work of
+    the former walk of uniform meshes up to ``max_kmesh``), the value is missing with
+    ``NOT_CONVERGED``.
 
     Parameters
     ----------
@@ -305,7 +308,7 @@ def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_t
         :func:`~sweepcli.physics.spectrum.band_gap` when ``None``.
     gap_tol : gaps below this count as closed.
     kmesh_n : smallest base mesh; the gap rule may raise it.
-    max_kmesh : the work limit is ``max_kmesh**2`` points.
+    max_kmesh : the work limit is ``WORK * max_kmesh**2`` points.
     flux_tol : largest accepted plaquette phase (rad).
 
     Returns
@@ -323,6 +326,6 @@ def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_t
     n = min(max(kmesh_n, min(gap_rule_kmesh(gap), START_CAP)), max_kmesh)
     lip2 = hopping_bounds(tb.hoppings)[1]
     c, flux, _, n = certified_chern(static_subspace(tb, nocc), n, nocc, lip2, flux_tol=flux_tol,
-                                    budget=max_kmesh * max_kmesh, max_n=max_kmesh,
+                                    budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
                                     growth=GROWTH)
     return InvariantResult(c, n, flux, Reason.OK if c is not None else Reason.NOT_CONVERGED)
