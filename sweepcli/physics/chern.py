@@ -60,6 +60,7 @@ from collections.abc import Callable
 import numpy as np
 
 from ..schema import Reason
+from .certify import certified_chern, hermitian_norm, hopping_bounds
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
@@ -69,7 +70,6 @@ from .invariant_base import (
     gap_rule_kmesh,
     occupied_gap,
     stacked_det,
-    walk_meshes,
 )
 from .lattice import TightBinding, kmesh
 
@@ -77,6 +77,10 @@ from .lattice import TightBinding, kmesh
 #: levels (up to 4**4 = 256 times finer locally).
 SUBDIVIDE = 4
 SUBDIVIDE_LEVELS = 4
+#: Work limit of the proven mesh, in uniform meshes of ``max_kmesh`` points per direction.
+WORK = 2
+#: Largest base mesh the gap rule may ask for (the bound subdivides where needed).
+START_CAP = 48
 #: Most plaquettes of one mesh that are subdivided; a mesh with more is too coarse as a whole.
 MAX_HOT = 32
 
@@ -261,10 +265,40 @@ def fhs_chern_subdivided(subspace: Callable[[np.ndarray], np.ndarray], n: int,
     return int(round(-f.sum() / (2 * np.pi))), max(max_flux, float(np.max(np.abs(sub))))
 
 
+def static_subspace(tb: TightBinding, nocc: int
+                    ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for the ``nocc`` lowest
+    bands: their eigenvectors, the direct gap above them, and the slope
+    ``sqrt(||dH/dk_1||^2 + ||dH/dk_2||^2)`` (a bound on ``||dH/dk_u||`` for every unit ``u``)."""
+    disp, mats = tb._stacked()
+
+    def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        phase = np.exp(1j * (np.asarray(k, float) @ disp.T))
+        t = np.tensordot(phase, mats, axes=([-1], [0]))
+        e, v = np.linalg.eigh(tb.onsite + t + np.conj(np.swapaxes(t, -1, -2)))
+        slope2 = 0.0
+        for i in range(2):
+            d = np.tensordot(1j * disp[:, i] * phase, mats, axes=([-1], [0]))
+            slope2 = slope2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
+        return v[..., :nocc], e[..., nocc] - e[..., nocc - 1], np.sqrt(slope2)
+    return data
+
+
 def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_tol: float = 1e-6,
                  kmesh_n: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
                  flux_tol: float = FLUX_TOL) -> InvariantResult:
-    """Chern number of the ``nocc`` lowest bands of a 2D model, with the convergence policy.
+    """Chern number of the ``nocc`` lowest bands of a 2D model, proven on an adaptive mesh.
+
+    The base mesh has ``max(kmesh_n, min(ceil(3.2 / sqrt(gap / 2)), START_CAP))`` points per
+    direction (at most ``max_kmesh``; raised by 1.5 while more than a quarter of its plaquettes
+    fail); every plaquette whose bound
+    (:func:`~sweepcli.physics.certify.cell_lambda`, from the gap and ``||dH/dk||`` at its
+    corners and the second-derivative bound of the hoppings) does not prove it, or whose
+    phase is at or above ``flux_tol``, is subdivided until all are proven
+    (:func:`~sweepcli.physics.certify.certified_chern`: what is proven and what is assumed).
+    When that would evaluate more than ``WORK * max_kmesh**2`` points in all (about the work of
+    the former walk of uniform meshes up to ``max_kmesh``), the value is missing with
+    ``NOT_CONVERGED``.
 
     Parameters
     ----------
@@ -273,29 +307,25 @@ def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_t
     gap : direct gap above the occupied bands (energy units); computed with
         :func:`~sweepcli.physics.spectrum.band_gap` when ``None``.
     gap_tol : gaps below this count as closed.
-    kmesh_n : smallest first mesh; the gap rule may raise it.
-    max_kmesh : largest mesh per direction.
-    flux_tol : largest accepted plaquette flux (rad).
+    kmesh_n : smallest base mesh; the gap rule may raise it.
+    max_kmesh : the work limit is ``WORK * max_kmesh**2`` points.
+    flux_tol : largest accepted plaquette phase (rad).
 
     Returns
     -------
     InvariantResult
-        ``value`` the Chern number (module-docstring sign), ``max_step`` the largest plaquette
-        flux on the finest mesh used.
+        ``value`` the Chern number (module-docstring sign), ``kmesh`` the base mesh,
+        ``max_step`` the largest phase of an elementary cell.
     """
     if tb.dim != 2:
         raise ValueError("the Chern number needs a 2D model")
     gap = occupied_gap(tb, nocc, gap)
     if not gap >= gap_tol:
         return InvariantResult(None, None, math.nan, Reason.GAP_CLOSED)
-
-    def occupied(k: np.ndarray) -> np.ndarray:
-        return np.linalg.eigh(tb.bloch(k))[1][..., :nocc]
-
-    def measure(n: int) -> tuple[tuple[int, ...], float]:
-        c, f = fhs_chern_subdivided(occupied, n, flux_tol)
-        return (c,), f
-
-    value, n, step, reason = walk_meshes(measure, max(kmesh_n, gap_rule_kmesh(gap)), max_kmesh,
-                                       GROWTH, flux_tol)
-    return InvariantResult(None if value is None else value[0], n, step, reason)
+    # The gap rule's mesh, capped: below a small gap the adaptive cells are far cheaper.
+    n = min(max(kmesh_n, min(gap_rule_kmesh(gap), START_CAP)), max_kmesh)
+    lip2 = hopping_bounds(tb.hoppings)[1]
+    c, flux, _, n = certified_chern(static_subspace(tb, nocc), n, nocc, lip2, flux_tol=flux_tol,
+                                    budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
+                                    growth=GROWTH)
+    return InvariantResult(c, n, flux, Reason.OK if c is not None else Reason.NOT_CONVERGED)

@@ -15,10 +15,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
+from .certify import THETA_MAX, certified_loop, hopping_bounds, interval_theta, smallest_singular
 from .chiral_winding import chiral_blocks, chiral_eigenbasis, det_winding
 from .drives.base import Drive
 from .drives.evolution import Slicing, floquet_evolution
-from .invariant_base import PHASE_TOL, WINDING_KMESH, mesh_sequence
+from .invariant_base import PHASE_TOL, WINDING_KMESH, stacked_det
 from .quasienergy import dagger, gap_distances, quasienergy_values
 
 #: Largest accepted ``|[S, X]|`` (symmetry on a line) and ``|G U G - U^dagger|`` (chiral frame).
@@ -142,6 +143,12 @@ def line_momenta(origin: Sequence[float], direction: Sequence[float], n: int) ->
     return np.asarray(origin, float)[None, :] + s[:, None] * np.asarray(direction, float)[None, :]
 
 
+def line_points(origin: np.ndarray, direction: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """``(N, d)`` momenta ``origin + s direction`` at the loop parameters ``s``."""
+    return np.asarray(origin, float)[None, :] + np.asarray(s, float)[:, None] * \
+        np.asarray(direction, float)[None, :]
+
+
 def check_direction(direction: Sequence[float], dim: int) -> np.ndarray:
     """A line direction as a nonzero integer vector of ``dim`` components, or ``ValueError``."""
     d = np.asarray(direction, dtype=float).ravel()
@@ -178,22 +185,86 @@ def frames_on(drive: Drive, k: np.ndarray, t1: float, t2: float, slicing: Slicin
     return e1.u, e2.u, ef.u, e1.converged and e2.converged and ef.converged
 
 
-def refine_windings(measure: Callable[[int], tuple[ChiralWindings, float]], kmesh_n: int,
-                    max_kmesh: int, phase_tol: float) -> ChiralWindings:
-    """Double the mesh from ``kmesh_n`` until two meshes agree with phase steps below
-    ``phase_tol``; ``measure(n)`` returns the windings on ``n`` points and the largest step."""
-    prev = None
-    last = None
-    for n in mesh_sequence(kmesh_n, max_kmesh, 2.0):
-        r, step = measure(n)
-        last = r
+class LoopCache:
+    """Arrays computed at loop parameters, kept so that a refined loop computes only its new
+    points: ``cache(s)`` returns ``compute(s_new)``'s arrays ``(N, ...)`` at every ``s`` (in
+    that order) and whether every call reported success."""
+
+    def __init__(self, compute: Callable[[np.ndarray], tuple[tuple[np.ndarray, ...], bool]]
+                 ) -> None:
+        self.compute = compute
+        self.s = np.zeros(0)
+        self.arrays: tuple[np.ndarray, ...] | None = None
+        self.ok = True
+
+    def __call__(self, s: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
+        new = s[~np.isin(s, self.s)]
+        if new.size:
+            arrays, ok = self.compute(new)
+            self.ok = self.ok and ok
+            self.s = np.concatenate([self.s, new])
+            self.arrays = arrays if self.arrays is None else tuple(
+                np.concatenate([a, b]) for a, b in zip(self.arrays, arrays))
+        idx = np.searchsorted(self.s, s, sorter=np.argsort(self.s))
+        order = np.argsort(self.s)[idx]
+        return tuple(a[order] for a in self.arrays), self.ok
+
+
+def drive_lipschitz(drive: Drive, direction: np.ndarray, start: float, stop: float,
+                    slicing: Slicing | None = None) -> float:
+    """Bound on ``||dU/ds||`` of ``U(stop, start)`` along ``k = k0 + s direction``:
+    ``sum_j t_j ||dH_j/ds||`` over the factors (Duhamel: ``||d e^{-i t H}|| <= t ||dH||``),
+    each from its hoppings (:func:`~sweepcli.physics.certify.hopping_bounds`). Sliced drives
+    use the slicing given (or their ``min_slices``)."""
+    slices = None if drive.exact or slicing is None else slicing.slices
+    return sum(d * hopping_bounds(tb.hoppings, direction)[0]
+               for d, tb in drive.factors(start, stop, slices=slices))
+
+
+def frame_bad_steps(r: ChiralWindings, u1: np.ndarray, u2: np.ndarray, f: np.ndarray,
+                    chiral: np.ndarray, s: np.ndarray, lip_u: float, lip_f: float,
+                    phase_tol: float) -> np.ndarray:
+    """Steps ``s_j -> s_{j+1}`` of a closed loop that are not proven for the windings ``r``
+    was computed from (:func:`chiral_from_frames`): the blocks of ``U_1``, ``U_2`` (``||dU/ds||
+    <= lip_u``) when both gaps are open, else the block of ``F`` (``lip_f``); a step fails when
+    the bound :func:`~sweepcli.physics.certify.interval_theta` reaches
+    :data:`~sweepcli.physics.certify.THETA_MAX` or the phase step reaches ``phase_tol``."""
+    g = np.asarray(chiral, dtype=complex)
+    pm, pp = chiral_eigenbasis(g)
+    if r.nu is not None:
+        blocks, lip = [chiral_blocks(u1, g), chiral_blocks(u2, g)], lip_u
+    elif r.nu_0 is not None:
+        blocks, lip = [np.conj(pm.T) @ f @ pp], lip_f
+    elif r.nu_pi is not None:
+        blocks, lip = [np.conj(pp.T) @ f @ pp], lip_f
+    else:
+        return np.ones(s.size, bool)
+    h = np.diff(np.append(s, s[0] + 2 * np.pi))
+    bad = np.zeros(s.size, bool)
+    for q in blocks:
+        d = stacked_det(q)
+        steps = np.abs(np.angle(np.roll(d, -1) * np.conj(d)))
+        theta = interval_theta(smallest_singular(q), np.full(s.size, lip), h, 0.0, q.shape[-1])
+        bad |= (theta >= THETA_MAX) | (steps >= phase_tol)
+    return bad
+
+
+def refine_windings(measure: Callable[[np.ndarray], tuple[ChiralWindings, np.ndarray]],
+                    kmesh_n: int, max_kmesh: int) -> ChiralWindings:
+    """Bisect the unproven steps of a loop from ``kmesh_n`` uniform points, up to
+    ``max_kmesh`` points (:func:`~sweepcli.physics.certify.certified_loop`); ``measure(s)``
+    returns the windings on the loop parameters ``s`` and the mask of unproven steps
+    (:func:`frame_bad_steps`). Missing with ``NOT_CONVERGED`` when the points run out."""
+    def wrapped(s: np.ndarray) -> tuple[ChiralWindings, np.ndarray]:
+        r, bad = measure(s)
         if r.reason == Reason.GAP_CLOSED and r.nu_0 is None and r.nu_pi is None:
-            return r
-        key = (r.nu_0, r.nu_pi)
-        if step < phase_tol and prev == key:
-            return r
-        prev = key if step < phase_tol else None
-    return ChiralWindings(None, None, None, None, last.gap_0, last.gap_pi, last.kmesh,
+            return r, np.zeros(s.size, bool)
+        return r, bad
+
+    r, s, proven = certified_loop(wrapped, kmesh_n, max_kmesh)
+    if proven and r.reason != Reason.NOT_CONVERGED:
+        return r
+    return ChiralWindings(None, None, None, None, r.gap_0, r.gap_pi, s.size,
                           Reason.NOT_CONVERGED)
 
 
@@ -214,8 +285,11 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
         to ``t1``; exchanging ``t1`` and ``t2`` flips the sign of ``nu_pi``.
     origin, direction : the loop ``k(s) = origin + s direction``, ``s`` in ``[0, 2 pi)``
         (default: the 1D Brillouin zone).
-    kmesh_n, max_kmesh, phase_tol : the mesh is doubled until the largest phase step of the
-        determinants is below ``phase_tol`` on two meshes that agree.
+    kmesh_n, max_kmesh, phase_tol : the loop starts with ``kmesh_n`` uniform points and its
+        steps are bisected until a bound proves each (:func:`frame_bad_steps`; the Lipschitz
+        constant of ``U(k)`` from the hoppings of the steps, :func:`drive_lipschitz`) and every
+        phase step is below ``phase_tol``, up to ``max_kmesh`` points; otherwise the windings
+        are missing with ``NOT_CONVERGED``.
     slicing : the drive's time slicing if already decided
         (:func:`~sweepcli.physics.drives.evolution.decide_slicing`); otherwise converged per frame
         and mesh.
@@ -231,14 +305,24 @@ def chiral_windings(drive: Drive, chiral: np.ndarray, *, times: Sequence[float] 
     g = np.asarray(chiral, dtype=complex)
     t1, t2 = frame_times(drive, g, times)
 
-    def measure(n: int) -> tuple[ChiralWindings, float]:
-        u1, u2, f, ok = frames_on(drive, line_momenta(origin, direction, n), t1, t2, slicing)
+    lip_u = drive_lipschitz(drive, direction, t1, t1 + drive.period, slicing)
+    lip_f = drive_lipschitz(drive, direction, t1, t1 + drive.period / 2, slicing)
+
+    def compute(s: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
+        u1, u2, f, ok = frames_on(drive, line_points(origin, direction, s), t1, t2, slicing)
+        return (u1, u2, f), ok
+
+    frames = LoopCache(compute)
+
+    def measure(s: np.ndarray) -> tuple[ChiralWindings, np.ndarray]:
+        (u1, u2, f), ok = frames(s)
         if not ok:
-            return ChiralWindings(None, None, None, None, math.nan, math.nan, n,
-                                  Reason.NOT_CONVERGED), math.pi
+            return ChiralWindings(None, None, None, None, math.nan, math.nan, s.size,
+                                  Reason.NOT_CONVERGED), np.ones(s.size, bool)
         check_chiral_frame(u1, g, f"frame at t = {t1:g}")
         check_chiral_frame(u2, g, f"frame at t = {t2:g}")
-        return chiral_from_frames(u1, u2, f, g, drive.period, gap_tol=gap_tol,
+        r, _ = chiral_from_frames(u1, u2, f, g, drive.period, gap_tol=gap_tol,
                                   phase_tol=phase_tol, closed_gaps=closed_gaps)
+        return r, frame_bad_steps(r, u1, u2, f, g, s, lip_u, lip_f, phase_tol)
 
-    return refine_windings(measure, kmesh_n, max_kmesh, phase_tol)
+    return refine_windings(measure, kmesh_n, max_kmesh)

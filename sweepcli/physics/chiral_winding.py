@@ -8,8 +8,8 @@ eigenspaces, ``h(k) = P_- H(k) P_+`` (the block from the +1 sector into the -1 s
 
 The kernel :func:`det_winding` takes a batched loop of blocks, so it serves any chiral family
 (Floquet frames included); :func:`winding_number` builds the loop from a :class:`TightBinding`
-and doubles the mesh until the largest phase step of ``det h`` is below ``phase_tol`` and two
-successive meshes agree (:func:`~sweepcli.physics.invariant_base.walk_meshes`).
+and bisects its steps until a bound proves that none can hide a turn of ``det h``
+(:mod:`sweepcli.physics.certify`).
 """
 
 from __future__ import annotations
@@ -19,6 +19,14 @@ import math
 import numpy as np
 
 from ..schema import Reason
+from .certify import (
+    THETA_MAX,
+    certified_loop,
+    hermitian_norm,
+    hopping_bounds,
+    interval_theta,
+    smallest_singular,
+)
 from .invariant_base import (
     PHASE_TOL,
     WINDING_KMESH,
@@ -26,9 +34,8 @@ from .invariant_base import (
     InvariantResult,
     occupied_gap,
     stacked_det,
-    walk_meshes,
 )
-from .lattice import TightBinding, kmesh
+from .lattice import TightBinding
 
 
 def chiral_eigenbasis(chiral: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -105,21 +112,29 @@ def winding_number(tb: TightBinding, chiral: np.ndarray, *, gap: float | None = 
                    ) -> InvariantResult:
     """Winding number of a chiral-symmetric 1D chain (gap at zero energy, half filling).
 
+    The loop starts with ``kmesh_n`` uniform points; every step whose bound on the change of
+    ``arg det h`` (:func:`~sweepcli.physics.certify.interval_theta`, from ``sigma_min(h)`` and
+    ``||dH/dk||`` at its ends and the second-derivative bound of the hoppings) is not below
+    :data:`~sweepcli.physics.certify.THETA_MAX`, or whose phase step is at or above
+    ``phase_tol``, is bisected, up to ``max_kmesh`` points in all; then the value is proven
+    (what is proven and assumed: :mod:`sweepcli.physics.certify`), else missing with
+    ``NOT_CONVERGED``.
+
     Parameters
     ----------
     tb : 1D model whose ``H(k)`` anticommutes with ``chiral``.
     chiral : (n, n) chiral operator, Hermitian, ``chiral^2 = 1``, traceless.
     gap : gap at zero energy (between bands ``n/2 - 1`` and ``n/2``); computed if ``None``.
     gap_tol : gaps below this count as closed.
-    kmesh_n : first mesh; doubled while the largest phase step of ``det h`` is above
-        ``phase_tol`` or the last two meshes disagree, up to ``max_kmesh``.
+    kmesh_n, max_kmesh : first and largest number of loop points.
     phase_tol : largest accepted phase step (rad).
 
     Returns
     -------
     InvariantResult
         ``value`` the winding of ``det h(k)``, ``h = P_- H P_+`` (module docstring: SSH gives
-        +1 for ``|v| < |w|``); ``max_step`` the largest phase step on the finest mesh.
+        +1 for ``|v| < |w|``); ``kmesh`` the number of loop points, ``max_step`` the largest
+        phase step.
     """
     if tb.dim != 1:
         raise ValueError("the winding number needs a 1D model")
@@ -127,16 +142,30 @@ def winding_number(tb: TightBinding, chiral: np.ndarray, *, gap: float | None = 
     gap = occupied_gap(tb, tb.norb // 2, gap)
     if not gap >= gap_tol:
         return InvariantResult(None, None, math.nan, Reason.GAP_CLOSED)
+    lip2 = hopping_bounds(tb.hoppings)[1]
+    rank = tb.norb // 2
+    checked = []
 
-    def measure(n: int) -> tuple[tuple[int, ...], float]:
-        h = tb.bloch(kmesh(n, 1))
-        if n == kmesh_n:
+    def measure(s: np.ndarray):
+        k = s[:, None]
+        h = tb.bloch(k)
+        if not checked:
             violation = np.max(np.abs(chiral @ h + h @ chiral))
             if violation > 1e-8 * max(1.0, float(np.max(np.abs(h)))):
                 raise ValueError(f"H(k) does not anticommute with the chiral operator "
                                  f"(|{{G, H}}| up to {violation:.3g})")
-        w, step = det_winding(chiral_blocks(h, chiral))
-        return (w,), step
+            checked.append(True)
+        q = chiral_blocks(h, chiral)
+        d = stacked_det(q)
+        steps = np.abs(np.angle(np.roll(d, -1) * np.conj(d)))
+        slope = hermitian_norm(tb.bloch_derivative(k, 0))
+        theta = interval_theta(smallest_singular(q), slope, np.diff(np.append(s, 2 * np.pi)),
+                               lip2, rank)
+        return (d, steps), (theta >= THETA_MAX) | (steps >= phase_tol)
 
-    value, n, step, reason = walk_meshes(measure, kmesh_n, max_kmesh, 2.0, phase_tol)
-    return InvariantResult(None if value is None else value[0], n, step, reason)
+    (d, steps), s, proven = certified_loop(measure, kmesh_n, max_kmesh)
+    step = float(np.max(steps))
+    if not proven:
+        return InvariantResult(None, s.size, step, Reason.NOT_CONVERGED)
+    w = int(round(float(np.sum(np.angle(np.roll(d, -1) * np.conj(d)))) / (2 * np.pi)))
+    return InvariantResult(w, s.size, step, Reason.OK)

@@ -15,15 +15,19 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
+from .certify import hopping_bounds
 from .chiral_frames import (
     SYMMETRY_TOL,
     ChiralWindings,
+    LoopCache,
     check_chiral_frame,
     check_direction,
     chiral_from_frames,
+    drive_lipschitz,
+    frame_bad_steps,
     frame_times,
     frames_on,
-    line_momenta,
+    line_points,
     refine_windings,
 )
 from .chiral_winding import chiral_blocks, det_winding
@@ -138,22 +142,29 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
     t1 = t2 = 0.0
     if not static:
         t1, t2 = frame_times(source, g, times)
-    cache: dict[int, tuple] = {}
+    if static:
+        lip_u = lip_f = hopping_bounds(source.hoppings, direction)[0]
+    else:
+        lip_u = drive_lipschitz(source, direction, t1, t1 + source.period, slicing)
+        lip_f = drive_lipschitz(source, direction, t1, t1 + source.period / 2, slicing)
 
-    def data(n: int):
-        if n not in cache:
-            k = line_momenta(origin, direction, n)
-            if static:
-                h = source.bloch(k)
-                _commutator_check(s, h, "H(k)", line)
-                cache[n] = (h, None, None, True)
-            else:
-                u1, u2, f, ok = frames_on(source, k, t1, t2, slicing)
-                for u, t in ((u1, t1), (u2, t2)):
-                    _commutator_check(s, u, f"U(k) of the frame at t = {t:g}", line)
-                    check_chiral_frame(u, g, f"frame at t = {t:g}")
-                cache[n] = (u1, u2, f, ok)
-        return cache[n]
+    def compute(params: np.ndarray) -> tuple[tuple[np.ndarray, ...], bool]:
+        k = line_points(origin, direction, params)
+        if static:
+            h = source.bloch(k)
+            _commutator_check(s, h, "H(k)", line)
+            return (h, h, h), True
+        u1, u2, f, ok = frames_on(source, k, t1, t2, slicing)
+        for u, t in ((u1, t1), (u2, t2)):
+            _commutator_check(s, u, f"U(k) of the frame at t = {t:g}", line)
+            check_chiral_frame(u, g, f"frame at t = {t:g}")
+        return (u1, u2, f), ok
+
+    cache = LoopCache(compute)
+
+    def data(params: np.ndarray):
+        (x1, x2, f), ok = cache(params)
+        return x1, x2, f, ok
 
     out: list[SectorWinding] = []
     for lam, q in sectors:
@@ -166,23 +177,27 @@ def line_sector_windings(source: Drive | TightBinding, operator: np.ndarray,
                                                             None, Reason.SECTOR_GAP_CLOSED)))
             continue
 
-        def measure(n: int, qh=qh, q=q, gs=gs) -> tuple[ChiralWindings, float]:
-            x1, x2, f, ok = data(n)
+        def measure(params: np.ndarray, qh=qh, q=q, gs=gs) -> tuple[ChiralWindings, np.ndarray]:
+            x1, x2, f, ok = data(params)
+            n = params.size
             if static:
                 hs = qh @ x1 @ q
                 e = np.linalg.eigvalsh(hs)
                 gap0 = 2 * float(np.min(np.abs(e)))
                 if not gap0 >= gap_tol or "0" in closed_gaps:
                     return ChiralWindings(None, None, None, None, gap0, math.nan, n,
-                                          Reason.GAP_CLOSED), 0.0
-                v, step = det_winding(chiral_blocks(hs, gs))
-                return ChiralWindings(v, None, None, None, gap0, math.nan, n, Reason.OK), step
+                                          Reason.GAP_CLOSED), np.zeros(n, bool)
+                v, _ = det_winding(chiral_blocks(hs, gs))
+                r = ChiralWindings(v, None, None, None, gap0, math.nan, n, Reason.OK)
+                # A static block stands for F (and the bound of H is lip_f).
+                return r, frame_bad_steps(r, hs, hs, hs, gs, params, lip_u, lip_f, phase_tol)
             if not ok:
                 return ChiralWindings(None, None, None, None, math.nan, math.nan, n,
-                                      Reason.NOT_CONVERGED), math.pi
-            return chiral_from_frames(qh @ x1 @ q, qh @ x2 @ q, qh @ f @ q, gs, source.period,
-                                      gap_tol=gap_tol, phase_tol=phase_tol,
-                                      closed_gaps=closed_gaps)
+                                      Reason.NOT_CONVERGED), np.ones(n, bool)
+            x1, x2, f = qh @ x1 @ q, qh @ x2 @ q, qh @ f @ q
+            r, _ = chiral_from_frames(x1, x2, f, gs, source.period, gap_tol=gap_tol,
+                                      phase_tol=phase_tol, closed_gaps=closed_gaps)
+            return r, frame_bad_steps(r, x1, x2, f, gs, params, lip_u, lip_f, phase_tol)
 
-        out.append(SectorWinding(lam, m, refine_windings(measure, kmesh_n, max_kmesh, phase_tol)))
+        out.append(SectorWinding(lam, m, refine_windings(measure, kmesh_n, max_kmesh)))
     return out

@@ -1,0 +1,257 @@
+"""Bounds that prove a k-mesh resolves an integer invariant, and the adaptive meshes built on them.
+
+An FHS Chern sum or a determinant winding is an integer on any mesh; whether it is the right
+integer is a property of the continuum between the mesh points, which the mesh values alone
+cannot show (a Berry-flux pocket smaller than a plaquette, or two zeros of ``det q`` within one
+step, leave every mesh phase small). The bounds here use, besides the mesh values, Lipschitz
+constants that follow from the hoppings alone, the way
+:func:`~sweepcli.physics.spectrum.velocity_bound` bounds the band velocity.
+
+Inputs of a bound at each mesh point ``k_c``: the *separation* ``sep_c`` (the direct gap
+``E_nocc - E_nocc-1`` of a Hermitian ``X = H``; ``2 min_j |sin(eps_j T)|`` of a unitary
+``X = U``, the width of the strip about the real axis that separates the two Floquet band
+groups; the smallest singular value ``sigma_min(q)`` of a chiral block ``q``) and the *slope*
+``g_c``, a bound on ``||d X / d k_u||`` at ``k_c`` for every unit direction ``u``; and a
+constant ``lip2`` with ``||d g / d k|| <= lip2`` (the second derivative, static models), or
+``g_c`` a bound for every k and ``lip2 = 0`` (drives). Within ``r`` of ``k_c``:
+``||X(k) - X(k_c)|| <= eps_c = g_c r + lip2 r^2 / 2`` and the slope is at most
+``g_c + lip2 r``; by Weyl's inequality (Hermitian), the Bauer-Fike theorem (normal) or the
+singular-value form of Weyl's inequality (blocks) the separation at ``k`` is at least
+``sep_c - 2 eps_c`` (blocks: ``sep_c - eps_c``).
+
+Chern numbers (:func:`cell_lambda`, :func:`certified_chern`)
+-------------------------------------------------------------
+For a cell of side ``h`` let ``G`` bound the slope and ``D`` the separation over the closed
+cell (from its corners as above, every point being within ``h / sqrt 2`` of one), and
+``lambda = h G / D``. Proven: the occupied projector has ``||dP/dk_u|| <= G / D`` (the
+off-diagonal block ``Q dP P`` solves a Sylvester equation with spectra separated by ``D``,
+constant 1 for Hermitian ``X``; ``pi/2`` for a unitary, Bhatia, Davis and McIntosh 1983,
+which is folded into the slope), so every point of the cell has ``||P(k) - P(k_a)|| <= rho =
+sqrt 2 lambda`` from a corner ``k_a``. In the smooth gauge ``V(k) = P V_a (V_a^+ P V_a)^-1/2``
+of the cell, the link phase of a boundary segment of length ``l`` is at most
+``m arcsin(y)``, ``y = (l / h) lambda / (1 - rho^2)`` (``m`` occupied bands; the eigenvalues of
+``1 + M^-1/2 V_a^+ P (P' - P) V_a M^-1/2`` lie within ``y`` of 1), and ``|A| <= m rho ||dP|| /
+(1 - rho^2)``. With ``4 m arcsin(lambda / (1 - 2 lambda^2)) < pi`` (:func:`lambda_max`) the
+loop of each cell is then the unwrapped sum of its links, each link's phase plus the Berry
+connection along it agrees between the two cells that share it (they differ by a multiple of
+2 pi and are each below pi), and the FHS sum equals the continuum Chern number exactly. A
+cell whose bound fails is subdivided (a quadtree; a coarse neighbour keeps its direct link and
+the thin cell between that link and the subdivided edge lies on the neighbour's edge, so it
+is covered by the neighbour's bound with half its perimeter). Assumed: the eigenvectors and
+eigenvalues at the mesh points are exact to rounding, and the Floquet operator is the
+discretised evolution (its time-slicing error is not part of the bound).
+
+Windings (:func:`interval_theta`, :func:`certified_loop`)
+---------------------------------------------------------
+``|d arg det q / dk| = |Im Tr(q^-1 dq/dk)| <= r ||q^-1|| ||dq/dk||`` (``r`` the block size), so
+over a step of length ``h`` the continuous change of ``arg det q`` is at most
+``theta = r h G / sigma_lo`` (``G``, ``sigma_lo``: slope and smallest singular value over the
+step, from its ends as above). Where every ``theta < pi`` the principal phase steps add up to
+the continuous winding exactly; steps that fail are bisected.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+
+import numpy as np
+
+#: Safety factor on the cell bound of :func:`lambda_max`.
+LAMBDA_SAFETY = 0.95
+#: Largest accepted bound on the phase change of ``det q`` over one step (rad; < pi).
+THETA_MAX = 3.0
+#: Subdivision per direction of a cell (or step) whose bound fails, per level.
+SPLIT = 2
+
+
+def hermitian_norm(a: np.ndarray) -> np.ndarray:
+    """Spectral norms of a stack ``(..., n, n)`` of Hermitian matrices (closed form for n <= 2)."""
+    n = a.shape[-1]
+    if n == 1:
+        return np.abs(a[..., 0, 0].real)
+    if n == 2:
+        p, q = a[..., 0, 0].real, a[..., 1, 1].real
+        return np.abs((p + q) / 2) + np.sqrt(((p - q) / 2) ** 2 + np.abs(a[..., 0, 1]) ** 2)
+    return np.max(np.abs(np.linalg.eigvalsh(a)), axis=-1)
+
+
+def smallest_singular(q: np.ndarray) -> np.ndarray:
+    """``sigma_min`` of a stack ``(..., r, r)`` (closed form for r = 1)."""
+    if q.shape[-1] == 1:
+        return np.abs(q[..., 0, 0])
+    return np.linalg.svd(q, compute_uv=False)[..., -1]
+
+
+def hopping_bounds(hoppings: Mapping[tuple[int, ...], np.ndarray],
+                   direction: np.ndarray | None = None) -> tuple[float, float]:
+    """``(L1, L2)``: bounds on ``||dH/ds||`` and ``||d^2 H/ds^2||`` along a unit direction of
+    reduced momentum (``direction`` given: along ``k = k0 + s direction``, not normalised).
+
+    ``H(k) = onsite + sum_R [T_R e^{ik.R} + h.c.]``, so the ``j``-th derivative has norm at most
+    ``2 sum_R |R.u|^j ||T_R||_2`` (``|R.u| <= |R|`` for a unit ``u``).
+    """
+    l1 = l2 = 0.0
+    for r, t in hoppings.items():
+        x = abs(float(np.dot(r, direction))) if direction is not None else \
+            float(np.linalg.norm(r))
+        nt = float(np.linalg.norm(t, 2))
+        l1 += 2 * x * nt
+        l2 += 2 * x * x * nt
+    return l1, l2
+
+
+def lambda_max(m: int) -> float:
+    """Largest accepted cell bound for ``m`` bands: ``LAMBDA_SAFETY`` times the root of
+    ``lambda / (1 - 2 lambda^2) = sin(pi / (4 m))`` (module docstring)."""
+    s = math.sin(math.pi / (4 * m))
+    return LAMBDA_SAFETY * (-1 + math.sqrt(1 + 8 * s * s)) / (4 * s)
+
+
+def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float) -> np.ndarray:
+    """Bound ``lambda = h G / D`` of square cells from their corners (module docstring).
+
+    ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side. ``inf`` where the
+    separation bound is not positive.
+    """
+    r = h / math.sqrt(2)
+    eps = slope * r + 0.5 * lip2 * r * r
+    lo = np.min(sep - 2 * eps, axis=-1)
+    g = np.max(slope, axis=-1) + lip2 * r
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(lo > 0, h * g / np.where(lo > 0, lo, 1.0), np.inf)
+
+
+def _corners(x: np.ndarray) -> np.ndarray:
+    """``(P, A, B, ...)`` values on open grids -> ``(P, A - 1, B - 1, ..., 4)`` at cell corners."""
+    return np.stack([x[:, :-1, :-1], x[:, 1:, :-1], x[:, :-1, 1:], x[:, 1:, 1:]], axis=-1)
+
+
+#: Largest share of hot base plaquettes that is subdivided; above it the next (uniform) base
+#: mesh is taken, which shares the new points between neighbouring cells.
+HOT_SHARE = 0.5
+
+
+def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
+                    n: int, m: int, lip2: float, *, flux_tol: float, budget: int,
+                    max_n: int | None = None, growth: float = 1.5
+                    ) -> tuple[int | None, float, int, int]:
+    """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
+
+    Parameters
+    ----------
+    data : ``data(k)`` for reduced momenta ``(..., 2)`` returns the orthonormal columns
+        ``(..., norb, m)`` of the subspace, its separation ``(...)`` and slope ``(...)``
+        (module docstring).
+    n : points per direction of the first periodic base mesh.
+    m : rank of the subspace (sets :func:`lambda_max`).
+    lip2 : Lipschitz constant of the slope (0 when the slope is a global bound).
+    flux_tol : a cell whose plaquette phase is at or above this is subdivided too.
+    budget : most points evaluated in all (base meshes included).
+    max_n, growth : while more than :data:`HOT_SHARE` of the base plaquettes fail, the base
+        mesh grows by ``growth`` up to ``max_n`` (default ``n``).
+
+    Returns
+    -------
+    (chern or None, largest elementary phase, points evaluated, base mesh) : ``None`` when the
+    budget ran out before every cell was proven.
+    """
+    from .chern import fhs_plaquette_phases, subdivided_plaquette_phases
+    from .lattice import kmesh
+
+    lam_max = lambda_max(m)
+    max_n = n if max_n is None else max_n
+    used = 0
+
+    def wrap(x: np.ndarray) -> np.ndarray:
+        x = np.concatenate([x, x[:1]], axis=0)
+        return np.concatenate([x, x[:, :1]], axis=1)
+
+    while True:
+        v, sep, slope = data(kmesh(n, 2))
+        used += n * n
+        f = fhs_plaquette_phases(v)
+        h = 2 * np.pi / n
+        lam = cell_lambda(_corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0], h, lip2)
+        hot = (lam > lam_max) | (np.abs(f) >= flux_tol)
+        if hot.mean() <= HOT_SHARE or n >= max_n:
+            break
+        n = min(max(int(math.ceil(growth * n)), n + 1), max_n)
+    total = float(f[~hot].sum())
+    max_flux = float(np.max(np.abs(f[~hot]), initial=0.0))
+    # Corner data of the hot cells: (P, 2, 2, ...).
+    idx = np.argwhere(hot)
+    i0, j0 = idx[:, 0], idx[:, 1]
+    i1, j1 = (i0 + 1) % n, (j0 + 1) % n
+    corner = [np.stack([np.stack([x[i0, j0], x[i0, j1]], 1), np.stack([x[i1, j0], x[i1, j1]], 1)],
+                       1) for x in (v, sep, slope)]
+    origin = h * idx.astype(float)
+    # The five new points of a cell split in two per direction, as (row, column) of its 3x3 grid.
+    new = ((0, 1), (1, 0), (1, 1), (1, 2), (2, 1))
+    while origin.size:
+        used += 5 * origin.shape[0]
+        if used > budget:
+            return None, max(max_flux, math.pi), used, n
+        pts = origin[:, None, :] + (h / 2) * np.array(new, float)[None]
+        nv, nsep, nslope = data(pts)
+        grids = []
+        for c, x in zip(corner, (nv, nsep, nslope)):
+            g = np.empty((c.shape[0], 3, 3) + c.shape[3:], c.dtype)
+            g[:, ::2, ::2] = c
+            for j, (a, b) in enumerate(new):
+                g[:, a, b] = x[:, j]
+            grids.append(g)
+        gv, gsep, gslope = grids
+        sub, edges = subdivided_plaquette_phases(gv)
+        h /= 2
+        lam = cell_lambda(_corners(gsep), _corners(gslope), h, lip2)
+        hot = (lam > lam_max) | (np.abs(sub) >= flux_tol)
+        total += float(sub[~hot].sum() + edges.sum())
+        max_flux = max(max_flux, float(np.max(np.abs(sub[~hot]), initial=0.0)))
+        p, a, b = np.nonzero(hot)
+        corner = [np.stack([np.stack([g[p, a, b], g[p, a, b + 1]], 1),
+                            np.stack([g[p, a + 1, b], g[p, a + 1, b + 1]], 1)], 1)
+                  for g in grids]
+        origin = origin[p] + h * np.stack([a, b], axis=-1)
+    return int(round(-total / (2 * np.pi))), max_flux, used, n
+
+
+def interval_theta(sigma: np.ndarray, slope: np.ndarray, h: np.ndarray, lip2: float,
+                   rank: int) -> np.ndarray:
+    """Bound on the change of ``arg det q`` over each step of a closed loop.
+
+    ``sigma``, ``slope``: ``(N, ...)`` smallest singular value of ``q`` and slope at the loop
+    points; ``h``: ``(N,)`` length of the step from point ``j`` to ``j + 1`` (the last closes
+    the loop). ``inf`` where the singular-value bound is not positive.
+    """
+    hh = h.reshape((-1,) + (1,) * (sigma.ndim - 1))
+    r = hh / 2
+    eps = slope * r + 0.5 * lip2 * r * r
+    eps_n = np.roll(slope, -1, axis=0) * r + 0.5 * lip2 * r * r
+    nxt = np.roll(sigma, -1, axis=0) - eps_n
+    lo = np.minimum(sigma - eps, nxt)
+    g = np.maximum(slope, np.roll(slope, -1, axis=0)) + lip2 * r
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(lo > 0, rank * hh * g / np.where(lo > 0, lo, 1.0), np.inf)
+
+
+def certified_loop(measure: Callable[[np.ndarray], tuple[object, np.ndarray]], n: int,
+                   budget: int, period: float = 2 * np.pi) -> tuple[object, np.ndarray, bool]:
+    """Bisect the steps of a closed loop until a bound proves every step.
+
+    ``measure(s)`` for sorted loop parameters ``s`` in ``[0, period)`` returns ``(result,
+    bad)``, ``bad`` an ``(N,)`` mask of the steps ``s_j -> s_{j+1}`` (the last closing the
+    loop) whose bound fails. Starts from ``n`` uniform points; returns ``(result, s, proven)``
+    of the last loop measured, ``proven`` False when more than ``budget`` points would be
+    needed.
+    """
+    s = period * np.arange(n) / n
+    while True:
+        result, bad = measure(s)
+        if not np.any(bad):
+            return result, s, True
+        h = np.diff(np.append(s, s[0] + period))
+        new = [s[bad] + h[bad] * j / SPLIT for j in range(1, SPLIT)]
+        if s.size + sum(x.size for x in new) > budget:
+            return result, s, False
+        s = np.sort(np.concatenate([s] + new))
