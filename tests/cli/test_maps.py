@@ -268,6 +268,30 @@ def test_sweep_doc_and_units_label_the_axis_without_changing_the_hash(write_job)
         load_job(write_job(base.format(", units = 3"), "c.toml"))
 
 
+def test_a_list_axis_takes_doc_and_units_in_a_values_table(write_job):
+    base = '[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = {}\n[measure.gap]\n'
+    plain = load_job(write_job(base.format("[0.5, 1, 2.5]")))
+    labelled = load_job(write_job(
+        base.format('{ values = [0.5, 1, 2.5], doc = "mass", units = "eV" }'), "b.toml"))
+    assert labelled.axes[0].values == plain.axes[0].values == (0.5, 1.0, 2.5)
+    assert labelled.axes[0].spacing == "list"
+    assert plain.sha256 == labelled.sha256
+    axis = results_for_job(labelled).axes[0]
+    assert (axis.long_name, axis.units) == ("mass", "eV")
+    for text, msg in [
+            ('{ values = [], doc = "mass" }',
+             r"\[sweep.m\] values must be a list of values; got \[\]\. The list is empty\."),
+            ('{ values = 2.0 }', r"\[sweep.m\] values must be a list of values; got 2\.0\."),
+            ('{ values = [1, 2], num = 3 }',
+             r"\[sweep.m\] num must be absent when values is given \(a list or a range, not "
+             r"both\); got 3\."),
+            ('{ values = [1, true] }', r"\[sweep.m\] values must be a real number; got true\."),
+            ('{ value = [1, 2] }', r"\[sweep.m\] has an unknown key 'value' .*Did you mean "
+                                   r"'values'\?")]:
+        with pytest.raises(Exception, match=msg):
+            load_job(write_job(base.format(text), "c.toml"))
+
+
 def test_every_model_parameter_has_a_description_and_units():
     from sweepcli.physics.models import MODELS
 
