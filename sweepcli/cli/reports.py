@@ -149,9 +149,20 @@ def sample(ctx: typer.Context,
 
 @app.command()
 def models(ctx: typer.Context) -> None:
-    """List the built-in models and the measurements with their parameters."""
+    """List the built-in models with their parameters and cell operators, and the measurements
+    with their parameters."""
+    from ..jobfile.model_table import model_operators
     from ..physics.measurements import MEASUREMENTS
     from ..physics.models import MODELS
+
+    def users(o: str, dim: int) -> str:
+        names = [m.name for m in MEASUREMENTS if o in m.extra.get("operators", ())
+                 and dim in m.extra.get("dims", (1, 2))]
+        if o == "chiral":
+            names.append(("end_modes" if dim == 1 else "corner_modes") + " (chiral charges)")
+        if not names:
+            return "give it by name as [measure.line_winding] operator"
+        return "used by " + ", ".join(names)
 
     typer.echo("models:")
     for e in MODELS:
@@ -159,7 +170,14 @@ def models(ctx: typer.Context) -> None:
         for p in e.params:
             default = "" if p.required else f" = {p.default}"
             typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")
+        docs = e.extra.get("operator_docs", {})
+        for o in model_operators(e.name):
+            meaning = f"{docs[o]}; " if o in docs else ""
+            typer.echo(f"      operator {o}: {meaning}{users(o, e.extra['dim'])}")
         typer.echo(f"      source: {e.source}")
+    typer.echo("  custom: your own lattice, orbitals, [[model.onsite]] and [[model.hopping]] "
+               "terms; cell operators in [model.operators] as a Pauli word, a matrix or "
+               "[[model.operators.NAME]] terms (matrix, coeff)")
     typer.echo("measurements:")
     for e in MEASUREMENTS:
         applies = {None: "static and driven jobs", True: "driven jobs", False: "static jobs"}
