@@ -114,7 +114,7 @@ def sample(ctx: typer.Context,
            at: Annotated[list[str] | None, typer.Option(
                "--at",
                help="The grid point: NAME=VALUE (nearest grid value; other axes their first "
-                    "value).")] = None,
+                    "value, named in the line printed).")] = None,
            kind: Annotated[str | None, typer.Option(
                "--kind",
                help="flake, chain or ribbon (default: the job's boundary measurement, else what "
@@ -131,6 +131,7 @@ def sample(ctx: typer.Context,
                help="Picture file; format from the suffix (png, svg, pdf).")] = None,
            ) -> None:
     """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
+    from ..report.map_data import at_notes
     from ..report.sample_plot import draw_sample
     from ..store import Results
 
@@ -139,9 +140,12 @@ def sample(ctx: typer.Context,
         out = output or results_file.with_name(results_file.stem + "-sample.png")
         written, drawn = draw_sample(results, out, at=parse_at(at or []), kind=kind, size=size,
                                      gap=gap, label=str(results_file))
+        notes = at_notes(results, parse_at(at or []))
     except SweepError as exc:
         fail(ctx, exc)
         return
+    for note in notes:
+        typer.echo(note.replace("drawn at", "sampled at"), err=True)
     if drawn.chosen:
         typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")
