@@ -7,6 +7,7 @@ boundary lines; numpy only.
 
 from __future__ import annotations
 
+import re
 from collections import Counter
 from dataclasses import dataclass
 
@@ -53,8 +54,10 @@ def default_variable(results: Results) -> str:
 
     The one the job names (``[output] main``, stored as the root attribute ``main_variable``);
     else the first integer invariant that takes more than one value on the computed points
-    (diagnostics such as ``*_kmesh``, ``*_method`` and the ``agree_*`` flags are skipped), else
-    the first integer invariant, else the first variable.
+    (diagnostics such as ``*_kmesh``, ``*_method`` and the ``agree_*`` flags are skipped; a
+    corner count is taken per corner, ``corner_modes_g_00`` in place of the total
+    ``corner_modes_g``, since that is what the windings predict), else the first integer
+    invariant, else the first variable.
     """
     main = results.attrs.get("main_variable", "")
     if main in results.variables:
@@ -64,6 +67,9 @@ def default_variable(results: Results) -> str:
         raise ResultsError("the results file holds no variables to draw.")
     ints = [v.name for v in plain if v.dtype == "int32" and not v.name.startswith("agree_")
             and not v.name.endswith(("_kmesh", "_method"))]
+    per_corner = {n: f"{n}_00" for n in ints if re.fullmatch(r"corner_modes_(0|pi)", n)
+                  and f"{n}_00" in results.variables}
+    ints = list(dict.fromkeys(per_corner.get(n, n) for n in ints))
     done = results.done.astype(bool)
     for name in ints:
         vals = results.data[name][done]

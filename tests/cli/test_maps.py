@@ -235,6 +235,42 @@ def test_default_variable_without_a_named_main_is_the_first_varying_invariant():
     assert default_variable(r) == "line_w0_s1"
 
 
+def test_default_variable_of_a_corner_count_is_the_count_per_corner():
+    job = tiny_job("corner-modes.toml")
+    r = fill(job, [1])
+    del r.attrs["main_variable"]
+    assert default_variable(r) == "line_sectors"  # every integer constant: the first one
+    r.data["corner_modes_0"].ravel()[:] = np.resize([0, 4], r.size)
+    r.data["corner_modes_0_00"].ravel()[:] = np.resize([0, 1], r.size)
+    # line windings predict the modes at one corner, not the total of the four
+    assert default_variable(r) == "corner_modes_0_00"
+
+
+def test_every_integer_and_half_integer_has_its_own_colour():
+    from matplotlib.colors import to_rgb
+
+    from sweepcli.report.map_style import MISSING_COLOUR, value_colour
+
+    values = [v / 2 for v in range(-48, 49)]
+    colours = {tuple(np.round(value_colour(v)[:3], 3)) for v in values}
+    assert len(colours) == len(values)
+    assert tuple(np.round(to_rgb(MISSING_COLOUR), 3)) not in colours
+
+
+def test_four_and_eight_corner_modes_differ_and_absent_values_are_named():
+    job = tiny_job("corner-modes.toml")
+    r = fill(job, [0, 4, 8, 4])
+    fig = drawn(map_figure(r, "corner_modes_0"))
+    colours = cell_colours(fig, r, "corner_modes_0")
+    assert set(colours) == {0.0, 4.0, 8.0}
+    assert len({next(iter(c)) for c in colours.values()}) == 3
+    assert ("corner_modes_0 = 1..3, 5..7 occurs nowhere (not in the colour bar)"
+            in legend_texts(fig))
+    assert_not_clipped(fig)
+    full = drawn(map_figure(fill(job, [0, 1, 2]), "corner_modes_0"))
+    assert not any("occurs nowhere" in t for t in legend_texts(full))
+
+
 def test_main_names_a_measured_quantity(write_job):
     base = ('[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = [0, 1]\n'
             '[measure.chern]\n[output]\n')
