@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ResultsError, suggest
-from ..schema import Reason
+from ..schema import Reason, is_energy
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 
@@ -23,18 +23,20 @@ GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
 MAX_DISCRETE = 24
 
 
-def discrete_levels(dtype: str, values: np.ndarray, units: str = "1") -> list[float] | None:
+def discrete_levels(dtype: str, values: np.ndarray, units: str = "1",
+                    long_name: str = "") -> list[float] | None:
     """Sorted distinct values when ``values`` are to be drawn discretely, else ``None``.
 
-    Integer variables always; a dimensionless float variable (``units`` "1" or "", so never a
-    gap that happens to be 0 or 2) whose finite values are all integers or half-integers
-    (within 1e-6), with at most :data:`MAX_DISCRETE` distinct values: a spin Chern number.
+    Integer variables always; a dimensionless float variable (``units`` "1" or "", and not an
+    energy in units of the model's, so never a gap that happens to be 0 or 2) whose finite
+    values are all integers or half-integers (within 1e-6), with at most :data:`MAX_DISCRETE`
+    distinct values: a spin Chern number.
     """
     finite = np.asarray(values, float)
     finite = finite[np.isfinite(finite)]
     if dtype in ("int32", "uint8"):
         return sorted(float(v) for v in np.unique(finite))
-    if not finite.size or units not in ("", "1"):
+    if not finite.size or units not in ("", "1") or is_energy(units, long_name):
         return None
     twice = np.round(2 * finite)
     if np.max(np.abs(2 * finite - twice)) > 2e-6 or len(np.unique(twice)) > MAX_DISCRETE:
@@ -276,5 +278,6 @@ def map_slice(results: Results, var: str, index: tuple) -> Slice:
     skipped = known & bad & not_requested(results, var)[index]
     mask = confirmed(results)
     return Slice(var, values, ~known, known & bad & ~skipped,
-                 discrete_levels(meta.dtype, values, meta.units), n_known, results.size,
+                 discrete_levels(meta.dtype, values, meta.units, meta.long_name), n_known,
+                 results.size,
                  skipped, None if mask is None else mask[index] & known)

@@ -9,6 +9,7 @@ from collections import Counter
 
 import numpy as np
 
+from ..schema import split_scale
 from ..store import Results
 from .map_data import Slice, missing_reasons
 
@@ -101,13 +102,17 @@ def missing_text(counts: Counter) -> str:
 
 
 def axis_label(axis) -> str:
-    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
-    name = axis.name if axis.long_name in ("", axis.name) else f"{axis.name} ({axis.long_name})"
+    """``m (staggered mass u) [t]``: the name, the long name and the scale (stored in the long
+    name when the units are the model's own, see :func:`sweepcli.schema.cf_units`)."""
+    long_name, units = split_scale(axis.units, axis.long_name)
+    unit = f" [{units}]" if units else ""
+    name = axis.name if long_name in ("", axis.name) else f"{axis.name} ({long_name})"
     return name + unit
 
 
 def value_label(var: str, meta) -> str:
-    return var + (f" [{meta.units}]" if meta.units not in ("", "1") else "")
+    units = split_scale(meta.units, meta.long_name)[1]
+    return var + (f" [{units}]" if units else "")
 
 
 def hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray,

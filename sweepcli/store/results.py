@@ -17,7 +17,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultsError
-from ..schema import Grid, Reason
+from ..schema import CF_CONVENTIONS, Grid, Reason
 
 SCHEMA_VERSION = "1"
 MARKER = "sweepcli_schema"
@@ -161,6 +161,7 @@ class Results(Grid):
         for key, value in self.attrs.items():
             f.attrs[key] = value
         f.attrs[MARKER] = SCHEMA_VERSION
+        f.attrs["Conventions"] = CF_CONVENTIONS
         f.attrs["axes"] = ",".join(a.name for a in self.axes)
         f.attrs["variables"] = ",".join(self.variables)
         scales = []

@@ -43,7 +43,11 @@ def test_run_open_map_show_in_a_subprocess(small_quickstart, tmp_path):
     ds = xr.open_dataset(out, engine="h5netcdf")
     assert set(ds.coords) >= {"m", "t"}
     assert ds["chern"].dims == ("m", "t")
-    assert ds["gap"].attrs["units"]
+    assert ds.attrs["Conventions"] == "CF-1.10"
+    # an energy in units of the model's hopping is a pure number; the scale is in long_name
+    assert ds["gap"].attrs["units"] == "1"
+    assert "in units of the model's energy scale" in ds["gap"].attrs["long_name"]
+    assert ds["chern"].attrs["ancillary_variables"] == "chern_reason"
     assert int(ds["done"].sum()) == 21
     ds.close()
 
