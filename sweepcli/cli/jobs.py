@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_INTERRUPTED, app, fail
+from .root import EXIT_ERROR, EXIT_INTERRUPTED, app, fail, note, quiet
 
 
 @app.command()
@@ -52,7 +52,11 @@ def run(ctx: typer.Context,
 
     session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
                          shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
-                         progress=progress, scheduler=scheduler, dask_cluster=dask_cluster)
+                         progress=progress and not quiet(ctx), scheduler=scheduler,
+                         dask_cluster=dask_cluster)
+    if verbose and quiet(ctx):
+        typer.echo("error: give --quiet or --verbose, not both.", err=True)
+        raise typer.Exit(EXIT_ERROR)
     loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
     say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:
@@ -66,11 +70,11 @@ def run(ctx: typer.Context,
         typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
                    f"Resume with: {done.resume_command}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
-    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
-    if summary.chosen is not None:
+    if summary.chosen is not None and not quiet(ctx):
         typer.echo(f"boundary measurements: {summary.chosen} cells selected, computed on "
                    f"{summary.confirmed}, not requested on {summary.total - summary.confirmed} "
                    "(time and points cover both passes)")
+    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
 
 
 @app.command()
@@ -91,7 +95,7 @@ def merge(ctx: typer.Context,
         fail(ctx, exc)
         return
     for line in warnings:
-        typer.echo(line, err=True)
+        note(ctx, line)
     typer.echo(f"merged {report.files} shards: {report.done}/{report.total} points -> {output}")
 
 

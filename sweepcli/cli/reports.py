@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_DIFFER, app, fail, parse_at
+from .root import EXIT_DIFFER, app, fail, note, parse_at, quiet
 
 
 @app.command()
@@ -62,8 +62,8 @@ def map_(ctx: typer.Context,
         if terminal and output is not None:
             raise SweepError("--terminal prints the map; give it or --output, not both.")
         results = Results.read(results_file)
-        for note in at_notes(results, parse_at(at or [])):
-            typer.echo(note, err=True)
+        for line in at_notes(results, parse_at(at or [])):
+            note(ctx, line)
         if terminal:
             text = terminal_map(results, var, parse_at(at or []), width, colour=want_colour())
         else:
@@ -144,9 +144,9 @@ def sample(ctx: typer.Context,
     except SweepError as exc:
         fail(ctx, exc)
         return
-    for note in notes:
-        typer.echo(note.replace("drawn at", "sampled at"), err=True)
-    if drawn.chosen:
+    for line in notes:
+        note(ctx, line.replace("drawn at", "sampled at"))
+    if drawn.chosen and not quiet(ctx):
         typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")
 
