@@ -48,6 +48,10 @@ class Quantity:
     group: str = ""
 
 
+#: The stored variable holding each point's compute time in seconds (summed over the passes of a
+#: ``[confirm]`` run); timing, not a result: ``diff`` leaves it out of the values it compares.
+POINT_SECONDS = "point_seconds"
+
 #: The CF conventions results files follow (root attribute ``Conventions``).
 CF_CONVENTIONS = "CF-1.10"
 #: Phrase in the ``long_name`` of a stored quantity measured in the model's own energy unit.

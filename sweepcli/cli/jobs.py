@@ -109,11 +109,12 @@ def check(ctx: typer.Context,
           ) -> None:
     """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
     from ..jobfile import load_job
-    from ..run.cost import estimate, time_one_point
+    from ..run.cost import estimate, measured_cost, time_one_point
 
     try:
         job = load_job(job_file)
         cost = estimate(job)
+        previous = measured_cost(job)
         measured = time_one_point(job) if time_one else None
     except SweepError as exc:
         fail(ctx, exc)
@@ -129,6 +130,8 @@ def check(ctx: typer.Context,
         opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
         typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
     typer.echo(f"cost estimate: {cost.format()}")
+    if previous is not None:
+        typer.echo(f"measured in the previous run: {previous.format(job.size)}")
     if measured is not None:
         typer.echo(f"measured: {measured:.3g} s for the middle grid point; about "
                    f"{measured * job.size / 3600:.2g} core-hours for the grid "
@@ -149,24 +152,28 @@ def batch(ctx: typer.Context,
               "--force", help="Overwrite existing scripts.")] = False,
           seconds_per_point: Annotated[float | None, typer.Option(
               "--seconds-per-point", min=0.0,
-              help="Per-point time to size the wall time with (default: the estimate of `sweepcli "
-                   "check`, or the timed point if longer).")] = None,
+              help="Per-point time to size the wall time with (default: the mean time stored in "
+                   "a previous results file of the job, else the estimate of `sweepcli check`, "
+                   "or the timed point if longer).")] = None,
           time_one: Annotated[bool, typer.Option(
               "--time-one/--no-time-one",
               help="Evaluate the middle grid point once here and size the wall time by the longer "
-                   "of its time and the estimate.")] = True,
+                   "of its time and the estimate (not needed when a previous results file of "
+                   "the job holds measured times).")] = True,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from ..jobfile import load_job
     from ..run.batch import plan, scripts
-    from ..run.cost import time_one_point
+    from ..run.cost import measured_cost, time_one_point
 
     try:
         job = load_job(job_file)
         if tasks > job.size:
             raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
-        measured = time_one_point(job) if time_one and seconds_per_point is None else None
-        p = plan(job, tasks, workers, seconds_per_point, measured)
+        previous = measured_cost(job) if seconds_per_point is None else None
+        measured = (time_one_point(job) if time_one and seconds_per_point is None
+                    and previous is None else None)
+        p = plan(job, tasks, workers, seconds_per_point, measured, previous)
         texts = scripts(job, str(job_file), p)
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:

@@ -15,7 +15,7 @@ import numpy as np
 from ..jobfile import Job
 from ..physics.measurements import reason_links, reason_names
 from ..physics.models import MODELS
-from ..schema import cf_units
+from ..schema import POINT_SECONDS, cf_units
 from ..store import Results, Variable
 from ..store.provenance import new_results
 from ..store.results import AxisData
@@ -57,6 +57,9 @@ def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
         q = rule.quantity
         variables.append(Variable(q.name, q.dtype, *cf_units(q.units, q.long_name),
                                   "consistency", rule_links(rule.reads, links)))
+    variables.append(Variable(POINT_SECONDS, "float64", "s",
+                              "compute time of the point in a worker (summed over passes)",
+                              "run"))
     attrs = {
         "title": job.title,
         "job_name": job.name,
