@@ -54,9 +54,9 @@ def test_every_point_stores_its_time(run):
     line = next(ln for ln in shown.stdout.splitlines() if ln.startswith("compute time:"))
     total, median, slowest = (float(x) for x in re.findall(
         r"([0-9.e+-]+) s in all.*median ([0-9.e+-]+) s per point, slowest ([0-9.e+-]+) s", line)[0])
-    assert total == pytest.approx(times.sum(), rel=2e-3)
-    assert median == pytest.approx(np.median(times), rel=2e-3)
-    assert slowest == pytest.approx(times.max(), rel=2e-3)
+    assert total == pytest.approx(times.sum(), rel=6e-3)
+    assert median == pytest.approx(np.median(times), rel=6e-3)
+    assert slowest == pytest.approx(times.max(), rel=6e-3)
     r = Results.read(out)
     i, j = np.unravel_index(np.argmax(times), times.shape)
     assert f"at m={r.axes[0].values[i]:g}, t={r.axes[1].values[j]:g}" in line
