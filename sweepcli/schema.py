@@ -48,6 +48,53 @@ class Quantity:
     group: str = ""
 
 
+#: The stored variable holding each point's compute time in seconds (summed over the passes of a
+#: ``[confirm]`` run); timing, not a result: ``diff`` leaves it out of the values it compares.
+POINT_SECONDS = "point_seconds"
+
+#: The CF conventions results files follow (root attribute ``Conventions``).
+CF_CONVENTIONS = "CF-1.10"
+#: Phrase in the ``long_name`` of a stored quantity measured in the model's own energy unit.
+ENERGY_SCALE = "in units of the model's energy scale"
+#: Model-relative units (as declared by models and measurements) -> the phrase that names the
+#: scale in ``long_name``; the stored ``units`` is then "1" (a pure number, which UDUNITS parses).
+RELATIVE_UNITS = {
+    "energy": ENERGY_SCALE,
+    "t": "in units of the hopping t",
+    "1/a": "per lattice constant a",
+}
+
+
+def cf_units(units: str, long_name: str) -> tuple[str, str]:
+    """``(units, long_name)`` as stored: a quantity in units of the model's energy (hopping)
+    or of its lattice constant is a pure number, units ``"1"``, its scale named in
+    ``long_name``; any other units are kept."""
+    phrase = RELATIVE_UNITS.get(units.strip())
+    if phrase is None:
+        return units, long_name
+    return "1", f"{long_name} ({phrase})" if phrase not in long_name else long_name
+
+
+def split_scale(units: str, long_name: str) -> tuple[str, str]:
+    """``(long name without its scale, short unit)`` for labels: the inverse of
+    :func:`cf_units` (``"hopping (in units of the model's energy scale)"`` -> ``("hopping",
+    "energy")``), and ``"(in units of X)"`` written by hand -> ``X``; other names keep their
+    ``units`` (``""`` for ``"1"``)."""
+    for short, phrase in RELATIVE_UNITS.items():
+        if long_name.endswith(f" ({phrase})"):
+            return long_name[: -len(phrase) - 3], short
+    head, sep, tail = long_name.rpartition(" (in units of ")
+    if sep and tail.endswith(")") and head:
+        return head, tail[:-1]
+    return long_name, "" if units in ("", "1") else units
+
+
+def is_energy(units: str, long_name: str) -> bool:
+    """Whether a stored variable is an energy (a gap): its units say so (files before
+    ``Conventions``) or its long name names the model's energy scale."""
+    return units in ("energy", "t") or ENERGY_SCALE in long_name or "hopping t)" in long_name
+
+
 def reason_variable(measurement: str, group: str = "") -> str:
     """Name of a reason variable: ``<measurement>_reason`` for a measurement with one reason,
     ``<measurement>_<group>_reason`` for one reason group of it (``corner_modes_pi_reason``)."""

@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_INTERRUPTED, app, fail
+from .root import EXIT_ERROR, EXIT_INTERRUPTED, app, fail, note, quiet
 
 
 @app.command()
@@ -52,7 +52,11 @@ def run(ctx: typer.Context,
 
     session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
                          shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
-                         progress=progress, scheduler=scheduler, dask_cluster=dask_cluster)
+                         progress=progress and not quiet(ctx), scheduler=scheduler,
+                         dask_cluster=dask_cluster)
+    if verbose and quiet(ctx):
+        typer.echo("error: give --quiet or --verbose, not both.", err=True)
+        raise typer.Exit(EXIT_ERROR)
     loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
     say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:
@@ -66,11 +70,11 @@ def run(ctx: typer.Context,
         typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
                    f"Resume with: {done.resume_command}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
-    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
-    if summary.chosen is not None:
+    if summary.chosen is not None and not quiet(ctx):
         typer.echo(f"boundary measurements: {summary.chosen} cells selected, computed on "
                    f"{summary.confirmed}, not requested on {summary.total - summary.confirmed} "
                    "(time and points cover both passes)")
+    typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
 
 
 @app.command()
@@ -91,7 +95,7 @@ def merge(ctx: typer.Context,
         fail(ctx, exc)
         return
     for line in warnings:
-        typer.echo(line, err=True)
+        note(ctx, line)
     typer.echo(f"merged {report.files} shards: {report.done}/{report.total} points -> {output}")
 
 
@@ -105,11 +109,12 @@ def check(ctx: typer.Context,
           ) -> None:
     """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
     from ..jobfile import load_job
-    from ..run.cost import estimate, time_one_point
+    from ..run.cost import estimate, measured_cost, time_one_point
 
     try:
         job = load_job(job_file)
         cost = estimate(job)
+        previous = measured_cost(job)
         measured = time_one_point(job) if time_one else None
     except SweepError as exc:
         fail(ctx, exc)
@@ -125,6 +130,8 @@ def check(ctx: typer.Context,
         opts = ", ".join(f"{k}={v}" for k, v in options if v is not None)
         typer.echo(f"measure {name}" + (f" ({opts})" if opts else ""))
     typer.echo(f"cost estimate: {cost.format()}")
+    if previous is not None:
+        typer.echo(f"measured in the previous run: {previous.format(job.size)}")
     if measured is not None:
         typer.echo(f"measured: {measured:.3g} s for the middle grid point; about "
                    f"{measured * job.size / 3600:.2g} core-hours for the grid "
@@ -145,24 +152,28 @@ def batch(ctx: typer.Context,
               "--force", help="Overwrite existing scripts.")] = False,
           seconds_per_point: Annotated[float | None, typer.Option(
               "--seconds-per-point", min=0.0,
-              help="Per-point time to size the wall time with (default: the estimate of `sweepcli "
-                   "check`, or the timed point if longer).")] = None,
+              help="Per-point time to size the wall time with (default: the mean time stored in "
+                   "a previous results file of the job, else the estimate of `sweepcli check`, "
+                   "or the timed point if longer).")] = None,
           time_one: Annotated[bool, typer.Option(
               "--time-one/--no-time-one",
               help="Evaluate the middle grid point once here and size the wall time by the longer "
-                   "of its time and the estimate.")] = True,
+                   "of its time and the estimate (not needed when a previous results file of "
+                   "the job holds measured times).")] = True,
           ) -> None:
     """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
     from ..jobfile import load_job
     from ..run.batch import plan, scripts
-    from ..run.cost import time_one_point
+    from ..run.cost import measured_cost, time_one_point
 
     try:
         job = load_job(job_file)
         if tasks > job.size:
             raise SweepError(f"--tasks {tasks} exceeds the {job.size} grid points of {job_file}.")
-        measured = time_one_point(job) if time_one and seconds_per_point is None else None
-        p = plan(job, tasks, workers, seconds_per_point, measured)
+        previous = measured_cost(job) if seconds_per_point is None else None
+        measured = (time_one_point(job) if time_one and seconds_per_point is None
+                    and previous is None else None)
+        p = plan(job, tasks, workers, seconds_per_point, measured, previous)
         texts = scripts(job, str(job_file), p)
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:

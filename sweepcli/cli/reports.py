@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_DIFFER, app, fail, parse_at
+from .root import EXIT_DIFFER, app, fail, note, parse_at, quiet
 
 
 @app.command()
@@ -62,8 +62,8 @@ def map_(ctx: typer.Context,
         if terminal and output is not None:
             raise SweepError("--terminal prints the map; give it or --output, not both.")
         results = Results.read(results_file)
-        for note in at_notes(results, parse_at(at or [])):
-            typer.echo(note, err=True)
+        for line in at_notes(results, parse_at(at or [])):
+            note(ctx, line)
         if terminal:
             text = terminal_map(results, var, parse_at(at or []), width, colour=want_colour())
         else:
@@ -114,7 +114,7 @@ def sample(ctx: typer.Context,
            at: Annotated[list[str] | None, typer.Option(
                "--at",
                help="The grid point: NAME=VALUE (nearest grid value; other axes their first "
-                    "value).")] = None,
+                    "value, named in the line printed).")] = None,
            kind: Annotated[str | None, typer.Option(
                "--kind",
                help="flake, chain or ribbon (default: the job's boundary measurement, else what "
@@ -131,6 +131,7 @@ def sample(ctx: typer.Context,
                help="Picture file; format from the suffix (png, svg, pdf).")] = None,
            ) -> None:
     """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
+    from ..report.map_data import at_notes
     from ..report.sample_plot import draw_sample
     from ..store import Results
 
@@ -139,19 +140,33 @@ def sample(ctx: typer.Context,
         out = output or results_file.with_name(results_file.stem + "-sample.png")
         written, drawn = draw_sample(results, out, at=parse_at(at or []), kind=kind, size=size,
                                      gap=gap, label=str(results_file))
+        notes = at_notes(results, parse_at(at or []))
     except SweepError as exc:
         fail(ctx, exc)
         return
-    if drawn.chosen:
+    for line in notes:
+        note(ctx, line.replace("drawn at", "sampled at"))
+    if drawn.chosen and not quiet(ctx):
         typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")
 
 
 @app.command()
 def models(ctx: typer.Context) -> None:
-    """List the built-in models and the measurements with their parameters."""
+    """List the built-in models with their parameters and cell operators, and the measurements
+    with their parameters."""
+    from ..jobfile.model_table import model_operators
     from ..physics.measurements import MEASUREMENTS
     from ..physics.models import MODELS
+
+    def users(o: str, dim: int) -> str:
+        names = [m.name for m in MEASUREMENTS if o in m.extra.get("operators", ())
+                 and dim in m.extra.get("dims", (1, 2))]
+        if o == "chiral":
+            names.append(("end_modes" if dim == 1 else "corner_modes") + " (chiral charges)")
+        if not names:
+            return "give it by name as [measure.line_winding] operator"
+        return "used by " + ", ".join(names)
 
     typer.echo("models:")
     for e in MODELS:
@@ -159,7 +174,14 @@ def models(ctx: typer.Context) -> None:
         for p in e.params:
             default = "" if p.required else f" = {p.default}"
             typer.echo(f"      {p.name}{default}: {p.doc or p.kind}")
+        docs = e.extra.get("operator_docs", {})
+        for o in model_operators(e.name):
+            meaning = f"{docs[o]}; " if o in docs else ""
+            typer.echo(f"      operator {o}: {meaning}{users(o, e.extra['dim'])}")
         typer.echo(f"      source: {e.source}")
+    typer.echo("  custom: your own lattice, orbitals, [[model.onsite]] and [[model.hopping]] "
+               "terms; cell operators in [model.operators] as a Pauli word, a matrix or "
+               "[[model.operators.NAME]] terms (matrix, coeff)")
     typer.echo("measurements:")
     for e in MEASUREMENTS:
         applies = {None: "static and driven jobs", True: "driven jobs", False: "static jobs"}

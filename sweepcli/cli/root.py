@@ -22,7 +22,8 @@ EXIT_INTERRUPTED = 3
 
 # Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
 # and read "[output]" in a help text as markup.
-app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+# Shell completion: `sweepcli --install-completion` (bash, zsh, fish, PowerShell).
+app = typer.Typer(no_args_is_help=True, add_completion=True, pretty_exceptions_enable=False,
                   rich_markup_mode=None,
                   help="Phase-diagram sweeps of static and periodically driven lattice models.")
 
@@ -31,6 +32,7 @@ app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_
 class State:
     verbose: bool = False
     debug: bool = False
+    quiet: bool = False
 
 
 def _version(value: bool) -> None:
@@ -43,12 +45,31 @@ def _version(value: bool) -> None:
 def main(ctx: typer.Context,
          verbose: Annotated[bool, typer.Option(
              "--verbose", "-v", help="Say more (run: what is about to be computed).")] = False,
+         quiet: Annotated[bool, typer.Option(
+             "--quiet", "-q",
+             help="Print only errors and each command's final line: no progress bar, log lines "
+                  "or notes.")] = False,
          debug: Annotated[bool, typer.Option(
              "--debug", help="Show tracebacks of errors.")] = False,
          version: Annotated[bool | None, typer.Option(
              "--version", callback=_version, is_eager=True, help="Print the version.")] = None,
          ) -> None:
-    ctx.obj = State(verbose=verbose, debug=debug)
+    if quiet and verbose:
+        typer.echo("error: give --quiet or --verbose, not both.", err=True)
+        raise typer.Exit(EXIT_ERROR)
+    ctx.obj = State(verbose=verbose, debug=debug, quiet=quiet)
+
+
+def quiet(ctx: typer.Context) -> bool:
+    """Whether the root ``--quiet`` was given."""
+    return ctx.obj is not None and ctx.obj.quiet
+
+
+def note(ctx: typer.Context, line: str) -> None:
+    """An informational line on stderr (a warning, a note on the values used); none with
+    ``--quiet``."""
+    if not quiet(ctx):
+        typer.echo(line, err=True)
 
 
 def fail(ctx: typer.Context, exc: SweepError) -> None:

@@ -123,9 +123,9 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
         "params": {k: (v if not isinstance(v, complex) else str(v))
                    for k, v in sorted(fixed.items()) if v is not None}
                   | {k: e.text for k, e in sorted(exprs.items())},
-        # Labels (doc, units) describe an axis and are no part of the job's identity.
-        "sweep": {k: ({kk: vv for kk, vv in v.items() if kk not in ("doc", "units")}
-                      if isinstance(v, dict) else v) for k, v in sweep_t.items()},
+        # Labels (doc, units) describe an axis and are no part of the job's identity; a
+        # { values = [...] } table is the plain list.
+        "sweep": {k: _unlabelled(v) for k, v in sweep_t.items()},
         "drive": drive.normalised(),
         **({"predict": {"momenta": [list(k) for k in predict]}} if predict is not None else {}),
         **({"refine": {"by": refine.by, "depth": refine.depth, "gap_var": refine.gap_var}
@@ -190,6 +190,15 @@ def _predict(ck: Checker, t: dict, dim: int, given: bool) -> tuple | None:
             coords.append(float(c))
         out.append(tuple(coords))
     return tuple(out)
+
+
+def _unlabelled(value: Any) -> Any:
+    """A ``[sweep]`` entry without its labels (``doc``, ``units``)."""
+    if not isinstance(value, dict):
+        return value
+    if "values" in value:
+        return value["values"]
+    return {k: v for k, v in value.items() if k not in ("doc", "units")}
 
 
 def _plain(value: Any) -> Any:

@@ -8,10 +8,10 @@ import math
 import numpy as np
 
 from ..errors import sentence, suggest
-from ..expressions import Expression, ExpressionError, parse
+from ..expressions import EvaluationError, Expression, ExpressionError, parse
 from ..physics.models import MODELS
 from ..physics.registry import Param
-from .checker import Checker
+from .checker import Checker, constant
 from .spec import CustomModel
 
 LATTICES = {
@@ -114,9 +114,33 @@ def _custom_model(ck: Checker, t: dict) -> CustomModel:
     ops_t = t.get("operators", {})
     if not isinstance(ops_t, dict):
         raise ck.fail("model", "operators", "a table of named matrices", ops_t)
-    operators = tuple((k, ck.matrix("model.operators", k, v, n)) for k, v in ops_t.items())
+    operators = tuple((k, _operator(ck, k, v, n)) for k, v in ops_t.items())
     return CustomModel(tuple(map(tuple, vectors)), tuple(map(tuple, positions)), tuple(onsite),
                        tuple(hoppings), operators)
+
+
+def _operator(ck: Checker, name: str, value: object, n: int) -> np.ndarray:
+    """A cell operator: a Pauli word, a square matrix, or an array of tables
+    ``[[model.operators.NAME]]`` with ``matrix`` and a constant ``coeff`` (default 1), summed
+    like onsite terms."""
+    if not (isinstance(value, list) and value and all(isinstance(v, dict) for v in value)):
+        return ck.matrix("model.operators", name, value, n)
+    total = np.zeros((n, n), complex)
+    for i, term in enumerate(value):
+        where = f"model.operators.{name}.{i}"
+        ck.only(where, term, ["matrix", "coeff"])
+        m = ck.matrix(where, "matrix", term.get("matrix"), n)
+        c = term.get("coeff", 1)
+        expected = "a number or an expression of constants such as \"1/sqrt(2)\" or \"1j\""
+        if isinstance(c, bool) or not isinstance(c, (int, float, str)):
+            raise ck.fail(where, "coeff", expected, c)
+        try:
+            total += constant(c) * m
+        except (ValueError, ExpressionError, EvaluationError) as exc:
+            hint = (f" {exc.detail}." if isinstance(exc, EvaluationError) else
+                    " " + sentence(exc) if isinstance(exc, ExpressionError) else "")
+            raise ck.fail(where, "coeff", expected, c, hint) from None
+    return total
 
 
 def _coeff(ck: Checker, where: str, value: object) -> Expression:

@@ -52,18 +52,25 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
     if param is not None and not param.sweepable:
         raise JobError(f"{ck.path}: [sweep] {key} cannot be swept.")
     spec_help = ("a list of values or a table { start = A, stop = B, num = N } "
-                 "(optionally spacing = \"log\")")
+                 "(optionally spacing = \"log\") or { values = [...] }")
     if isinstance(value, list):
-        if not value:
-            raise ck.fail("sweep", key, spec_help, value, " The list is empty.")
-        vals = tuple(ck.number("sweep", key, ck.constant("sweep", key, v), param) for v in value)
-        return Axis(key, tuple(float(v) for v in vals), "list")
+        return Axis(key, _list_values(ck, "sweep", key, value, param, spec_help), "list")
     if not isinstance(value, dict):
         raise ck.fail("sweep", key, spec_help, value)
-    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing", "doc", "units"])
+    ck.only(f"sweep.{key}", value, ["start", "stop", "num", "spacing", "values", "doc", "units"])
     for k in ("doc", "units"):
         if not isinstance(value.get(k, ""), str):
             raise ck.fail(f"sweep.{key}", k, "a string", value[k])
+    if "values" in value:
+        for k in ("start", "stop", "num", "spacing"):
+            if k in value:
+                raise ck.fail(f"sweep.{key}", k, "absent when values is given (a list or a "
+                              "range, not both)", value[k])
+        if not isinstance(value["values"], list):
+            raise ck.fail(f"sweep.{key}", "values", "a list of values", value["values"])
+        vals = _list_values(ck, f"sweep.{key}", "values", value["values"], param,
+                            "a list of values")
+        return Axis(key, vals, "list", value.get("doc", ""), value.get("units", ""))
     for k in ("start", "stop", "num"):
         if k not in value:
             raise ck.fail(f"sweep.{key}", k, "given (" + spec_help + ")", None)
@@ -93,6 +100,16 @@ def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:
                           f"such that every value is {param.expectation()}", float(v))
     return Axis(key, tuple(float(v) for v in vals), spacing, value.get("doc", ""),
                 value.get("units", ""))
+
+
+def _list_values(ck: Checker, table: str, key: str, value: list, param: Param,
+                 expected: str) -> tuple[float, ...]:
+    """The values of an explicit list axis (numbers or constant expressions), each checked
+    against the parameter's declaration."""
+    if not value:
+        raise ck.fail(table, key, expected, value, " The list is empty.")
+    vals = tuple(ck.number(table, key, ck.constant(table, key, v), param) for v in value)
+    return tuple(float(v) for v in vals)
 
 
 def order_expressions(ck: Checker, exprs: dict[str, Expression], known: set[str]) -> tuple:

@@ -46,8 +46,11 @@ def transition_points(u_of: Callable[[float], np.ndarray], grid: Sequence[float]
     the branch being followed at each trial value by maximal overlap with its left-end
     eigenvector. A root is kept only if ``U`` really has an eigenphase within ``check_tol`` of
     0 (pi) there. A grid value where ``U`` already has such an eigenphase is a transition at
-    that value.
+    that value. A root is rounded to the decimal place of ``xtol`` (12 decimals by default),
+    below the accuracy brentq guarantees, so that a crossing at 0.5 reads 0.5 rather than the
+    root finder's last step, 0.5000000000000001.
     """
+    decimals = max(0, int(np.floor(-np.log10(xtol))))
     grid = [float(x) for x in grid]
     if any(b <= a for a, b in zip(grid, grid[1:])):
         raise ValueError("the parameter grid must be strictly increasing")
@@ -95,7 +98,7 @@ def transition_points(u_of: Callable[[float], np.ndarray], grid: Sequence[float]
                     return phi if kind == "0" else (phi % (2 * np.pi)) - np.pi
 
                 try:
-                    root = brentq(branch, a, b, xtol=xtol)
+                    root = round(float(brentq(branch, a, b, xtol=xtol)), decimals)
                 except ValueError:
                     continue
                 ph, _ = eig(root)

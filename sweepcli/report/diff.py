@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from ..schema import Reason
+from ..schema import POINT_SECONDS, Reason
 from ..store import FILL_INT, Results
 from .diff_match import GridMatch, ProvenanceDiff, compare_provenance, match_grids
 
@@ -204,12 +204,13 @@ def diff_results(a: Results, b: Results, *, labels: tuple[str, str] = ("A", "B")
     """
     grid = match_grids(a, b, coord_tol)
     variables = []
-    common = [n for n in a.variables if n in b.variables]
+    # compute times are provenance of a run, not values: never a difference
+    common = [n for n in a.variables if n in b.variables and n != POINT_SECONDS]
     if grid.comparable:
         variables = [compare_variable(a, b, grid, n, rtol, atol, top) for n in common]
     return ResultsDiff(
         a=labels[0], b=labels[1], strength="provenance" if provenance else "values",
         common_only=common_only, rtol=rtol, atol=atol,
         provenance=compare_provenance(a, b, labels), grid=grid, variables=variables,
-        only_a=[n for n in a.variables if n not in b.variables],
-        only_b=[n for n in b.variables if n not in a.variables])
+        only_a=[n for n in a.variables if n not in b.variables and n != POINT_SECONDS],
+        only_b=[n for n in b.variables if n not in a.variables and n != POINT_SECONDS])

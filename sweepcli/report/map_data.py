@@ -7,13 +7,14 @@ boundary lines; numpy only.
 
 from __future__ import annotations
 
+import re
 from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import ResultsError, suggest
-from ..schema import Reason
+from ..schema import Reason, is_energy
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 
@@ -22,18 +23,20 @@ GAP_VARIABLES = ("gap", "gap_0", "gap_pi")
 MAX_DISCRETE = 24
 
 
-def discrete_levels(dtype: str, values: np.ndarray, units: str = "1") -> list[float] | None:
+def discrete_levels(dtype: str, values: np.ndarray, units: str = "1",
+                    long_name: str = "") -> list[float] | None:
     """Sorted distinct values when ``values`` are to be drawn discretely, else ``None``.
 
-    Integer variables always; a dimensionless float variable (``units`` "1" or "", so never a
-    gap that happens to be 0 or 2) whose finite values are all integers or half-integers
-    (within 1e-6), with at most :data:`MAX_DISCRETE` distinct values: a spin Chern number.
+    Integer variables always; a dimensionless float variable (``units`` "1" or "", and not an
+    energy in units of the model's, so never a gap that happens to be 0 or 2) whose finite
+    values are all integers or half-integers (within 1e-6), with at most :data:`MAX_DISCRETE`
+    distinct values: a spin Chern number.
     """
     finite = np.asarray(values, float)
     finite = finite[np.isfinite(finite)]
     if dtype in ("int32", "uint8"):
         return sorted(float(v) for v in np.unique(finite))
-    if not finite.size or units not in ("", "1"):
+    if not finite.size or units not in ("", "1") or is_energy(units, long_name):
         return None
     twice = np.round(2 * finite)
     if np.max(np.abs(2 * finite - twice)) > 2e-6 or len(np.unique(twice)) > MAX_DISCRETE:
@@ -53,8 +56,10 @@ def default_variable(results: Results) -> str:
 
     The one the job names (``[output] main``, stored as the root attribute ``main_variable``);
     else the first integer invariant that takes more than one value on the computed points
-    (diagnostics such as ``*_kmesh``, ``*_method`` and the ``agree_*`` flags are skipped), else
-    the first integer invariant, else the first variable.
+    (diagnostics such as ``*_kmesh``, ``*_method`` and the ``agree_*`` flags are skipped; a
+    corner count is taken per corner, ``corner_modes_g_00`` in place of the total
+    ``corner_modes_g``, since that is what the windings predict), else the first integer
+    invariant, else the first variable.
     """
     main = results.attrs.get("main_variable", "")
     if main in results.variables:
@@ -64,6 +69,9 @@ def default_variable(results: Results) -> str:
         raise ResultsError("the results file holds no variables to draw.")
     ints = [v.name for v in plain if v.dtype == "int32" and not v.name.startswith("agree_")
             and not v.name.endswith(("_kmesh", "_method"))]
+    per_corner = {n: f"{n}_00" for n in ints if re.fullmatch(r"corner_modes_(0|pi)", n)
+                  and f"{n}_00" in results.variables}
+    ints = list(dict.fromkeys(per_corner.get(n, n) for n in ints))
     done = results.done.astype(bool)
     for name in ints:
         vals = results.data[name][done]
@@ -270,5 +278,6 @@ def map_slice(results: Results, var: str, index: tuple) -> Slice:
     skipped = known & bad & not_requested(results, var)[index]
     mask = confirmed(results)
     return Slice(var, values, ~known, known & bad & ~skipped,
-                 discrete_levels(meta.dtype, values, meta.units), n_known, results.size,
+                 discrete_levels(meta.dtype, values, meta.units, meta.long_name), n_known,
+                 results.size,
                  skipped, None if mask is None else mask[index] & known)

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..schema import split_scale
 from ..store import Results
 from .map_data import Slice, disagreement, gap_variable_for, transition_rows
 from .map_style import (
@@ -65,9 +66,10 @@ def draw_cut(ax, results: Results, s: Slice, index: tuple, axis,
         twin.plot(x, gap, "-", color="0.45", lw=1)
         twin.set_ylabel(value_label(gap_name, results.variables[gap_name]), color="0.45")
         twin.set_ylim(bottom=0)
+        gap_meta = split_scale(results.variables[gap_name].units,
+                               results.variables[gap_name].long_name)
         handles.append(Line2D([], [], color="0.45", lw=1,
-                              label=f"{gap_name} ({results.variables[gap_name].long_name}; "
-                                    "right axis)"))
+                              label=f"{gap_name} ({gap_meta[0]}; right axis)"))
     if mark_disagree:
         bad = disagreement(results)[index]
         if bad.any():

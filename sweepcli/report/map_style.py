@@ -9,6 +9,7 @@ from collections import Counter
 
 import numpy as np
 
+from ..schema import split_scale
 from ..store import Results
 from .map_data import Slice, missing_reasons
 
@@ -21,23 +22,37 @@ NOT_REQUESTED_HATCH = "..."
 CONFIRMED_MARK = dict(marker="s", mfc="none", mec="k", mew=0.7)  # boundary measured here
 ZERO_COLOUR = "#e9e4d4"  # the trivial phase: a neutral that is neither grey nor white
 #: |value| -> distance from the centre of the diverging red-blue scale (0.5 = its darkest end).
-#: Fixed, so that a value has one colour in every map; |value| >= 4 share the darkest shade.
+#: Fixed, so that a value has one colour in every map.
 _STRENGTH = ((0.5, 1.0, 2.0, 3.0, 4.0), (0.17, 0.25, 0.36, 0.44, 0.5))
+#: Largest |value| drawn on the red-blue scale; larger values get hues of their own.
+_SCALE_MAX = 4.0
+_GOLDEN = (np.sqrt(5.0) - 1) / 2
 
 
 def value_colour(value: float) -> tuple[float, float, float, float]:
-    """The RGBA colour of an integer or half-integer ``value`` in every map.
+    """The RGBA colour of an integer or half-integer ``value`` in every map; different values
+    have different colours.
 
-    0 is :data:`ZERO_COLOUR`; positive values take reds and negative values blues of the
-    ColorBrewer red-blue scale (matplotlib's ``RdBu_r``), deeper with ``|value|``.
+    0 is :data:`ZERO_COLOUR`; for ``|value| <= 4`` positive values take reds and negative
+    values blues of the ColorBrewer red-blue scale (matplotlib's ``RdBu_r``), deeper with
+    ``|value|``. Larger magnitudes (more than four corner modes, say) leave the scale: each
+    takes a hue of its own, ``2 |value|`` times the golden ratio (mod 1), which no other value
+    shares, saturated and light for positive values and darker for negative ones.
     """
+    import colorsys
+
     import matplotlib
     from matplotlib.colors import to_rgba
 
     if value == 0:
         return to_rgba(ZERO_COLOUR)
-    offset = float(np.interp(abs(value), *_STRENGTH))
-    return tuple(float(c) for c in matplotlib.colormaps["RdBu_r"](0.5 + np.copysign(offset, value)))
+    if abs(value) <= _SCALE_MAX:
+        offset = float(np.interp(abs(value), *_STRENGTH))
+        return tuple(float(c) for c in
+                     matplotlib.colormaps["RdBu_r"](0.5 + np.copysign(offset, value)))
+    hue = float((2 * abs(value) * _GOLDEN) % 1.0)
+    sat, val = (0.75, 0.85) if value > 0 else (0.9, 0.5)
+    return (*colorsys.hsv_to_rgb(hue, sat, val), 1.0)
 
 
 def level_text(value: float) -> str:
@@ -45,6 +60,36 @@ def level_text(value: float) -> str:
     if value == int(value):
         return str(int(value))
     return f"{int(round(2 * value))}/2"
+
+
+def absent_levels(levels: list[float]) -> list[float]:
+    """The integers (half-integers, when a level is one) between the smallest and largest of
+    ``levels`` that are not among them: the discrete colour bar has one slot per value present,
+    so these are left out of it."""
+    if len(levels) < 2:
+        return []
+    step = 0.5 if any(v != int(v) for v in levels) else 1.0
+    lo, hi = min(levels), max(levels)
+    every = lo + step * np.arange(int(round((hi - lo) / step)) + 1)
+    return [float(v) for v in every if not np.any(np.isclose(v, levels))]
+
+
+def absent_text(var: str, absent: list[float], limit: int = 6) -> str:
+    """Legend text saying which values the colour bar leaves out: ``corner_modes_0 = 2, 3
+    occurs nowhere (not in the colour bar)``; runs of consecutive values are written ``5..7``."""
+    step = 0.5 if any(v != int(v) for v in absent) else 1.0
+    runs: list[list[float]] = []
+    for v in absent:
+        if runs and np.isclose(v - runs[-1][-1], step):
+            runs[-1].append(v)
+        else:
+            runs.append([v])
+    parts = [level_text(r[0]) if len(r) == 1 else
+             (f"{level_text(r[0])}, {level_text(r[1])}" if len(r) == 2 else
+              f"{level_text(r[0])}..{level_text(r[-1])}") for r in runs]
+    if len(parts) > limit:
+        parts = parts[:limit] + ["..."]
+    return f"{var} = {', '.join(parts)} occurs nowhere (not in the colour bar)"
 
 
 def missing_text(counts: Counter) -> str:
@@ -57,13 +102,17 @@ def missing_text(counts: Counter) -> str:
 
 
 def axis_label(axis) -> str:
-    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
-    name = axis.name if axis.long_name in ("", axis.name) else f"{axis.name} ({axis.long_name})"
+    """``m (staggered mass u) [t]``: the name, the long name and the scale (stored in the long
+    name when the units are the model's own, see :func:`sweepcli.schema.cf_units`)."""
+    long_name, units = split_scale(axis.units, axis.long_name)
+    unit = f" [{units}]" if units else ""
+    name = axis.name if long_name in ("", axis.name) else f"{axis.name} ({long_name})"
     return name + unit
 
 
 def value_label(var: str, meta) -> str:
-    return var + (f" [{meta.units}]" if meta.units not in ("", "1") else "")
+    units = split_scale(meta.units, meta.long_name)[1]
+    return var + (f" [{units}]" if units else "")
 
 
 def hatch_cells(ax, xe: np.ndarray, ye: np.ndarray, mask: np.ndarray,

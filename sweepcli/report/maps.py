@@ -37,6 +37,8 @@ from .map_style import (
     CONFIRMED_MARK,
     MISSING_COLOUR,
     NOT_REQUESTED_HATCH,
+    absent_levels,
+    absent_text,
     axis_label,
     hatch_cells,
     level_text,
@@ -91,6 +93,7 @@ def _draw_mesh(ax, results: Results, s: Slice, index: tuple, xa, ya,
     import matplotlib
     from matplotlib.colors import BoundaryNorm, ListedColormap
     from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
 
     fig = ax.figure
     meta = results.variables[s.var]
@@ -111,6 +114,10 @@ def _draw_mesh(ax, results: Results, s: Slice, index: tuple, xa, ya,
         bar = fig.colorbar(mesh, ax=ax, ticks=range(len(levels)), pad=0.02, aspect=30)
         bar.ax.set_yticklabels([level_text(v) for v in levels])
         bar.ax.tick_params(length=0)
+        absent = absent_levels(levels)
+        if absent:  # one slot per value present: say which values between them are not
+            handles.append(Patch(facecolor="none", edgecolor="none",
+                                 label=absent_text(s.var, absent)))
     else:
         cmap = matplotlib.colormaps["viridis"].with_extremes(bad=MISSING_COLOUR)
         mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat")

@@ -99,10 +99,16 @@ class SampleDrawing:
     full_spectrum: bool = True
     region: int = 0
     chosen: str = ""  # why this sample kind, when it was not asked for
+    defaulted: tuple[str, ...] = ()  # axes of more than one value that --at did not name
 
     def describe(self) -> str:
-        """One line: the sample and the counts of the chosen gap."""
+        """One line: the sample at the value of every swept parameter (those ``--at`` did not
+        name marked as taken at their first value) and the counts of the chosen gap."""
         where = ", ".join(f"{k}={v:g}" for k, v in self.params.items())
+        if self.defaulted:
+            where += (f" ({', '.join(self.defaulted)}: first value, not given by --at)"
+                      if len(self.defaulted) > 1 else
+                      f" ({self.defaulted[0]}: first value, not given by --at)")
         return (f"{sample_name(self.kind, self.shape)} at {where}: "
                 f"{count_text(self.kind, self.counts[self.gap], self.reasons[self.gap])}")
 
@@ -375,7 +381,8 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
                                 raw["counts"], density=raw["density"],
                                 corner_weight=raw["corner_weight"], reasons=raw["reasons"],
                                 full_spectrum=raw["full"], region=raw["region"])
-    drawing = replace(drawing, chosen=chosen)
+    drawing = replace(drawing, chosen=chosen, defaulted=tuple(
+        a.name for a in job.axes if a.name not in (at or {}) and len(a.values) > 1))
     if as_measured:
         drawing = replace(drawing, stored=_stored(results, kind, index, driven),
                           stored_reasons=_stored_reasons(results, kind, index, driven))

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..schema import Reason
+from ..schema import POINT_SECONDS, Reason
 from ..store import FILL_INT, Results
 
 PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "shard", "refine_by",
@@ -38,6 +38,8 @@ class Summary:
     failed: list[tuple[dict, str]]
     variables: list[VariableSummary]
     empty: list[str] = field(default_factory=list)
+    # compute times (point_seconds): total, median, slowest and where; None without them
+    timing: tuple[float, float, float, dict] | None = None
 
 
 def empty_slots(results: Results) -> list[str]:
@@ -95,7 +97,17 @@ def summarise(results: Results, max_failed: int = 20) -> Summary:
         multi = np.unravel_index(flat, results.shape)
         params = {a.name: float(a.values[i]) for a, i in zip(results.axes, multi)}
         failed.append((params, str(results.failure.ravel()[flat])))
+    timing = None
+    if POINT_SECONDS in results.variables:
+        times = np.where(done, results.data[POINT_SECONDS], np.nan)
+        if np.isfinite(times).any():
+            slow = int(np.nanargmax(times))
+            multi = np.unravel_index(slow, results.shape)
+            timing = (float(np.nansum(times)), float(np.nanmedian(times)),
+                      float(times.ravel()[slow]),
+                      {a.name: float(a.values[i]) for a, i in zip(results.axes, multi)})
     return Summary(
+        timing=timing,
         provenance={k: results.attrs.get(k, "") for k in PROVENANCE_KEYS},
         axes=[(a.name, len(a.values), float(a.values[0]), float(a.values[-1]), a.units)
               for a in results.axes],
@@ -120,6 +132,12 @@ def format_summary(s: Summary) -> str:
     if not s.provenance.get("finished"):
         lines.append("status: not finished: still running, or interrupted (continue with "
                      "`sweepcli run JOB -o FILE --resume`); figures are from the last checkpoint")
+    if s.timing is not None:
+        total, median, slowest, where = s.timing
+        at = ", ".join(f"{k}={v:g}" for k, v in where.items())
+        lines.append(f"compute time: {total:.3g} s in all (about {total / 3600:.2g} core-hours), "
+                     f"median {median:.3g} s per point, slowest {slowest:.3g} s"
+                     + (f" at {at}" if at else ""))
     if s.failed:
         lines.append(f"failed points: {len(s.failed)} shown")
         for params, msg in s.failed:

@@ -20,7 +20,7 @@ from typing import IO
 
 import numpy as np
 
-from ..schema import Reason
+from ..schema import Reason, split_scale
 from ..store import FILL_INT, Results
 from ..store.refined import display_values
 from .map_data import (
@@ -210,8 +210,8 @@ class Coded:
 
 
 def _axis_label(axis) -> str:
-    unit = f" [{axis.units}]" if axis.units and axis.units != "1" else ""
-    return axis.name + unit
+    units = split_scale(axis.units, axis.long_name)[1]
+    return axis.name + (f" [{units}]" if units else "")
 
 
 def value_colour(value: float) -> str:
@@ -244,7 +244,7 @@ def code_variable(results: Results, var: str, index: tuple) -> Coded:
     codes = np.zeros(data.shape, dtype=np.int64)
     ramp = False
     discrete = discrete_levels(meta.dtype, np.where(missing, np.nan, data.astype(float)),
-                               meta.units)
+                               meta.units, meta.long_name)
     if discrete is not None:
         # zero first (lightest), then by size with the positive value of a pair first
         order = sorted(discrete, key=lambda v: (v != 0, abs(v), v < 0))
@@ -268,7 +268,7 @@ def code_variable(results: Results, var: str, index: tuple) -> Coded:
             nlev = len(RAMP_GLYPHS) if hi > lo else 1
             edges = np.linspace(lo, hi, nlev + 1)
             idx = np.clip(np.searchsorted(edges, data, side="right") - 1, 0, nlev - 1)
-            unit = f" {meta.units}" if meta.units not in ("", "1") else ""
+            unit = f" {units}" if (units := split_scale(meta.units, meta.long_name)[1]) else ""
             for k in range(nlev):
                 g = RAMP_GLYPHS[k] if nlev > 1 else RAMP_GLYPHS[-1]
                 sel = ~missing & (idx == k)
@@ -431,7 +431,7 @@ def terminal_map(results: Results, var: str | None = None, at: dict[str, float] 
             if ok.any():
                 lo, hi = int(np.nanargmin(np.where(ok, data, np.nan))), int(
                     np.nanargmax(np.where(ok, data, np.nan)))
-                unit = f" {meta.units}" if meta.units not in ("", "1") else ""
+                unit = f" {units}" if (units := split_scale(meta.units, meta.long_name)[1]) else ""
                 lines.append(f"min {var} = {fmt(data[lo])}{unit} at {axis.name}="
                              f"{fmt(axis.values[lo])}; max {fmt(data[hi])}{unit} at "
                              f"{axis.name}={fmt(axis.values[hi])}")

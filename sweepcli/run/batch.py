@@ -9,7 +9,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..jobfile import Job
-from .cost import estimate
+from .cost import MeasuredCost, estimate
 from .shards import Shard
 
 SAFETY = 2.0  # wall time = SAFETY x estimate + MARGIN; the estimate is rough
@@ -37,7 +37,7 @@ class BatchPlan:
 
 
 def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = None,
-         measured: float | None = None) -> BatchPlan:
+         measured: float | None = None, previous: MeasuredCost | None = None) -> BatchPlan:
     """Size an array job of ``tasks`` shards with ``workers`` processes each.
 
     The per-point time is ``seconds_per_point`` if given; otherwise the estimate
@@ -46,10 +46,17 @@ def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = N
     typical point. For a ``[confirm]`` job that time is split between bulk and boundary
     measurements as in the estimate, and a task is sized for the bulk on every point plus its
     share of the planned selected cells (:func:`~sweepcli.run.cost.selected_cells`).
+    ``previous`` (:func:`~sweepcli.run.cost.measured_cost`, the times a previous run of the job
+    stored) takes the place of the estimate and the timed point: its mean over the grid, which
+    for a ``[confirm]`` job already spreads the boundary measurements over the points.
     """
     cost = estimate(job)
     if seconds_per_point is not None:
         per_point, basis = seconds_per_point, "given with --seconds-per-point"
+    elif previous is not None:
+        per_point = previous.mean
+        basis = (f"measured: mean over the {previous.points} points of {previous.path}, "
+                 f"slowest {previous.slowest:.3g} s")
     elif measured is None:
         per_point, basis = cost.seconds_per_point, "estimated"
     else:
@@ -58,7 +65,7 @@ def plan(job: Job, tasks: int, workers: int, seconds_per_point: float | None = N
                  f"middle grid point ({measured:.3g} s)")
     per_task = math.ceil(job.size / tasks)
     cells = None
-    if cost.cells is None:
+    if cost.cells is None or (previous is not None and seconds_per_point is None):
         work = per_point * per_task
     else:
         scale = per_point / cost.seconds_per_point if cost.seconds_per_point > 0 else 1.0

@@ -28,7 +28,7 @@ import numpy as np
 from ..jobfile import Job
 from ..physics.measurements import reason_names
 from ..physics.measurements.consistency import evaluate
-from ..schema import Reason
+from ..schema import POINT_SECONDS, Reason
 from ..store import FILL_INT, Results
 
 NOT_COMPUTED = np.uint8(Reason.NOT_COMPUTED)
@@ -221,6 +221,11 @@ class Recorder:
         return all(r[index] != NOT_COMPUTED for r in self.reasons)
 
     def __call__(self, index: int, values: dict, failure: str) -> None:
+        if POINT_SECONDS in values and POINT_SECONDS in self.results.variables:
+            # a point computed in two passes: its time is the sum of both
+            before = self.results.data[POINT_SECONDS].reshape(-1)[index]
+            if np.isfinite(before):
+                values = {**values, POINT_SECONDS: float(before) + values[POINT_SECONDS]}
         self.results.record(index, values, failure, complete=False)
         if self.complete(index):
             if self.rules:

@@ -33,6 +33,13 @@ measurements on every point plus the boundary ones on a range of cells, from a l
 The probes are a few grid points (:func:`estimate`); points close to a transition walk further
 meshes and levels (a Rudner winding with a gap of 0.02 takes about five times longer), so the
 estimate is for a typical point; ``batch`` also times one grid point by default.
+
+Measured times
+--------------
+Every results file stores each point's compute time (``point_seconds``). When the job's output
+file already exists and was written by the same job (same sha256), :func:`measured_cost` reads
+those times: the mean over the computed points, transitions and all, is a better figure than
+any estimate, and ``batch`` sizes the wall time with it.
 """
 
 from __future__ import annotations
@@ -42,6 +49,8 @@ import statistics
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
+
+import numpy as np
 
 from ..jobfile import Job
 
@@ -272,6 +281,53 @@ def estimate(job: Job) -> Cost:
     boundary = sum(sum(t) / len(t) for n, t in sample_seconds.items()
                    if n in job.confirm.measurements)
     return Cost(per_point, job.size, int(peak + BASE_MEMORY), boundary, selected_cells(job))
+
+
+@dataclass
+class MeasuredCost:
+    """Compute times stored in a previous results file of the job (``point_seconds``)."""
+
+    path: str
+    points: int  # points with a stored time
+    total: float  # seconds, summed
+    median: float
+    slowest: float
+
+    @property
+    def mean(self) -> float:
+        return self.total / self.points
+
+    def format(self, grid_points: int) -> str:
+        return (f"{self.mean:.3g} s per point on average over the {self.points} points of "
+                f"{self.path} (median {self.median:.3g} s, slowest {self.slowest:.3g} s); about "
+                f"{self.mean * grid_points / 3600:.2g} core-hours for the grid")
+
+
+def measured_cost(job: Job, path: str | None = None) -> MeasuredCost | None:
+    """The stored compute times of ``path`` (default the job's output file), or ``None`` when
+    it does not exist, cannot be read, was written by another job (another sha256) or holds no
+    times (a file written before they were stored)."""
+    from pathlib import Path
+
+    from ..errors import SweepError
+    from ..schema import POINT_SECONDS
+    from ..store import Results
+
+    path = str(path if path is not None else job.output)
+    if not Path(path).is_file():
+        return None
+    try:
+        results = Results.read(path)
+    except SweepError:
+        return None
+    if results.attrs.get("job_sha256") != job.sha256 or POINT_SECONDS not in results.variables:
+        return None
+    times = results.data[POINT_SECONDS].reshape(-1)
+    times = times[np.isfinite(times)]
+    if not times.size:
+        return None
+    return MeasuredCost(path, int(times.size), float(times.sum()), float(np.median(times)),
+                        float(times.max()))
 
 
 def time_one_point(job: Job) -> float:

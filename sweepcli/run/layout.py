@@ -15,6 +15,7 @@ import numpy as np
 from ..jobfile import Job
 from ..physics.measurements import reason_links, reason_names
 from ..physics.models import MODELS
+from ..schema import POINT_SECONDS, cf_units
 from ..store import Results, Variable
 from ..store.provenance import new_results
 from ..store.results import AxisData
@@ -38,6 +39,7 @@ def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
         param = MODELS[job.model].param(a.name) if job.model in MODELS else None
         units = a.units or (param.units if param is not None and param.units else "1")
         long_name = a.doc or (param.doc if param is not None and param.doc else a.name)
+        units, long_name = cf_units(units, long_name)
         axes.append(AxisData(a.name, np.array(a.values), units, long_name, a.spacing))
     variables = []
     driven = job.drive.kind != "static"
@@ -45,16 +47,19 @@ def results_for_job(job: Job, argv: list[str] | None = None) -> Results:
     for measurement, quantities in job.quantities():
         links.update(reason_links(measurement, job.dim, driven))
         for q in quantities:
-            variables.append(Variable(q.name, q.dtype, q.units, q.long_name, measurement,
-                                      links[q.name]))
+            variables.append(Variable(q.name, q.dtype, *cf_units(q.units, q.long_name),
+                                      measurement, links[q.name]))
         for group, rname in reason_names(measurement, job.dim, driven).items():
             what = measurement + (f" at {_GAP_WORDS.get(group, group)}" if group else "")
             variables.append(Variable(rname, "uint8", "1",
                                       f"why {what} is missing (0 = not missing)", measurement))
     for rule in job.consistency_rules():
         q = rule.quantity
-        variables.append(Variable(q.name, q.dtype, q.units, q.long_name, "consistency",
-                                  rule_links(rule.reads, links)))
+        variables.append(Variable(q.name, q.dtype, *cf_units(q.units, q.long_name),
+                                  "consistency", rule_links(rule.reads, links)))
+    variables.append(Variable(POINT_SECONDS, "float64", "s",
+                              "compute time of the point in a worker (summed over passes)",
+                              "run"))
     attrs = {
         "title": job.title,
         "job_name": job.name,

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import time
+
 from ..jobfile import Job
 from ..physics.measurements import MEASUREMENTS, quantities_of, reason_names, split_reason
 from ..physics.measurements.consistency import evaluate
-from ..schema import Reason
+from ..schema import POINT_SECONDS, Reason
 
 Record = tuple[int, dict, str]
 
@@ -19,7 +21,9 @@ def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) ->
     missing with ``Reason.FAILED`` in every one of its reason variables and its message, and the
     other measurements (and the sweep) go on. The consistency flags need every measurement,
     so they are added only without ``only`` (a ``[confirm]`` run adds them in the parent).
+    ``values[POINT_SECONDS]`` is the time the worker spent on the point (wall clock, seconds).
     """
+    start = time.perf_counter()
     point = job.point(index)
     driven = job.drive.kind != "static"
     values: dict = {}
@@ -38,6 +42,7 @@ def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) ->
         values.update(reasons)
     if only is None:
         values.update(evaluate(job.consistency_rules(), values))
+    values[POINT_SECONDS] = time.perf_counter() - start
     return index, values, "; ".join(failures)
 
 

@@ -17,7 +17,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultsError
-from ..schema import Grid, Reason
+from ..schema import CF_CONVENTIONS, POINT_SECONDS, Grid, Reason
 
 SCHEMA_VERSION = "1"
 MARKER = "sweepcli_schema"
@@ -122,6 +122,8 @@ class Results(Grid):
         """
         multi = np.unravel_index(index, self.shape)
         for name, value in values.items():
+            if name == POINT_SECONDS and name not in self.variables:
+                continue  # a file written before compute times were stored, being resumed
             var = self.variables[name]
             if value is None or (var.dtype == "int32" and isinstance(value, float)
                                  and np.isnan(value)):
@@ -161,6 +163,7 @@ class Results(Grid):
         for key, value in self.attrs.items():
             f.attrs[key] = value
         f.attrs[MARKER] = SCHEMA_VERSION
+        f.attrs["Conventions"] = CF_CONVENTIONS
         f.attrs["axes"] = ",".join(a.name for a in self.axes)
         f.attrs["variables"] = ",".join(self.variables)
         scales = []

@@ -51,6 +51,9 @@ def winding_map():
 
 def same(a, b):
     for name in a.variables:
+        if name == "point_seconds":  # compute times differ run to run; where they exist not
+            assert np.array_equal(np.isnan(a.data[name]), np.isnan(b.data[name]))
+            continue
         assert np.array_equal(a.data[name], b.data[name], equal_nan=True), name
     assert np.array_equal(a.done, b.done)
     assert list(a.failure.ravel()) == list(b.failure.ravel())

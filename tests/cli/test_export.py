@@ -120,3 +120,22 @@ def test_library_table_and_unknown_variable(qwz):
     assert result.exit_code == 2
     assert result.stderr.strip().startswith("error: no variable 'chrn' in the results file")
     assert "Did you mean 'chern'?" in result.stderr
+
+
+def test_transitions_table_writes_crossings_as_short_round_tripping_floats(tmp_path):
+    # QWZ (Qi, Wu and Zhang, PRB 74, 085308 (2006)): the gap closes at m = -2t (Gamma), m = 0
+    # (X and Y) and m = +2t (M); with t = 0.625 the outer crossings, +-1.25, lie between grid
+    # values (m = -3 .. 3 in steps of 6/7), so the root finder places them.
+    text = (JOBS / "quickstart.toml").read_text()
+    text = text.replace("num = 31", "num = 8").replace(
+        "t = { start = 0.25, stop = 1.5, num = 11 }", "t = [0.625]")
+    text = text.replace('path = "results/quickstart.h5"', f'path = "{tmp_path / "t.h5"}"')
+    (tmp_path / "t.toml").write_text(text)
+    assert invoke("run", tmp_path / "t.toml", "--no-progress").exit_code == 0
+    result = invoke("export", tmp_path / "t.h5", "--table", "transitions")
+    assert result.exit_code == 0, result.output
+    rows = list(csv.DictReader(io.StringIO(result.stdout)))
+    assert sorted(r["m"] for r in rows) == ["-1.25", "0.0", "0.0", "1.25"]
+    for r in rows:
+        for key in ("m", "t", "k1", "k2"):
+            assert r[key] == repr(float(r[key])), (key, r[key])  # shortest text, round trip

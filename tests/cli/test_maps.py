@@ -235,6 +235,42 @@ def test_default_variable_without_a_named_main_is_the_first_varying_invariant():
     assert default_variable(r) == "line_w0_s1"
 
 
+def test_default_variable_of_a_corner_count_is_the_count_per_corner():
+    job = tiny_job("corner-modes.toml")
+    r = fill(job, [1])
+    del r.attrs["main_variable"]
+    assert default_variable(r) == "line_sectors"  # every integer constant: the first one
+    r.data["corner_modes_0"].ravel()[:] = np.resize([0, 4], r.size)
+    r.data["corner_modes_0_00"].ravel()[:] = np.resize([0, 1], r.size)
+    # line windings predict the modes at one corner, not the total of the four
+    assert default_variable(r) == "corner_modes_0_00"
+
+
+def test_every_integer_and_half_integer_has_its_own_colour():
+    from matplotlib.colors import to_rgb
+
+    from sweepcli.report.map_style import MISSING_COLOUR, value_colour
+
+    values = [v / 2 for v in range(-48, 49)]
+    colours = {tuple(np.round(value_colour(v)[:3], 3)) for v in values}
+    assert len(colours) == len(values)
+    assert tuple(np.round(to_rgb(MISSING_COLOUR), 3)) not in colours
+
+
+def test_four_and_eight_corner_modes_differ_and_absent_values_are_named():
+    job = tiny_job("corner-modes.toml")
+    r = fill(job, [0, 4, 8, 4])
+    fig = drawn(map_figure(r, "corner_modes_0"))
+    colours = cell_colours(fig, r, "corner_modes_0")
+    assert set(colours) == {0.0, 4.0, 8.0}
+    assert len({next(iter(c)) for c in colours.values()}) == 3
+    assert ("corner_modes_0 = 1..3, 5..7 occurs nowhere (not in the colour bar)"
+            in legend_texts(fig))
+    assert_not_clipped(fig)
+    full = drawn(map_figure(fill(job, [0, 1, 2]), "corner_modes_0"))
+    assert not any("occurs nowhere" in t for t in legend_texts(full))
+
+
 def test_main_names_a_measured_quantity(write_job):
     base = ('[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = [0, 1]\n'
             '[measure.chern]\n[output]\n')
@@ -266,6 +302,30 @@ def test_sweep_doc_and_units_label_the_axis_without_changing_the_hash(write_job)
     assert (axis.long_name, axis.units) == ("mass", "eV")
     with pytest.raises(Exception, match=r"\[sweep.m\] units must be a string; got 3\."):
         load_job(write_job(base.format(", units = 3"), "c.toml"))
+
+
+def test_a_list_axis_takes_doc_and_units_in_a_values_table(write_job):
+    base = '[job]\nname = "j"\n[model]\nname = "qwz"\n[sweep]\nm = {}\n[measure.gap]\n'
+    plain = load_job(write_job(base.format("[0.5, 1, 2.5]")))
+    labelled = load_job(write_job(
+        base.format('{ values = [0.5, 1, 2.5], doc = "mass", units = "eV" }'), "b.toml"))
+    assert labelled.axes[0].values == plain.axes[0].values == (0.5, 1.0, 2.5)
+    assert labelled.axes[0].spacing == "list"
+    assert plain.sha256 == labelled.sha256
+    axis = results_for_job(labelled).axes[0]
+    assert (axis.long_name, axis.units) == ("mass", "eV")
+    for text, msg in [
+            ('{ values = [], doc = "mass" }',
+             r"\[sweep.m\] values must be a list of values; got \[\]\. The list is empty\."),
+            ('{ values = 2.0 }', r"\[sweep.m\] values must be a list of values; got 2\.0\."),
+            ('{ values = [1, 2], num = 3 }',
+             r"\[sweep.m\] num must be absent when values is given \(a list or a range, not "
+             r"both\); got 3\."),
+            ('{ values = [1, true] }', r"\[sweep.m\] values must be a real number; got true\."),
+            ('{ value = [1, 2] }', r"\[sweep.m\] has an unknown key 'value' .*Did you mean "
+                                   r"'values'\?")]:
+        with pytest.raises(Exception, match=msg):
+            load_job(write_job(base.format(text), "c.toml"))
 
 
 def test_every_model_parameter_has_a_description_and_units():

@@ -202,3 +202,19 @@ def test_bad_requests_exit_2_with_one_line(corner_file, tmp_path, case):
     assert result.stderr.startswith("error: " + expected), result.stderr
     assert len(result.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "x.png").exists()
+
+
+def test_sample_names_the_value_of_every_axis_and_which_were_not_given(tmp_path):
+    out = _run(tmp_path, "ssh2", '[job]\nname = "ssh2"\n[model]\nname = "ssh"\n[sweep]\n'
+                                 'w = [1.0, 2.0]\nv = [0.5, 1.5, 3.0]\n[measure.winding]\n')
+    result = invoke("sample", out, "--at", "v=0.6", "-o", tmp_path / "a.png")
+    assert result.exit_code == 0, result.output
+    # w was not given: the line says it was taken at its first value. SSH (Asboth et al., A
+    # Short Course on Topological Insulators, ch. 1): one mode per end for |v| < |w|.
+    line = result.stdout.strip().splitlines()[-1]
+    assert " at w=1, v=0.5 (w: first value, not given by --at): " in line, line
+    assert "2 end mode(s) (left 1, right 1)" in line
+    assert "--at v=0.6 is not a grid value; sampled at the nearest, v=0.5." in result.stderr
+    both = invoke("sample", out, "--at", "v=3", "--at", "w=2", "-o", tmp_path / "b.png")
+    assert both.exit_code == 0, both.output
+    assert " at w=2, v=3: 0 end mode(s)" in both.stdout and "first value" not in both.stdout

@@ -30,6 +30,8 @@ _AT_ORIGIN = np.zeros((4, 2))
             Param("mix", default=0.0, doc="time-reversal-symmetric spin mixing tau_y sigma_y",
                   units="energy")),
     dim=2, norb=4,
+    operator_docs={"spin": "spin S = tau_0 sigma_z, conserved for mix = 0 (spin_chern "
+                                   "projects on it)"},
 )
 def bhz(*, M: float, A: float = 1.0, B: float = 1.0, C: float = 0.0, D: float = 0.0,
         mix: float = 0.0) -> TightBinding:
@@ -99,6 +101,9 @@ _MIRROR_DIAG = np.kron(pauli("z"), (pauli("x") - pauli("y")) / np.sqrt(2.0))
             Param("delta1", default=1.0, doc="spin-orbit coupling", units="energy"),
             Param("delta2", doc="C4- and T-breaking mass amplitude", units="energy")),
     dim=2, norb=4,
+    operator_docs={"chiral": "tau_x sigma_z, anticommutes with H(k)",
+                   "mirror_diag": "tau_z (sigma_x - sigma_y)/sqrt(2), maps H(k1, k2) to "
+                                  "H(k2, k1), commutes with H(k) on the line k1 = k2"},
 )
 def bhz_corner(*, m: float, delta2: float, t: float = 1.0, delta1: float = 1.0) -> TightBinding:
     """Two-dimensional second-order topological insulator.
@@ -155,6 +160,8 @@ def bbh_gammas() -> tuple[np.ndarray, ...]:
             Param("delta", default=0.0, doc="onsite Gamma0 term (breaks chiral symmetry)",
                   units="energy")),
     dim=2, norb=4,
+    operator_docs={"chiral": "Gamma0 = tau_z sigma_0, anticommutes with H(k); only for "
+                              "delta = 0"},
 )
 def bbh(*, gamma: float, lam: float = 1.0, delta: float = 0.0) -> TightBinding:
     """Quadrupole insulator of Benalcazar, Bernevig and Hughes.

@@ -17,6 +17,7 @@ from . import CHAIN, MODELS
     params=(Param("v", doc="intra-cell hopping", units="energy"),
             Param("w", default=1.0, doc="inter-cell hopping", units="energy")),
     dim=1, norb=2,
+    operator_docs={"chiral": "sigma_z (+1 on A, -1 on B), anticommutes with H(k)"},
 )
 def ssh(*, v: float, w: float = 1.0) -> TightBinding:
     """Basis (A, B); H(k) = [[0, v + w e^{-ik}], [v + w e^{ik}, 0]] (Asboth et al., eq. 1.13).
@@ -37,6 +38,7 @@ def ssh(*, v: float, w: float = 1.0) -> TightBinding:
             Param("t", default=1.0, doc="nearest-neighbour hopping", units="energy"),
             Param("delta", default=1.0, doc="p-wave pairing amplitude", units="energy")),
     dim=1, norb=2,
+    operator_docs={"chiral": "tau_x in Nambu space, anticommutes with H(k)"},
 )
 def kitaev(*, mu: float, t: float = 1.0, delta: float = 1.0) -> TightBinding:
     """Kitaev chain in Nambu form.
