@@ -106,6 +106,10 @@ def check(ctx: typer.Context,
               "--time-one",
               help="Also evaluate the middle grid point once and report its time (this runs one "
                    "point).")] = False,
+          probe_seconds: Annotated[float, typer.Option(
+              "--probe-seconds", min=0.1,
+              help="Time budget of the open-sample probes of the cost estimate; a probe still "
+                   "running then is stopped and the estimate is a lower bound.")] = 3.0,
           ) -> None:
     """Validate JOB and print its grid, measurements and a cost estimate (runs no grid point)."""
     from ..jobfile import load_job
@@ -113,7 +117,7 @@ def check(ctx: typer.Context,
 
     try:
         job = load_job(job_file)
-        cost = estimate(job)
+        cost = estimate(job, probe_seconds)
         previous = measured_cost(job)
         measured = time_one_point(job) if time_one else None
     except SweepError as exc:

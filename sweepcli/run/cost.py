@@ -45,9 +45,12 @@ any estimate, and ``batch`` sizes the wall time with it.
 from __future__ import annotations
 
 import math
+import signal
 import statistics
+import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -59,7 +62,33 @@ PROBE_MESH = (6, 12)
 #: Per-worker memory beside the arrays of the largest mesh (interpreter, numpy, scipy).
 BASE_MEMORY = 200 * 2**20
 #: Open-sample probes stop once they have taken this long (seconds): ``check`` stays quick.
+#: A probe still running then is interrupted, and its time counts as a lower bound.
 SAMPLE_PROBE_SECONDS = 3.0
+
+
+class _ProbeStopped(Exception):
+    """A probe ran past its time budget."""
+
+
+@contextmanager
+def _time_limit(seconds: float) -> Iterator[None]:
+    """Interrupt the block after ``seconds`` (SIGALRM; a no-op off the main thread or where the
+    platform has none). Long compiled calls finish before the interruption is seen."""
+    main = threading.current_thread() is threading.main_thread()
+    if not hasattr(signal, "setitimer") or not main:
+        yield
+        return
+
+    def stop(signum, frame):
+        raise _ProbeStopped
+
+    previous = signal.signal(signal.SIGALRM, stop)
+    signal.setitimer(signal.ITIMER_REAL, max(seconds, 1e-3))
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 #: A ``[confirm]`` estimate plans for this many phase boundaries crossing the grid.
@@ -80,6 +109,10 @@ class Cost:
     memory_bytes: int
     boundary_seconds: float = 0.0
     cells: tuple[int, int, int] | None = None
+    #: Open-sample measurements whose probe was stopped at the time budget: their seconds (and
+    #: so the totals) are lower bounds.
+    stopped: tuple[str, ...] = ()
+    probe_budget: float = SAMPLE_PROBE_SECONDS
 
     @property
     def bulk_seconds(self) -> float:
@@ -98,6 +131,10 @@ class Cost:
     def format(self) -> str:
         memory = (f"peak memory per worker about {self.memory_bytes / 2**20:.0f} MiB (from the "
                   "meshes and probes of three grid points; points near transitions take longer)")
+        if self.stopped:
+            memory += (f"; the probe of {', '.join(self.stopped)} was stopped after "
+                       f"{self.probe_budget:g} s, so the times are lower bounds "
+                       f"(--probe-seconds for more)")
         if self.cells is None:
             return (f"about {self.seconds_per_point:.2g} s per point, "
                     f"{self.core_seconds / 3600:.2g} core-hours in all; {memory}")
@@ -222,14 +259,15 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
     return time.perf_counter() - t0
 
 
-def estimate(job: Job) -> Cost:
+def estimate(job: Job, probe_seconds: float = SAMPLE_PROBE_SECONDS) -> Cost:
     """Seconds per grid point and peak memory per worker, from probes of a few grid points.
 
     At the grid points 1/6, 1/2 and 5/6 of the way through the grid, runs each measurement's
     kernel on its meshes or on two small meshes, with one BLAS thread, scales to the configured
     meshes as the module docstring describes, and averages. Open-sample measurements are run as
     configured at five points spread over the grid, until the probes so far took
-    ``SAMPLE_PROBE_SECONDS`` (their cost depends on how far a count doubles its sample).
+    ``probe_seconds`` (their cost depends on how far a count doubles its sample); a probe still
+    running then is stopped and counted as taking the budget, a lower bound (``Cost.stopped``).
     """
     from threadpoolctl import threadpool_limits
 
@@ -241,6 +279,7 @@ def estimate(job: Job) -> Cost:
     per_point = 0.0
     largest, sample_peak = 0, 0.0
     sample_seconds: dict[str, list[float]] = {}
+    stopped: list[str] = []
     with threadpool_limits(limits=1, user_api="blas"):
         for index in sorted(set(probes) | set(sample_probes)):
             point, memo = job.point(index), {}
@@ -250,10 +289,18 @@ def estimate(job: Job) -> Cost:
                 if "kmesh" in opts and index not in probes:
                     continue
                 if "kmesh" not in opts and (index not in sample_probes or (
-                        taken and sum(taken) > SAMPLE_PROBE_SECONDS)):
+                        taken and sum(taken) > probe_seconds)):
                     continue  # an expensive open sample: the probes so far stand for all
+                budget = max(probe_seconds - sum(taken or ()), 0.0)
                 try:
-                    seconds = _measurement_seconds(job, index, point, name, opts, memo)
+                    if "kmesh" in opts:
+                        seconds = _measurement_seconds(job, index, point, name, opts, memo)
+                    else:
+                        with _time_limit(budget):
+                            seconds = _measurement_seconds(job, index, point, name, opts, memo)
+                except _ProbeStopped:
+                    seconds = budget
+                    stopped.append(name)
                 except Exception:  # noqa: BLE001 - the run records such a point as failed
                     seconds = 0.0
                 if "kmesh" in opts:
@@ -275,12 +322,14 @@ def estimate(job: Job) -> Cost:
     per_point += sum(sum(t) / len(t) for t in sample_seconds.values())
     # Eigenvectors, Floquet operators and their products on the largest mesh, complex128.
     peak = max(16 * largest * job.norb ** 2 * 8, sample_peak)
+    stops = dict(stopped=tuple(dict.fromkeys(stopped)), probe_budget=probe_seconds)
     if job.confirm is None:
-        return Cost(per_point, job.size, int(peak + BASE_MEMORY))
+        return Cost(per_point, job.size, int(peak + BASE_MEMORY), **stops)
     # Open samples are timed on their own above; a confirmed one without a k-mesh is too.
     boundary = sum(sum(t) / len(t) for n, t in sample_seconds.items()
                    if n in job.confirm.measurements)
-    return Cost(per_point, job.size, int(peak + BASE_MEMORY), boundary, selected_cells(job))
+    return Cost(per_point, job.size, int(peak + BASE_MEMORY), boundary, selected_cells(job),
+                **stops)
 
 
 @dataclass
