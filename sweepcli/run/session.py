@@ -14,8 +14,8 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import SweepError
-from ..jobfile import Job, job_from_results, load_job
+from ..errors import SweepError, shown
+from ..jobfile import Job, job_from_results, load_job, output_path_problem
 from ..store import Results
 from ..store.merge import MergeReport, merge_results
 from ..store.provenance import now
@@ -67,11 +67,21 @@ class RunSession:
             On a bad job file or option, an existing output without ``force`` or ``resume``, a
             file of another job or shard to resume, or a dask cluster that does not start.
         """
+        if self.output is not None:
+            problem = output_path_problem(self.output)
+            if problem:
+                raise SweepError(f"--output must be a file path that can be created; got "
+                                 f"{shown(str(self.output))}. {problem}")
         job = load_job(self.job_file)
         part = parse_shard(self.shard) if self.shard is not None else None
         out = self.output or Path(job.output)
         if part is not None and self.output is None:
             out = out.with_name(out.stem + part.suffix() + out.suffix)
+        if self.output is None:
+            problem = output_path_problem(out)
+            if problem:
+                raise SweepError(f"{job.path}: [output] path must give a file path that can be "
+                                 f"created; got {shown(str(out))}. {problem}")
         if self.force and self.resume:
             raise SweepError("--force and --resume exclude each other: --force starts afresh, "
                              "--resume continues the existing file.")
