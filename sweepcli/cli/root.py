@@ -3,7 +3,8 @@ handling all commands share.
 
 Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
 line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
-saved; rerun with ``--resume``).
+saved; rerun with ``--resume``); 4 a run finished but some points failed (the results file holds
+every point, the failed ones missing with their reason; ``run --failed-ok`` exits 0 instead).
 """
 
 from __future__ import annotations
@@ -19,6 +20,7 @@ from ..errors import SweepError
 EXIT_DIFFER = 1
 EXIT_ERROR = 2
 EXIT_INTERRUPTED = 3
+EXIT_POINTS_FAILED = 4
 
 # Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
 # and read "[output]" in a help text as markup.
