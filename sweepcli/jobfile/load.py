@@ -220,11 +220,14 @@ def output_path_problem(path: str | Path, filesystem: bool = True) -> str:
     raw = os.fsencode(text)
     if len(raw) >= PATH_MAX:
         return f"It has {len(raw):,} bytes; a path may have at most {PATH_MAX - 1}."
-    for part in Path(text).parts:
+    parts = Path(text).parts
+    for i, part in enumerate(parts):
         n = len(os.fsencode(part))
-        if n > NAME_MAX:
+        # The run writes OUT.tmp and OUT.lock beside the file: its own name needs 5 bytes less.
+        most = NAME_MAX - len(".lock") if i == len(parts) - 1 else NAME_MAX
+        if n > most:
             return (f"Its name {part[:20]!r}... has {n} bytes; a file name may have at most "
-                    f"{NAME_MAX}.")
+                    f"{most}" + (" (the run adds '.lock' to it)." if most < NAME_MAX else "."))
     p = Path(text)
     if not filesystem:
         return ""

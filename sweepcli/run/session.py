@@ -9,8 +9,11 @@ skip. The command line only turns options into these calls and their results int
 
 from __future__ import annotations
 
+import fcntl
+import os
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -87,6 +90,11 @@ class RunSession:
                              "--resume continues the existing file.")
         if self.scheduler and self.dask_cluster:
             raise SweepError("give --scheduler or --dask-cluster, not both.")
+        with output_lock(out):
+            return self._run_locked(job, part, out, say)
+
+    def _run_locked(self, job: Job, part: Shard | None, out: Path,
+                    say: Callable[[str], None] | None) -> SessionSummary:
         results = self._open(job, part, out)
         client = cluster = executor = None
         try:
@@ -150,6 +158,44 @@ class RunSession:
         if part is not None:
             results.attrs["shard"] = part.label()
         return results
+
+
+@contextmanager
+def output_lock(out: Path) -> Iterator[Path]:
+    """Hold an exclusive lock on ``OUT.lock`` (:func:`fcntl.flock`) while a run writes ``out``;
+    a second run on the same file refuses at once. The lock file is removed on release; the
+    kernel releases the lock itself when a process dies, so a stale file never blocks."""
+    lock = out.with_name(out.name + ".lock")
+    while True:
+        try:
+            out.parent.mkdir(parents=True, exist_ok=True)
+            fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise SweepError(f"{lock}: cannot create the lock file of {out} "
+                             f"({exc.strerror or exc}).") from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise SweepError(f"{lock}: another run is writing {out} and holds this lock; "
+                             "refusing to write the same file at once. Wait for it to finish "
+                             "or use -o OTHER_FILE.") from None
+        mine = os.fstat(fd)
+        try:
+            now_there = os.stat(lock)
+        except FileNotFoundError:
+            now_there = None
+        if now_there is not None and (now_there.st_dev, now_there.st_ino) == (mine.st_dev,
+                                                                              mine.st_ino):
+            break
+        os.close(fd)  # its holder removed it between our open and lock: take the new one
+    try:
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield lock
+    finally:
+        lock.unlink(missing_ok=True)
+        os.close(fd)
 
 
 def merge_shards(shards: list[Path], output: Path, *, partial: bool = False,

@@ -376,7 +376,8 @@ def test_output_through_a_file_is_refused(tmp_path):
 def test_output_name_too_long_is_refused(tmp_path):
     msg = run_bad(tmp_path, GOOD.replace("OUT", str(tmp_path / ("x" * 300 + ".h5"))))
     assert msg.startswith("JOB: [output] path must be a file path that can be created; got ")
-    assert msg.endswith("has 303 bytes; a file name may have at most 255.")
+    assert msg.endswith("has 303 bytes; a file name may have at most 250 (the run adds '.lock' "
+                        "to it).")
     assert list(tmp_path.iterdir()) == [tmp_path / "bad.toml"]
 
 
