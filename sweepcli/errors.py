@@ -30,11 +30,16 @@ def sentence(text: object) -> str:
     return text if text.endswith((".", "?", "!")) else text + "."
 
 
+SHOWN_LENGTH = 200  # a longer string is shown by its beginning and its length
+
+
 def shown(value: object) -> str:
     """A value as it should appear after ``got`` in an error message."""
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, str):
+        if len(value) > SHOWN_LENGTH:
+            return f"{value[:SHOWN_LENGTH // 2]!r}... ({len(value):,} characters)"
         return repr(value)
     if isinstance(value, dict):
         return "a table"

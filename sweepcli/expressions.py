@@ -33,6 +33,8 @@ CONSTANTS = {"pi": math.pi, "e": math.e}
 _BINARY = {ast.Add: lambda a, b: a + b, ast.Sub: lambda a, b: a - b,
            ast.Mult: lambda a, b: a * b, ast.Div: lambda a, b: a / b,
            ast.Pow: lambda a, b: a ** b}
+MAX_LENGTH = 1000  # characters of one expression; a longer one is refused before parsing
+MAX_DEPTH = 60  # nesting of the parsed tree (operators and calls); deeper ones are refused
 _UNARY = {ast.USub: lambda a: -a, ast.UAdd: lambda a: a}
 
 
@@ -90,11 +92,20 @@ def parse(text: str, table: str = "", key: str = "") -> Expression:
     ExpressionError
         With a message naming the construct that is not allowed.
     """
+    if len(text) > MAX_LENGTH:
+        raise ExpressionError(f"It has {len(text):,} characters; an expression may have at most "
+                              f"{MAX_LENGTH}")
     try:
         tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
         raise ExpressionError(
             f"{text!r} is not a valid arithmetic expression ({exc.msg})") from None
+    except (RecursionError, MemoryError):
+        raise ExpressionError(f"It is nested too deeply; an expression may have at most "
+                              f"{MAX_DEPTH} levels of operators and parentheses") from None
+    if _depth(tree) > MAX_DEPTH:
+        raise ExpressionError(f"It is nested too deeply; an expression may have at most "
+                              f"{MAX_DEPTH} levels of operators and parentheses")
     names: set[str] = set()
     called = {id(n.func) for n in ast.walk(tree) if isinstance(n, ast.Call)}
     for node in ast.walk(tree):
@@ -131,6 +142,16 @@ def parse(text: str, table: str = "", key: str = "") -> Expression:
                                   "allowed in an arithmetic expression")
     names -= set(CONSTANTS)
     return Expression(text, tree, frozenset(names), table, key)
+
+
+def _depth(tree: ast.AST) -> int:
+    """The depth of ``tree``, found without recursion (so any depth is safe to measure)."""
+    deepest, stack = 0, [(tree, 1)]
+    while stack:
+        node, d = stack.pop()
+        deepest = max(deepest, d)
+        stack.extend((child, d + 1) for child in ast.iter_child_nodes(node))
+    return deepest
 
 
 class _Undefined(ArithmeticError):

@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_ERROR, EXIT_INTERRUPTED, app, fail, note, quiet
+from .root import EXIT_ERROR, EXIT_INTERRUPTED, EXIT_POINTS_FAILED, app, fail, note, quiet
 
 
 @app.command()
@@ -46,8 +46,15 @@ def run(ctx: typer.Context,
         verbose: Annotated[bool, typer.Option(
             "--verbose", "-v",
             help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
+        failed_ok: Annotated[bool, typer.Option(
+            "--failed-ok",
+            help="Exit 0 when the run finished but some points failed (default: exit 4; the "
+                 "file holds every point either way).")] = False,
         ) -> None:
-    """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file."""
+    """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file.
+
+    Exit codes: 0 done, 2 bad input, 3 interrupted (resume with --resume), 4 done but some
+    points failed (see `sweepcli show`)."""
     from ..run.session import RunSession
 
     session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
@@ -75,6 +82,8 @@ def run(ctx: typer.Context,
                    f"{summary.confirmed}, not requested on {summary.total - summary.confirmed} "
                    "(time and points cover both passes)")
     typer.echo(f"{summary.done}/{summary.total} points in {summary.seconds:.1f} s -> {out}{failed}")
+    if summary.failed and not failed_ok:
+        raise typer.Exit(EXIT_POINTS_FAILED)
 
 
 @app.command()

@@ -3,11 +3,13 @@ handling all commands share.
 
 Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
 line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
-saved; rerun with ``--resume``).
+saved; rerun with ``--resume``); 4 a run finished but some points failed (the results file holds
+every point, the failed ones missing with their reason; ``run --failed-ok`` exits 0 instead).
 """
 
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass
 from typing import Annotated
 
@@ -19,13 +21,29 @@ from ..errors import SweepError
 EXIT_DIFFER = 1
 EXIT_ERROR = 2
 EXIT_INTERRUPTED = 3
+EXIT_POINTS_FAILED = 4
+
+class _App(typer.Typer):
+    """The typer app, exiting quietly with 0 when stdout is a pipe its reader closed
+    (``sweepcli models | head -1``): click exits 1 there, after wrapping ``sys.stdout`` so that
+    nothing more is written to the closed pipe."""
+
+    def __call__(self, *args, **kwargs):
+        try:
+            return super().__call__(*args, **kwargs)
+        except SystemExit as exc:
+            # click's wrapper (typer ships its own copy of click, so it is known by name).
+            if exc.code == 1 and type(sys.stdout).__name__ == "PacifyFlushWrapper":
+                raise SystemExit(0) from None
+            raise
+
 
 # Plain (click) help: rich panels cut long option names at 80 columns, print <bool> after flags
 # and read "[output]" in a help text as markup.
 # Shell completion: `sweepcli --install-completion` (bash, zsh, fish, PowerShell).
-app = typer.Typer(no_args_is_help=True, add_completion=True, pretty_exceptions_enable=False,
-                  rich_markup_mode=None,
-                  help="Phase-diagram sweeps of static and periodically driven lattice models.")
+app = _App(no_args_is_help=True, add_completion=True, pretty_exceptions_enable=False,
+           rich_markup_mode=None,
+           help="Phase-diagram sweeps of static and periodically driven lattice models.")
 
 
 @dataclass

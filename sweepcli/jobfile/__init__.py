@@ -7,9 +7,9 @@ was expected and what was given. Job files are data: expressions are parsed by
 :mod:`sweepcli.expressions`.
 """
 
-from .load import build_job, load_job, read_toml
+from .load import build_job, load_job, output_path_problem, read_toml
 from .spec import Axis, Confirm, CustomModel, DriveSpec, Job, Refine
 from .stored import job_from_results
 
 __all__ = ["Axis", "Confirm", "CustomModel", "DriveSpec", "Job", "Refine", "build_job",
-           "job_from_results", "load_job", "read_toml"]
+           "job_from_results", "load_job", "output_path_problem", "read_toml"]

@@ -12,6 +12,11 @@ from ..expressions import EvaluationError, ExpressionError, parse
 from ..physics.lattice import pauli
 from ..physics.registry import Param
 
+# Real values beyond this are refused: spectra square and multiply them (1e308 overflows), and a
+# term this much larger than the others leaves their energies no significant digits.
+MAX_MAGNITUDE = 1e12
+MAGNITUDE_HINT = " Larger values overflow or leave the other terms no significant digits."
+
 
 class Checker:
     """Collects the helpers that turn a bad value into one clear :class:`JobError`."""
@@ -48,6 +53,9 @@ class Checker:
             raise self.fail(table, key, param.expectation(), value)
         if not param.admits(float(value)):
             raise self.fail(table, key, param.expectation(), value)
+        if param.kind == "real" and abs(value) > MAX_MAGNITUDE:
+            raise self.fail(table, key, f"{param.expectation()} of magnitude at most "
+                            f"{MAX_MAGNITUDE:g}", value, MAGNITUDE_HINT)
         return value
 
     def option(self, table: str, key: str, value: object, param: Param) -> Any:

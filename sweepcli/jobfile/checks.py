@@ -14,7 +14,7 @@ from ..physics.drives.base import real
 from ..physics.line_symmetry import commutator_violation
 from ..physics.point import Point
 from ..physics.registry import Param
-from .checker import Checker
+from .checker import MAGNITUDE_HINT, MAX_MAGNITUDE, Checker
 from .spec import Job
 
 SAMPLED_POINTS = 1000  # grid points at which derived values are checked at load
@@ -151,6 +151,10 @@ def _check_point(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict,
     values = job.values_at(i)
     for key in exprs:
         v = values[key]
+        if abs(v) > MAX_MAGNITUDE:
+            raise ck.fail("params", key, f"an expression of magnitude at most {MAX_MAGNITUDE:g}",
+                          exprs[key].text, f" It evaluates to {v:g} at grid point {i}."
+                          + MAGNITUDE_HINT)
         param = declared.get(key)
         if param is None or job.custom is not None:
             continue

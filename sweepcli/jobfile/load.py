@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
 import re
 import tomllib
 from pathlib import Path
@@ -25,11 +26,12 @@ from .drive_table import read_drive
 from .measure_table import read_measure
 from .model_table import normalised_model, read_model
 from .spec import Job
-from .sweep_tables import finer_axis, order_expressions, read_parameters, read_refine
+from .sweep_tables import MAX_POINTS, finer_axis, order_expressions, read_parameters, read_refine
 
 TABLES = ("job", "model", "params", "sweep", "refine", "drive", "measure", "confirm", "predict",
           "output")
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"  # the first 8 bytes of an HDF5 file (no user block)
+MAX_NESTING = 32  # arrays and tables nested deeper than this are refused (no job needs 4)
 
 
 def read_toml(path: str | Path) -> tuple[str, dict]:
@@ -49,7 +51,9 @@ def read_toml(path: str | Path) -> tuple[str, dict]:
     except UnicodeDecodeError as exc:
         raise JobError(f"{path}: cannot read the job file ({exc}).") from None
     try:
-        return text, tomllib.loads(text)
+        doc = tomllib.loads(text)
+    except RecursionError:
+        raise JobError(_too_deep_in_text(path, text)) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
@@ -57,6 +61,52 @@ def read_toml(path: str | Path) -> tuple[str, dict]:
             msg = msg[: m.start()].strip()
             raise JobError(f"{path}:{m.group(1)}:{m.group(2)}: invalid TOML: {msg}.") from None
         raise JobError(f"{path}: invalid TOML: {msg}.") from None
+    return text, doc
+
+
+def _too_deep_in_text(path: Path, text: str) -> str:
+    """The message for a document too deeply nested for the TOML parser itself: the line and
+    column of the first run of more than ``MAX_NESTING`` opening brackets."""
+    m = re.search(r"(?:[\[{][ \t\r\n]*){" + str(MAX_NESTING + 1) + ",}", text)
+    where = ""
+    if m:
+        line = text.count("\n", 0, m.start()) + 1
+        col = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
+        where = f":{line}:{col}"
+    return (f"{path}{where}: invalid TOML: arrays or tables must be nested at most {MAX_NESTING} "
+            "levels deep; these are nested deeper.")
+
+
+def _where(path: tuple) -> str:
+    """``[table.sub] key`` for a path of keys and list indices in the document."""
+    parts = [str(p) for p in path]
+    if len(parts) == 1:
+        return f"[{parts[0]}]"
+    return f"[{'.'.join(parts[:-1])}] {parts[-1]}"
+
+
+def check_document(path: str, doc: dict) -> None:
+    """Refuse nesting deeper than ``MAX_NESTING`` and NUL characters in any key or string
+    (HDF5 attributes end at a NUL, so such a job could never be written); the walk uses no
+    recursion, so any depth the TOML parser accepted is safe here."""
+    stack: list[tuple[tuple, object]] = [((), doc)]
+    while stack:
+        where, value = stack.pop()
+        if len(where) > MAX_NESTING:
+            raise JobError(f"{path}: {_where(where[:2])} must be nested at most "
+                           f"{MAX_NESTING} levels deep; got deeper arrays or tables.")
+        if isinstance(value, str):
+            if "\x00" in value:
+                raise JobError(f"{path}: {_where(where)} must be a string without NUL "
+                               "characters; got one with a NUL (\\u0000) character.")
+        elif isinstance(value, dict):
+            for k, v in value.items():
+                if "\x00" in k:
+                    raise JobError(f"{path}: {_where(where + (k,))} must be a key without NUL "
+                                   f"characters; got {k!r}.")
+                stack.append((where + (k,), v))
+        elif isinstance(value, list):
+            stack.extend((where + (i,), v) for i, v in enumerate(value))
 
 
 def load_job(path: str | Path) -> Job:
@@ -74,6 +124,7 @@ def load_job(path: str | Path) -> Job:
 def build_job(doc: dict, *, text: str, path: str) -> Job:
     """Validate a parsed job file: each table in turn, then values at sample grid points."""
     ck = Checker(path)
+    check_document(path, doc)
     for key in doc:
         if key not in TABLES:
             raise JobError(f"{path}: unknown table [{key}] (allowed: {', '.join(TABLES)})."
@@ -100,6 +151,7 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                        "the bulk map on every point, which a refined sweep does not compute.")
     predict = _predict(ck, ck.table(doc, "predict"), dim, "predict" in doc)
     if refine is not None:
+        _check_grid_size(ck, axes, refine.depth)
         axes = tuple(finer_axis(a, refine.depth) for a in axes)
 
     output_t = ck.table(doc, "output")
@@ -107,6 +159,9 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
     output = output_t.get("path", f"results/{name}.h5")
     if not isinstance(output, str) or not output:
         raise ck.fail("output", "path", "a file path", output)
+    problem = output_path_problem(output, filesystem=False)  # the run checks the rest
+    if problem:
+        raise ck.fail("output", "path", "a file path that can be created", output, f" {problem}")
     main = output_t.get("main")
 
     clash = {a.name for a in axes} & {q.name for m, _ in measurements
@@ -149,6 +204,50 @@ def build_job(doc: dict, *, text: str, path: str) -> Job:
                           suggest(main, stored) if isinstance(main, str) else "")
     check_values(ck, job, declared, exprs)
     return job
+
+
+NAME_MAX = 255  # bytes of one file name on the usual file systems (ext4, xfs, btrfs, apfs)
+PATH_MAX = 4096
+
+
+def output_path_problem(path: str | Path, filesystem: bool = True) -> str:
+    """Why ``path`` cannot be a results file (a sentence), or ``""``: a NUL character, a name
+    longer than ``NAME_MAX`` bytes, a path longer than ``PATH_MAX``; with ``filesystem`` also an
+    existing directory or a parent that is a file. Nothing is created."""
+    text = str(path)
+    if "\x00" in text:
+        return "It contains a NUL character."
+    raw = os.fsencode(text)
+    if len(raw) >= PATH_MAX:
+        return f"It has {len(raw):,} bytes; a path may have at most {PATH_MAX - 1}."
+    parts = Path(text).parts
+    for i, part in enumerate(parts):
+        n = len(os.fsencode(part))
+        # The run writes OUT.tmp and OUT.lock beside the file: its own name needs 5 bytes less.
+        most = NAME_MAX - len(".lock") if i == len(parts) - 1 else NAME_MAX
+        if n > most:
+            return (f"Its name {part[:20]!r}... has {n} bytes; a file name may have at most "
+                    f"{most}" + (" (the run adds '.lock' to it)." if most < NAME_MAX else "."))
+    p = Path(text)
+    if not filesystem:
+        return ""
+    if p.is_dir():
+        return "It is a directory."
+    for parent in p.parents:
+        if parent.exists():
+            if not parent.is_dir():
+                return f"{str(parent)!r} is a file, not a directory."
+            break
+    return ""
+
+
+def _check_grid_size(ck: Checker, axes: tuple, depth: int) -> None:
+    """Refuse a refined grid of more than ``MAX_POINTS`` points before building its axes."""
+    sizes = [(len(a.values) - 1) * 2 ** depth + 1 for a in axes]
+    if math.prod(sizes) > MAX_POINTS:
+        raise ck.fail("refine", "depth", f"such that the refined grid has at most {MAX_POINTS:,} "
+                      "points", depth, f" It would have {' x '.join(map(str, sizes))} = "
+                      f"{math.prod(sizes):,} points.")
 
 
 def _job_table(ck: Checker, doc: dict) -> tuple[str, str, str]:

@@ -28,7 +28,7 @@ def read_model(ck: Checker, model_t: dict) -> tuple:
         raise ck.fail("model", "name", "the name of a built-in model or \"custom\" "
                       f"(built-in: {', '.join(MODELS.names())})", None)
     model = model_t["name"]
-    if model != "custom" and model not in MODELS:
+    if not isinstance(model, str) or (model != "custom" and model not in MODELS):
         raise ck.fail("model", "name", f"a built-in model or \"custom\" "
                       f"(built-in: {', '.join(MODELS.names())})", model,
                       suggest(str(model), MODELS.names() + ["custom"]))

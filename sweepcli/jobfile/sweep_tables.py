@@ -3,6 +3,7 @@ swept axes, the order in which expressions are evaluated, and the refinement of 
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 import numpy as np
@@ -22,6 +23,7 @@ def read_parameters(ck: Checker, params_t: dict, sweep_t: dict, declared: dict[s
     if not sweep_t:
         raise ck.fail("sweep", "", "a table with at least one swept parameter, e.g. "
                       "m = { start = -3.0, stop = 3.0, num = 61 }", "an empty table")
+    _check_grid_size(ck, sweep_t)
     axes = tuple(_axis(ck, key, value, declared.get(key)) for key, value in sweep_t.items())
     fixed: dict[str, float] = {}
     exprs: dict[str, Expression] = {}
@@ -45,6 +47,36 @@ def read_parameters(ck: Checker, params_t: dict, sweep_t: dict, declared: dict[s
             else:
                 fixed[p.name] = p.default
     return axes, fixed, exprs, missing
+
+
+MAX_POINTS = 10_000_000  # grid points of one job (each holds several numbers per quantity)
+
+
+def _check_grid_size(ck: Checker, sweep_t: dict) -> None:
+    """Refuse a grid of more than ``MAX_POINTS`` points by counting them from the ``num`` and
+    list lengths of ``[sweep]``, before any axis is built (the axes are checked afterwards)."""
+    sizes = []
+    for key, value in sweep_t.items():
+        n = 1
+        if isinstance(value, list):
+            n = len(value)
+        elif isinstance(value, dict):
+            if isinstance(value.get("values"), list):
+                n = len(value["values"])
+            elif isinstance(value.get("num"), int) and not isinstance(value["num"], bool):
+                n = value["num"]
+        if n > MAX_POINTS:
+            if isinstance(value, list):
+                raise ck.fail("sweep", key, f"a list of at most {MAX_POINTS:,} values",
+                              f"a list of {n:,}")
+            raise ck.fail(f"sweep.{key}", "values" if "values" in value else "num",
+                          f"at most {MAX_POINTS:,} points", n)
+        sizes.append((key, max(n, 1)))
+    total = math.prod(n for _, n in sizes)
+    if total > MAX_POINTS:
+        shape = " x ".join(f"{n} ({k})" for k, n in sizes)
+        raise JobError(f"{ck.path}: [sweep] must give a grid of at most {MAX_POINTS:,} points; "
+                       f"got {shape} = {total:,} points.")
 
 
 def _axis(ck: Checker, key: str, value: object, param: Param | None) -> Axis:

@@ -46,6 +46,7 @@ from .map_style import (
     value_colour,
     value_label,
 )
+from .summary import clipped
 
 FORMATS = (".png", ".svg", ".pdf")
 
@@ -79,7 +80,7 @@ def _title(results: Results, s: Slice, index: tuple) -> str:
     meta = results.variables[s.var]
     fixed = [f"{a.name}={a.values[i]:g}" for a, i in zip(results.axes, index) if isinstance(i, int)
              and len(a.values) > 1]
-    lines = [results.attrs.get("title", "")] if results.attrs.get("title") else []
+    lines = [clipped(results.attrs["title"])] if results.attrs.get("title") else []
     lines.append(f"{s.var}: {meta.long_name}" + (f" at {', '.join(fixed)}" if fixed else ""))
     if s.n_known < s.n_total:
         lines.append(f"unfinished run: {s.n_known} of {s.n_total} points computed")

@@ -14,6 +14,15 @@ PROVENANCE_KEYS = ("title", "job_name", "job_path", "job_sha256", "shard", "refi
                    "refine_stride", "schema_version",
                    "sweepcli_version", "numpy_version", "scipy_version", "h5py_version",
                    "host", "command_line", "started", "finished")
+ATTRIBUTE_CHARS = 300  # longer attributes are cut in show and in map titles
+
+
+def clipped(text: str, limit: int = ATTRIBUTE_CHARS) -> str:
+    """``text`` cut to ``limit`` characters, saying so and how long it was."""
+    text = str(text)
+    if len(text) <= limit:
+        return text
+    return f"{text[:limit]}... [truncated: {len(text):,} characters in all]"
 
 
 @dataclass
@@ -119,7 +128,7 @@ def format_summary(s: Summary) -> str:
     lines = []
     for k, v in s.provenance.items():
         if v:
-            lines.append(f"{k:>17}: {v}")
+            lines.append(f"{k:>17}: {clipped(v)}")
     lines.append("")
     lines.append("grid:")
     for name, n, lo, hi, units in s.axes:

@@ -32,6 +32,7 @@ from .map_data import (
     select,
 )
 from .map_style import level_text
+from .summary import clipped
 
 MISSING_GLYPH = "·"
 NOT_COMPUTED_GLYPH = "?"
@@ -372,7 +373,7 @@ def terminal_map(results: Results, var: str | None = None, at: dict[str, float] 
              if isinstance(i, int) and len(a.values) > 1]
     lines = []
     if results.attrs.get("title"):
-        lines.append(results.attrs["title"])
+        lines.append(clipped(results.attrs["title"]))
     lines.append(f"{var}: {meta.long_name}" + (f" at {', '.join(fixed)}" if fixed else ""))
     known = int(display_values(results, var)[1].sum())
     if known < results.size:

@@ -92,7 +92,8 @@ def shard_outputs(job: Job, tasks: int) -> list[str]:
 def scripts(job: Job, job_path: str, p: BatchPlan) -> dict[str, str]:
     """``{file name: script text}``: array job and merge job for Slurm and for PBS."""
     q = shlex.quote
-    run_args = f"--resume --workers {p.workers} --no-progress"
+    # --failed-ok: a task whose points failed (stored with their reasons) still lets the merge run.
+    run_args = f"--resume --workers {p.workers} --no-progress --failed-ok"
     merge_line = (f"sweepcli merge {q(job.output)} "
                   + " ".join(q(s) for s in shard_outputs(job, p.tasks)))
     name = job.name

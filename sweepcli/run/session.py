@@ -9,13 +9,16 @@ skip. The command line only turns options into these calls and their results int
 
 from __future__ import annotations
 
+import fcntl
+import os
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import SweepError
-from ..jobfile import Job, job_from_results, load_job
+from ..errors import SweepError, shown
+from ..jobfile import Job, job_from_results, load_job, output_path_problem
 from ..store import Results
 from ..store.merge import MergeReport, merge_results
 from ..store.provenance import now
@@ -67,16 +70,31 @@ class RunSession:
             On a bad job file or option, an existing output without ``force`` or ``resume``, a
             file of another job or shard to resume, or a dask cluster that does not start.
         """
+        if self.output is not None:
+            problem = output_path_problem(self.output)
+            if problem:
+                raise SweepError(f"--output must be a file path that can be created; got "
+                                 f"{shown(str(self.output))}. {problem}")
         job = load_job(self.job_file)
         part = parse_shard(self.shard) if self.shard is not None else None
         out = self.output or Path(job.output)
         if part is not None and self.output is None:
             out = out.with_name(out.stem + part.suffix() + out.suffix)
+        if self.output is None:
+            problem = output_path_problem(out)
+            if problem:
+                raise SweepError(f"{job.path}: [output] path must give a file path that can be "
+                                 f"created; got {shown(str(out))}. {problem}")
         if self.force and self.resume:
             raise SweepError("--force and --resume exclude each other: --force starts afresh, "
                              "--resume continues the existing file.")
         if self.scheduler and self.dask_cluster:
             raise SweepError("give --scheduler or --dask-cluster, not both.")
+        with output_lock(out):
+            return self._run_locked(job, part, out, say)
+
+    def _run_locked(self, job: Job, part: Shard | None, out: Path,
+                    say: Callable[[str], None] | None) -> SessionSummary:
         results = self._open(job, part, out)
         client = cluster = executor = None
         try:
@@ -140,6 +158,44 @@ class RunSession:
         if part is not None:
             results.attrs["shard"] = part.label()
         return results
+
+
+@contextmanager
+def output_lock(out: Path) -> Iterator[Path]:
+    """Hold an exclusive lock on ``OUT.lock`` (:func:`fcntl.flock`) while a run writes ``out``;
+    a second run on the same file refuses at once. The lock file is removed on release; the
+    kernel releases the lock itself when a process dies, so a stale file never blocks."""
+    lock = out.with_name(out.name + ".lock")
+    while True:
+        try:
+            out.parent.mkdir(parents=True, exist_ok=True)
+            fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise SweepError(f"{lock}: cannot create the lock file of {out} "
+                             f"({exc.strerror or exc}).") from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise SweepError(f"{lock}: another run is writing {out} and holds this lock; "
+                             "refusing to write the same file at once. Wait for it to finish "
+                             "or use -o OTHER_FILE.") from None
+        mine = os.fstat(fd)
+        try:
+            now_there = os.stat(lock)
+        except FileNotFoundError:
+            now_there = None
+        if now_there is not None and (now_there.st_dev, now_there.st_ino) == (mine.st_dev,
+                                                                              mine.st_ino):
+            break
+        os.close(fd)  # its holder removed it between our open and lock: take the new one
+    try:
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield lock
+    finally:
+        lock.unlink(missing_ok=True)
+        os.close(fd)
 
 
 def merge_shards(shards: list[Path], output: Path, *, partial: bool = False,

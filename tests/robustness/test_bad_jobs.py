@@ -289,3 +289,107 @@ def test_complex_literals_keep_complex_functions():
     from sweepcli.expressions import parse
     assert parse("sqrt(-1 + 0j)")({}) == 1j
     assert parse("exp(1j*pi)")({}) == pytest.approx(-1)
+
+
+# ---------------------------------------------------------------------------------------------
+# Inputs that ended in a traceback (or exhausted memory): refused at load, naming table and key
+
+
+def test_grid_too_large_is_refused_before_allocating(tmp_path):
+    # 1000 x 10^6 = 10^9 points: counted from num, nothing of that size is ever allocated.
+    text = GOOD.replace("t = 1.0\n", "").replace(
+        "num = 3 }", "num = 1000 }\nt = { start = 0.5, stop = 1.0, num = 1000000 }")
+    assert run_bad(tmp_path, text) == (
+        "JOB: [sweep] must give a grid of at most 10,000,000 points; got 1000 (m) x 1000000 (t) "
+        "= 1,000,000,000 points.")
+    assert run_bad(tmp_path, GOOD.replace("num = 3 }", "num = 1000000000 }")) == (
+        "JOB: [sweep.m] num must be at most 10,000,000 points; got 1000000000.")
+
+
+def test_refined_grid_too_large_is_refused(tmp_path):
+    text = GOOD.replace("num = 3 }", "num = 5000 }\nt = { start = 0.5, stop = 1.0, num = 500 }")
+    text = text.replace("t = 1.0\n", "").replace("[measure.gap]", "[measure.chern]\n[refine]\n"
+                                                  "by = \"chern\"\ndepth = 3")
+    msg = run_bad(tmp_path, text)
+    assert msg.startswith("JOB: [refine] depth must be such that the refined grid has at most "
+                          "10,000,000 points; got 3. It would have 39993 x 3993 =")
+
+
+def test_deeply_nested_arrays_are_refused(tmp_path):
+    # 3000 levels overflow the TOML parser's recursion; 40 levels parse but are refused.
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "t = " + "[" * 3000 + "]" * 3000))
+    assert msg == ("JOB:7:5: invalid TOML: arrays or tables must be nested at most 32 levels "
+                   "deep; these are nested deeper.")
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", "t = " + "[" * 40 + "]" * 40))
+    assert msg == ("JOB: [params] t must be nested at most 32 levels deep; got deeper arrays or "
+                   "tables.")
+
+
+def test_overlong_expression_is_refused(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", 't = "' + "1+" * 5000 + '1"'))
+    assert msg.startswith("JOB: [params] t must be a number or an arithmetic expression; got '1+")
+    assert msg.endswith("... (10,001 characters). It has 10,001 characters; an expression may "
+                        "have at most 1000.")
+    # Short enough, but 301 operators deep: refused before the evaluator could recurse.
+    msg = run_bad(tmp_path, GOOD.replace("t = 1.0", 't = "' + "1+" * 300 + '1"'))
+    assert msg.endswith("It is nested too deeply; an expression may have at most 60 levels of "
+                        "operators and parentheses.")
+
+
+def test_model_name_that_is_not_a_string(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace('name = "qwz"', "name = []"))
+    assert msg.startswith("JOB: [model] name must be a built-in model or \"custom\"")
+    assert msg.endswith("got [].")
+
+
+@pytest.mark.parametrize("where, text", [
+    ("[job] title", '[job]\ntitle = "a\\u0000b"\nname = "small"'),
+    ("[params] t", '[params]\nt = "1\\u0000"'),
+    ("[output] path", '[output]\npath = "OUT\\u0000"'),
+])
+def test_nul_character_is_refused_at_load(tmp_path, where, text):
+    table = text.split("\n")[0]
+    start = GOOD.index(table)
+    end = GOOD.index("\n", GOOD.index("\n", start) + 1)
+    job = GOOD[:start] + text + GOOD[end:]
+    if table == "[job]":
+        job = job.replace('\nname = "small"\nname = "small"', '\nname = "small"')
+    assert run_bad(tmp_path, job) == (f"JOB: {where} must be a string without NUL characters; "
+                                      "got one with a NUL (\\u0000) character.")
+
+
+def test_output_through_a_file_is_refused(tmp_path):
+    (tmp_path / "afile").write_text("")
+    job = tmp_path / "job.toml"
+    job.write_text(GOOD.replace("OUT", str(tmp_path / "afile" / "out.h5")))
+    result = CliRunner().invoke(app, ["run", str(job)])
+    assert result.exit_code == 2
+    assert result.stderr == (f"error: {job}: [output] path must give a file path that can be "
+                             f"created; got '{tmp_path}/afile/out.h5'. '{tmp_path}/afile' is a "
+                             "file, not a directory.\n")
+    result = CliRunner().invoke(app, ["run", str(job), "-o", str(tmp_path / "afile" / "o.h5")])
+    assert result.exit_code == 2
+    assert result.stderr.startswith("error: --output must be a file path that can be created; ")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["afile", "job.toml"]
+
+
+def test_output_name_too_long_is_refused(tmp_path):
+    msg = run_bad(tmp_path, GOOD.replace("OUT", str(tmp_path / ("x" * 300 + ".h5"))))
+    assert msg.startswith("JOB: [output] path must be a file path that can be created; got ")
+    assert msg.endswith("has 303 bytes; a file name may have at most 250 (the run adds '.lock' "
+                        "to it).")
+    assert list(tmp_path.iterdir()) == [tmp_path / "bad.toml"]
+
+
+def test_output_option_with_nul_is_refused(tmp_path):
+    # The command line refuses a NUL in -o itself (click); the session refuses it as well.
+    from sweepcli.errors import SweepError
+    from sweepcli.run.session import RunSession
+
+    job = tmp_path / "job.toml"
+    job.write_text(GOOD.replace("OUT", str(tmp_path / "out.h5")))
+    result = CliRunner().invoke(app, ["run", str(job), "-o", str(tmp_path / "o\x00.h5")])
+    assert result.exit_code == 2 and "Traceback" not in result.output
+    with pytest.raises(SweepError, match="It contains a NUL character.$"):
+        RunSession(job, output=tmp_path / "o\x00.h5", progress=False).run()
+    assert list(tmp_path.iterdir()) == [job]

@@ -43,7 +43,7 @@ def test_failing_point_is_recorded_and_others_finish(tmp_path, failing_gap):
     out = tmp_path / "out.h5"
     job.write_text(JOB.replace("OUT", str(out)))
     result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
-    assert result.exit_code == 0, result.output
+    assert result.exit_code == 4, result.output  # finished, but a point failed
     assert "1 failed" in result.stdout
     r = Results.read(out)
     assert r.n_done == 7
@@ -74,3 +74,28 @@ def test_unwritable_checkpoint_keeps_the_previous_file(tmp_path, monkeypatch):
                   progress=False)
     assert out.read_bytes() == before
     assert Results.read(out).n_done == 0
+
+
+def test_failed_ok_exits_zero_and_a_clean_run_exits_zero(tmp_path, failing_gap):
+    job = tmp_path / "job.toml"
+    job.write_text(JOB.replace("OUT", str(tmp_path / "out.h5")))
+    result = CliRunner().invoke(app, ["run", str(job), "--no-progress", "--failed-ok"])
+    assert result.exit_code == 0, result.output
+    assert "1 failed" in result.stdout
+    clean = tmp_path / "clean.toml"
+    clean.write_text(JOB.replace("OUT", str(tmp_path / "c.h5")).replace("num = 7", "num = 2"))
+    result = CliRunner().invoke(app, ["run", str(clean), "--no-progress"])
+    assert result.exit_code == 0 and "failed (see" not in result.stdout, result.output
+
+
+@pytest.mark.parametrize("value", ["1e308", "1180591620717411303424", '"2**70"', "-1e13"])
+def test_absurd_magnitudes_are_refused_at_load(tmp_path, value):
+    # 1e308 ran with overflow warnings and stored a gap of 4e292; 2**70 leaves the other terms
+    # of H no significant digits (float64 keeps about 16).
+    job = tmp_path / "job.toml"
+    job.write_text(JOB.replace("OUT", str(tmp_path / "out.h5"))
+                   .replace("[sweep]", f"[params]\nt = {value}\n[sweep]"))
+    result = CliRunner().invoke(app, ["run", str(job), "--no-progress"])
+    assert result.exit_code == 2, result.output
+    assert "magnitude at most 1e+12" in result.stderr and "[params] t must be" in result.stderr
+    assert not (tmp_path / "out.h5").exists()
