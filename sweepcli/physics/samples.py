@@ -35,12 +35,13 @@ _C16 = 16
 #: ``"auto"`` uses dense diagonalisation up to this many sample orbitals: the measured one-core
 #: crossovers of benchmarks/bench_flake_modes.py and bench_corner_count.py. Static: dense eigh
 #: against shift-invert Lanczos, dense/Lanczos 0.7 at 256 and 1.6 at 400 orbitals, equal near
-#: 300. Driven (dense U formed by Chebyshev steps on the identity against Lanczos on
-#: (U + U^dagger)/2, both gaps of one flake): equal near 900 orbitals for the two-step BBH
-#: drive, 1100 for a bhz_corner mass drive at omega = 3.5 and beyond 1600 for the same drive at
-#: omega = 6 (clustered levels at pi slow Lanczos down); 1200 sits between them.
+#: 300. Driven (dense U formed by Chebyshev steps on the identity against the filtered block
+#: iteration on (U + U^dagger)/2, both gaps of one flake in their edge windows, one quiet core):
+#: a bhz_corner mass drive at omega = 3.5 takes 2.4 s dense and 2.8 s sparse at 1296 orbitals,
+#: 13 s and 5 s at 2304; at omega = 6 2.4 s and 6.9 s at 1296, 12 s both at 2304 (clustered
+#: levels at pi slow the iteration down); 1600 sits between the crossovers.
 DENSE_MAX = 300
-DENSE_MAX_DRIVEN = 1200
+DENSE_MAX_DRIVEN = 1600
 #: Memory assumed when the machine's cannot be read (bytes).
 FALLBACK_MEMORY = 24 * 2**30
 

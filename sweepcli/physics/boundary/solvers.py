@@ -1,7 +1,7 @@
 """In-window levels and eigenvectors of one open sample, static or driven.
 
 ``method`` is chosen by the caller (:func:`sweepcli.physics.samples.choose_method`: dense up to
-300 orbitals static, 1200 driven, the measured one-core crossovers).
+300 orbitals static, 1600 driven, the measured one-core crossovers).
 Static samples: dense ``eigh`` (eigenvectors of the window only), or shift-invert Lanczos
 (``scipy.sparse.linalg.eigsh`` with ``sigma`` at the gap centre, one LU factorisation and a
 fixed start vector), asking for more levels until the farthest one found lies outside the
