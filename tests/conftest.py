@@ -16,6 +16,24 @@ os.environ.setdefault("TQDM_DISABLE", "1")
 ROOT = Path(__file__).resolve().parents[1]
 JOBS = ROOT / "jobs"
 
+# Our own mass-switched corner model (bhz_corner, delta2 = 1: m = -0.5 for 0.4 T, then m = 3),
+# without its [sweep] and [measure] tables, which each test adds.
+MASS_DRIVE = """
+[model]
+name = "bhz_corner"
+[params]
+delta2 = 1.0
+[drive]
+kind = "steps"
+omega = "omega"
+[[drive.step]]
+span = 0.4
+set = { m = -0.5 }
+[[drive.step]]
+span = 0.6
+set = { m = 3.0 }
+"""
+
 
 @pytest.fixture
 def write_job(tmp_path):

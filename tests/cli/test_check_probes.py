@@ -4,24 +4,13 @@ from typer.testing import CliRunner
 
 from sweepcli.cli import app
 
+from ..conftest import MASS_DRIVE
+
 # A driven corner count on 16 x 16 flakes (our own mass drive) takes seconds per point, far
 # longer than the 0.1 s budget given below.
-JOB = """
-[model]
-name = "bhz_corner"
-[params]
-delta2 = 1.0
+JOB = MASS_DRIVE + """
 [sweep]
 omega = { start = 3.0, stop = 6.0, num = 4 }
-[drive]
-kind = "steps"
-omega = "omega"
-[[drive.step]]
-span = 0.4
-set = { m = -0.5 }
-[[drive.step]]
-span = 0.6
-set = { m = 3.0 }
 [measure.corner_modes]
 size = 16
 max_size = 16

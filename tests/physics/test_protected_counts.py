@@ -23,6 +23,7 @@ from sweepcli.physics.boundary import counts
 from sweepcli.physics.measurements import MEASUREMENTS
 from sweepcli.schema import Reason
 
+from ..conftest import MASS_DRIVE
 from .test_boundary_counts import S0, SX, SZ, as_model, bbh_cell, corner_bhz_cell, open_box
 
 # ----------------------------------------------------------------------------------------------
@@ -104,22 +105,9 @@ def test_split_quadrupole_corner_states_are_not_modes():
 # ----------------------------------------------------------------------------------------------
 # Two modes per corner at low drive frequency
 
-LOW_FREQUENCY = """
-[model]
-name = "bhz_corner"
-[params]
-delta2 = 1.0
+LOW_FREQUENCY = MASS_DRIVE + """
 [sweep]
 omega = [2.5]
-[drive]
-kind = "steps"
-omega = "omega"
-[[drive.step]]
-span = 0.4
-set = { m = -0.5 }
-[[drive.step]]
-span = 0.6
-set = { m = 3.0 }
 [measure.line_winding]
 operator = "mirror_diag"
 direction = [1, 1]
