@@ -20,7 +20,7 @@ from pathlib import Path
 from ..errors import SweepError, shown
 from ..jobfile import Job, job_from_results, load_job, output_path_problem
 from ..store import Results
-from ..store.merge import MergeReport, merge_results
+from ..store.merge import SHARDS_TABLE, MergeReport, merge_results
 from ..store.provenance import now
 from .layout import confirm_attrs, results_for_job
 from .runner import RunSummary, run_job
@@ -199,20 +199,28 @@ def output_lock(out: Path) -> Iterator[Path]:
 
 
 def merge_shards(shards: list[Path], output: Path, *, partial: bool = False,
-                 force: bool = False) -> tuple[MergeReport, list[str]]:
+                 force: bool = False, replace: bool = False) -> tuple[MergeReport, list[str]]:
     """Merge the shard files of one job into ``output``; returns the report and warnings.
 
     A complete merged grid gets the predicted transitions that shards skip, as a full run.
+    The file is written whole to ``output.tmp`` and renamed into place, so an earlier merged
+    file stays intact until the new one is complete. ``replace`` overwrites ``output`` only
+    when it is an earlier merge of the same job (it has the ``shards`` table and the same
+    ``job_sha256``): what the merge script does when it is run again after a shard was redone.
 
     Raises
     ------
     SweepError
-        If ``output`` exists without ``force``, the shards do not belong together, or points
-        are missing without ``partial``.
+        If ``output`` exists without ``force`` (or, with ``replace``, is not an earlier merge of
+        this job), the shards do not belong together, or points are missing without
+        ``partial``.
     """
-    if output.exists() and not force:
-        raise SweepError(f"{output}: exists; refusing to overwrite it. Use --force.")
+    if output.exists() and not force and not replace:
+        raise SweepError(f"{output}: exists; refusing to overwrite it. Use --force (or "
+                         "--replace for an earlier merge of the same shards).")
     merged, report = merge_results(shards)
+    if output.exists() and not force:
+        _check_replaceable(output, merged.attrs.get("job_sha256", ""))
     warnings = []
     if not report.complete:
         first = "; ".join(", ".join(f"{k}={v:g}" for k, v in p.items()) for p in report.missing)
@@ -230,3 +238,22 @@ def merge_shards(shards: list[Path], output: Path, *, partial: bool = False,
     output.parent.mkdir(parents=True, exist_ok=True)
     merged.write(output)
     return report, warnings
+
+
+def _check_replaceable(output: Path, job_sha256: str) -> None:
+    """Refuse (``SweepError``) to replace ``output`` unless it is a merged file of the job
+    ``job_sha256``."""
+    try:
+        earlier = Results.read(output)
+    except SweepError as exc:
+        raise SweepError(f"{output}: exists and is not a merged results file ({exc}); refusing "
+                         "to replace it. Use --force to overwrite it.") from None
+    if SHARDS_TABLE not in earlier.tables:
+        raise SweepError(f"{output}: exists and is not a merged file (no '{SHARDS_TABLE}' "
+                         "table: a run's own file?); refusing to replace it. Use --force to "
+                         "overwrite it.")
+    if earlier.attrs.get("job_sha256") != job_sha256:
+        raise SweepError(f"{output}: is the merge of another job (job_sha256 "
+                         f"{earlier.attrs.get('job_sha256', '?')[:12]}, these shards "
+                         f"{job_sha256[:12]}); refusing to replace it. Use --force to overwrite "
+                         "it.")

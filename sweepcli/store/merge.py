@@ -11,6 +11,12 @@ from ..errors import ResultsError
 from .results import Results
 
 SHARD_ATTRS = ("shard",)
+#: The table of a merged file that keeps the provenance of every shard, one row each.
+SHARDS_TABLE = "shards"
+#: Its columns: root attributes of each shard file (results-schema.md, "Merged files").
+SHARD_PROVENANCE = ("shard", "host", "command_line", "started", "finished", "sweepcli_version",
+                    "python_version", "numpy_version", "scipy_version", "h5py_version",
+                    "hdf5_version")
 
 
 @dataclass
@@ -96,6 +102,7 @@ def merge_results(paths: list[str | Path], max_listed: int = 10) -> tuple[Result
     out.attrs["finished"] = max(ends) if all(ends) else ""
     out.attrs["command_line"] = " ; ".join(dict.fromkeys(r.attrs.get("command_line", "")
                                                          for _, r in shards))
+    out.tables[SHARDS_TABLE] = shard_provenance([r for _, r in shards])
     missing_idx = np.flatnonzero(out.done.ravel() == 0)
     listed = []
     for flat in missing_idx[:max_listed]:
@@ -103,3 +110,18 @@ def merge_results(paths: list[str | Path], max_listed: int = 10) -> tuple[Result
         listed.append({a.name: float(a.values[i]) for a, i in zip(out.axes, multi)})
     report = MergeReport(len(shards), out.n_done, out.size, listed, len(missing_idx))
     return out, report
+
+
+def shard_provenance(shards: list[Results]) -> dict[str, np.ndarray]:
+    """The ``shards`` table of a merged file: one row per shard with its own provenance
+    (:data:`SHARD_PROVENANCE`), rows of an input that is itself a merged file carried over."""
+    rows: list[dict[str, str]] = []
+    for r in shards:
+        table = r.tables.get(SHARDS_TABLE)
+        if table is not None:
+            n = len(next(iter(table.values()), []))
+            rows += [{c: str(table[c][i]) if c in table else "" for c in SHARD_PROVENANCE}
+                     for i in range(n)]
+        else:
+            rows.append({c: r.attrs.get(c, "") for c in SHARD_PROVENANCE})
+    return {c: np.array([row[c] for row in rows], dtype=object) for c in SHARD_PROVENANCE}
