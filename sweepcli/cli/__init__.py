@@ -2,7 +2,7 @@
 
 ``app`` (:mod:`.root`, with the root options and the exit codes) carries every command; each
 command group registers its commands on it when imported, in the order ``sweepcli --help`` lists
-them: :mod:`.jobs` (check, run, merge, batch), then :mod:`.reports` (show, map, boundaries,
+them: :mod:`.jobs` (check, run, merge, batch, shards), then :mod:`.reports` (show, map, boundaries,
 sample, models, diff, export).
 """
 

@@ -1,4 +1,4 @@
-"""The commands that check, run and plan a job: check, run, merge, batch."""
+"""The commands that check, run and plan a job: check, run, merge, batch, shards."""
 
 from __future__ import annotations
 
@@ -8,7 +8,16 @@ from typing import Annotated
 import typer
 
 from ..errors import SweepError
-from .root import EXIT_ERROR, EXIT_INTERRUPTED, EXIT_POINTS_FAILED, app, fail, note, quiet
+from .root import (
+    EXIT_ERROR,
+    EXIT_INTERRUPTED,
+    EXIT_POINTS_FAILED,
+    EXIT_SHARDS_UNFINISHED,
+    app,
+    fail,
+    note,
+    quiet,
+)
 
 
 @app.command()
@@ -94,12 +103,21 @@ def merge(ctx: typer.Context,
           partial: Annotated[bool, typer.Option(
               "--partial", help="Write the merged file even if points are missing.")] = False,
           force: Annotated[bool, typer.Option("--force", help="Overwrite OUT.")] = False,
+          replace: Annotated[bool, typer.Option(
+              "--replace",
+              help="Overwrite OUT only if it is an earlier merge of the same job (the batch "
+                   "merge scripts use it, so they can be run again after a shard is "
+                   "redone).")] = False,
           ) -> None:
-    """Merge the shard files of one job into OUT, checking that they belong together."""
+    """Merge the shard files of one job into OUT, checking that they belong together.
+
+    OUT is written whole and renamed into place, and records every shard's provenance (its
+    `shards` table)."""
     from ..run.session import merge_shards
 
     try:
-        report, warnings = merge_shards(shards, output, partial=partial, force=force)
+        report, warnings = merge_shards(shards, output, partial=partial, force=force,
+                                        replace=replace)
     except SweepError as exc:
         fail(ctx, exc)
         return
@@ -174,9 +192,13 @@ def batch(ctx: typer.Context,
                    "of its time and the estimate (not needed when a previous results file of "
                    "the job holds measured times).")] = True,
           ) -> None:
-    """Write Slurm and PBS array-job scripts (and their merge steps) for JOB."""
+    """Write Slurm and PBS array-job scripts (and their merge steps) for JOB.
+
+    The scripts use absolute paths, run in DIR and run the Python this command was run with;
+    task I computes shard I/N, so `sbatch --array=3,5 SCRIPT` redoes shards 3 and 5 only.
+    `sweepcli shards DIR` says which shards are done and how to resubmit the others."""
     from ..jobfile import load_job
-    from ..run.batch import plan, scripts
+    from ..run.batch import manifest, plan, scripts
     from ..run.cost import measured_cost, time_one_point
 
     try:
@@ -187,7 +209,7 @@ def batch(ctx: typer.Context,
         measured = (time_one_point(job) if time_one and seconds_per_point is None
                     and previous is None else None)
         p = plan(job, tasks, workers, seconds_per_point, measured, previous)
-        texts = scripts(job, str(job_file), p)
+        texts = scripts(job, p, manifest(job, job_file, tasks, directory))
         directory.mkdir(parents=True, exist_ok=True)
         for name in texts:
             if (directory / name).exists() and not force:
@@ -195,7 +217,7 @@ def batch(ctx: typer.Context,
                                  "Use --force.")
         for name, text in texts.items():
             (directory / name).write_text(text)
-            (directory / name).chmod(0o755)
+            (directory / name).chmod(0o755 if name.endswith(".sh") else 0o644)
     except SweepError as exc:
         fail(ctx, exc)
         return
@@ -203,6 +225,59 @@ def batch(ctx: typer.Context,
         typer.echo(f"timed the middle grid point: {measured:.3g} s")
     typer.echo(f"{p.seconds_per_point:.3g} s per point ({p.basis})")
     typer.echo(f"{tasks} tasks of about {p.points_per_task} points, {p.workers} workers, "
-               f"wall time {p.walltime_s // 60} min, memory {p.memory_mb} MiB per task")
+               f"wall time {p.walltime_s // 60} min {p.walltime_s % 60} s, memory "
+               f"{p.memory_mb} MiB per task")
     for name in texts:
         typer.echo(f"  wrote {directory / name}")
+
+
+@app.command()
+def shards(ctx: typer.Context,
+           directory: Annotated[Path, typer.Argument(
+               help="The folder `sweepcli batch --dir` wrote the scripts to.", metavar="DIR")],
+           ) -> None:
+    """List the shards of the array jobs in DIR (done, partial, absent) with the commands that
+    resubmit the unfinished ones and merge.
+
+    Exit codes: 0 every shard done (merge now), 2 bad input, 5 some shards not done."""
+    from ..jobfile import load_job
+    from ..run.batch import merge_commands, read_manifests, resubmit_commands, shard_states
+
+    try:
+        found = []
+        for m in read_manifests(directory):
+            job = load_job(m.job)
+            found.append((m, shard_states(m, job.sha256, job.size)))
+    except SweepError as exc:
+        fail(ctx, exc)
+        return
+    unfinished = False
+    for m, states in found:
+        merged = "exists" if Path(m.output).exists() else "not written yet"
+        typer.echo(f"{m.job}: {m.tasks} shards; merged file {m.output} ({merged})")
+        for st in states:
+            count = f"{st.done}/{st.total} points" if st.state != "absent" else ""
+            failed = f", {st.failed} failed" if st.failed else ""
+            note_ = f" ({st.note})" if st.note else ""
+            typer.echo(f"  shard {st.index}/{m.tasks}  {st.state:<8} {count}{failed}  "
+                       f"{st.path}{note_}")
+        todo = [st.index for st in states if st.state != "done"]
+        counts = {k: sum(st.state == k for st in states)
+                  for k in ("done", "partial", "absent", "unusable")}
+        typer.echo("  " + ", ".join(f"{v} {k}" for k, v in counts.items() if v))
+        merge = merge_commands(m)
+        if todo:
+            unfinished = True
+            cmds = resubmit_commands(m, todo)
+            if counts["unusable"]:
+                typer.echo("  move the unusable files away first, then")
+            typer.echo("  resubmit the unfinished shards and merge after them:")
+            typer.echo(f"    Slurm: {cmds['slurm'][0]}")
+            typer.echo("    PBS:   " + "\n           ".join(cmds["pbs"]))
+            typer.echo("  (a shard whose task is still running shows as partial: see squeue or "
+                       "qstat)")
+        else:
+            typer.echo(f"  every shard is done; merge: {merge['slurm']} (PBS: {merge['pbs']}; "
+                       f"here: {merge['here']})")
+    if unfinished:
+        raise typer.Exit(EXIT_SHARDS_UNFINISHED)

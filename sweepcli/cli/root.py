@@ -4,7 +4,8 @@ handling all commands share.
 Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
 line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
 saved; rerun with ``--resume``); 4 a run finished but some points failed (the results file holds
-every point, the failed ones missing with their reason; ``run --failed-ok`` exits 0 instead).
+every point, the failed ones missing with their reason; ``run --failed-ok`` exits 0 instead);
+5 ``shards``: some shards of an array job are not done (it prints how to resubmit them).
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ EXIT_DIFFER = 1
 EXIT_ERROR = 2
 EXIT_INTERRUPTED = 3
 EXIT_POINTS_FAILED = 4
+EXIT_SHARDS_UNFINISHED = 5
 
 class _App(typer.Typer):
     """The typer app, exiting quietly with 0 when stdout is a pipe its reader closed
