@@ -73,7 +73,7 @@ def test_run_takes_verbose_after_the_command(tmp_path):
 
 
 def test_help_at_80_columns_shows_whole_option_names_and_no_bool_metavar():
-    commands = ["run", "merge", "check", "batch", "show", "map", "boundaries", "sample",
+    commands = ["run", "merge", "check", "batch", "shards", "show", "map", "boundaries", "sample",
                 "models", "diff", "export"]
     for command in commands:
         text = subprocess.run([sys.executable, "-m", "sweepcli", command, "--help"],
