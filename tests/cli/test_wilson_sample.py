@@ -23,6 +23,8 @@ gamma = [0.5, 1.0, 1.5]
 [measure.quadrupole]
 [measure.polarisation]
 axis = 1
+[measure.corner_modes]
+size = 12
 """
 
 SSH_JOB = """
@@ -59,6 +61,9 @@ def test_bbh_run_stores_q_xy_with_reasons(tmp_path):
     assert list(codes) == [0, 1, 0]  # ok, gap_closed, ok
     assert list(res.data["wannier_flow"]) == [0, np.iinfo(np.int32).min, 0]
     assert "polarisation_reason" in res.variables
+    # One zero mode per corner where q_xy = 1/2, none where q_xy = 0 (BBH 2017).
+    assert list(res.data["corner_modes_0_00"]) == [1, np.iinfo(np.int32).min, 0]
+    assert list(res.data["agree_quadrupole_corner"]) == [1, np.iinfo(np.int32).min, 1]
 
     drawing = wilson_point(res, at={"gamma": 0.5})
     assert drawing.quadrupole.q == 0.5 and drawing.stored["quadrupole"] == 0.5
