@@ -29,6 +29,7 @@ class Reason(IntEnum):
     EDGE_GAP_CLOSED = 7  # the edges of the sample are gapless, so corner modes are not defined
     NO_CHIRAL_FRAME = 8  # the drive has no chiral-symmetric time frame: chiral invariants undefined
     NOT_REQUESTED = 9  # a [confirm] job did not select this cell for its boundary measurements
+    NOT_QUANTISED = 10  # a value a symmetry quantises (q_xy: 0 or 1/2) is not near an allowed one
 
 
 @dataclass(frozen=True)

@@ -45,11 +45,19 @@ MATRIX: dict[str, tuple[set[str], set[str], set[str]]] = {
     "sweepcli.report.sample_plot": ({"sweepcli.report", "sweepcli.report.sample_data",
                                      "sweepcli.store", "sweepcli.schema", "sweepcli.errors"},
                                     {"numpy"}, {"matplotlib"}),
+    # The same for one grid point's Wilson loops (the point rebuilt by sample_data's helpers).
+    "sweepcli.report.wilson_data": ({"sweepcli.report", "sweepcli.report.sample_data",
+                                     "sweepcli.store", "sweepcli.schema", "sweepcli.errors",
+                                     "sweepcli.jobfile", "sweepcli.physics"}, {"numpy"}, set()),
+    "sweepcli.report.wilson_plot": ({"sweepcli.report", "sweepcli.report.wilson_data",
+                                     "sweepcli.store", "sweepcli.schema", "sweepcli.errors"},
+                                    {"numpy"}, {"matplotlib"}),
     # The cli package: its root app and the command groups registering on it.
     "sweepcli.cli": ({"sweepcli", "sweepcli.schema", "sweepcli.errors", "sweepcli.expressions",
                       "sweepcli.physics", "sweepcli.jobfile", "sweepcli.store", "sweepcli.run",
                       "sweepcli.report", "sweepcli.report.sample_data",
-                      "sweepcli.report.sample_plot"}, {"typer"}, set()),
+                      "sweepcli.report.sample_plot", "sweepcli.report.wilson_data",
+                      "sweepcli.report.wilson_plot"}, {"typer"}, set()),
     "sweepcli.__main__": ({"sweepcli.cli"}, set(), set()),
 }
 STDLIB = set(sys.stdlib_module_names) | {"__future__"}

@@ -129,23 +129,46 @@ def sample(ctx: typer.Context,
            output: Annotated[Path | None, typer.Option(
                "--output", "-o",
                help="Picture file; format from the suffix (png, svg, pdf).")] = None,
+           wilson: Annotated[bool, typer.Option(
+               "--wilson",
+               help="Draw the bulk Wilson-loop spectrum (Wannier centres against the transverse "
+                    "momentum, nested loops in 2D) of the point's band group instead of an open "
+                    "sample.")] = False,
            ) -> None:
-    """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS."""
+    """Draw the spectrum and in-gap states of the open sample at one grid point of RESULTS (with
+    --wilson: its Wilson-loop spectrum)."""
     from ..report.map_data import at_notes
-    from ..report.sample_plot import draw_sample
     from ..store import Results
 
     try:
+        if wilson and (kind is not None or size is not None or gap != "0"):
+            given = [o for o, v in (("--kind", kind), ("--size", size),
+                                    ("--gap", None if gap == "0" else gap)) if v is not None]
+            raise SweepError(f"{', '.join(given)} choose an open sample; --wilson draws the bulk "
+                             "Wilson loops of the band group the job's polarisation or "
+                             "quadrupole measurement names (give one or the other).")
         results = Results.read(results_file)
-        out = output or results_file.with_name(results_file.stem + "-sample.png")
-        written, drawn = draw_sample(results, out, at=parse_at(at or []), kind=kind, size=size,
-                                     gap=gap, label=str(results_file))
         notes = at_notes(results, parse_at(at or []))
+        if wilson:
+            from ..report.wilson_plot import draw_wilson
+
+            out = output or results_file.with_name(results_file.stem + "-wilson.png")
+            written, drawn = draw_wilson(results, out, at=parse_at(at or []),
+                                         label=str(results_file))
+        else:
+            from ..report.sample_plot import draw_sample
+
+            out = output or results_file.with_name(results_file.stem + "-sample.png")
+            written, drawn = draw_sample(results, out, at=parse_at(at or []), kind=kind,
+                                         size=size, gap=gap, label=str(results_file))
     except SweepError as exc:
         fail(ctx, exc)
         return
     for line in notes:
         note(ctx, line.replace("drawn at", "sampled at"))
+    if wilson:
+        typer.echo(f"{drawn.describe()} -> {written}")
+        return
     if drawn.chosen and not quiet(ctx):
         typer.echo(f"sample kind {drawn.chosen} (--kind chooses another)")
     typer.echo(f"{drawn.describe()} -> {written}")

@@ -65,6 +65,20 @@ def _check_line_operator(ck: Checker, job: Job, point: Point) -> None:
                                f"(largest commutator entry {err:.3g} at the first grid point).")
 
 
+def _check_loop_axis(ck: Checker, job: Job) -> None:
+    """A Wilson loop runs along one of the model's reciprocal directions; a 1D loop has no
+    transverse momentum."""
+    for name, options in job.measurements:
+        if name != "polarisation":
+            continue
+        opts = dict(options)
+        if opts.get("axis", 0) >= job.dim:
+            raise ck.fail(f"measure.{name}", "axis", f"0 for a {job.dim}D model", opts["axis"])
+        if job.dim == 1 and opts.get("k_perp") is not None:
+            raise ck.fail(f"measure.{name}", "k_perp", "absent for a 1D model (its loop has no "
+                          "transverse momentum)", opts["k_perp"])
+
+
 def _check_frame_times(ck: Checker, job: Job) -> None:
     """Given frame times must be one time-symmetric frame and its partner half a period on."""
     from ..physics.measurements import driven
@@ -135,6 +149,7 @@ def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict)
     table and key where it was written.
     """
     _check_frame_times(ck, job)
+    _check_loop_axis(ck, job)
     size = job.size
     idx = np.unique(np.linspace(0, size - 1, min(size, SAMPLED_POINTS)).round().astype(np.int64))
     for i in idx:

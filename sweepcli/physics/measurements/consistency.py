@@ -21,6 +21,10 @@ published literature:
   of a flake holds |w_s1 - w_s2| / 2 modes in that gap, the mirror-graded winding (assumes the
   four corners are related by the model's symmetry, e.g. C4 T, as in the second-order models of
   Schindler et al., Science Advances 4, eaat0346 (2018)).
+* ``quadrupole_corner``: a static quadrupole insulator with q_xy = 1/2 holds one zero mode at
+  each corner of a flake, one with q_xy = 0 none (Benalcazar, Bernevig and Hughes, Science 357,
+  61 (2017), for their chiral-symmetric model, where the corner charge +-e/2 is carried by one
+  zero mode per corner; the filled bands, ``band_group = "lower"``, in static jobs only).
 
 Chirality sign ``s`` (:func:`edge_sign`): every 2D invariant here (``chern``,
 ``floquet_chern_*``, ``w_0``, ``w_pi``) is computed in reduced momenta ``k_i = k . a_i``, and the
@@ -108,6 +112,16 @@ def _corners(g: str) -> Rule:
                 f"|w_s1 - w_s2|/2 modes at each corner of a flake at {g}")
 
 
+def _quadrupole_corners() -> Rule:
+    reads = ("quadrupole", *(f"corner_modes_0_{c}" for c in CORNERS))
+
+    def agree(v: Mapping[str, float]) -> bool:
+        return all(v[f"corner_modes_0_{c}"] == round(2 * v["quadrupole"]) for c in CORNERS)
+
+    return Rule("quadrupole_corner", reads, agree,
+                "2 q_xy zero modes at each corner of a flake (one for q_xy = 1/2)")
+
+
 def rules_for(names: set[str], options: Mapping[str, Mapping[str, Any]] | None = None
               ) -> list[Rule]:
     """The rules whose variables a job stores.
@@ -117,9 +131,13 @@ def rules_for(names: set[str], options: Mapping[str, Mapping[str, Any]] | None =
     """
     axis = dict((options or {}).get("edge_modes", {})).get("open_axis", 1)
     s = edge_sign(axis)
-    rules = (_ends("winding", "0"), _ends("nu_0", "0"), _ends("nu_pi", "pi"),
+    rules = [_ends("winding", "0"), _ends("nu_0", "0"), _ends("nu_pi", "pi"),
              _edge("chern", "0", s), _edge("w_0", "0", s), _edge("w_pi", "pi", s),
-             _floquet_chern_edge(s), _corners("0"), _corners("pi"))
+             _floquet_chern_edge(s), _corners("0"), _corners("pi")]
+    # Static jobs only (a driven job's flakes have pi counts), filled bands only.
+    group = dict((options or {}).get("quadrupole", {})).get("band_group", "lower")
+    if "corner_modes_pi_00" not in names and group == "lower":
+        rules.append(_quadrupole_corners())
     return [r for r in rules if set(r.reads) <= names]
 
 
@@ -130,5 +148,8 @@ def evaluate(rules: list[Rule], values: Mapping[str, object]) -> dict[str, int |
         if any(x is None or (isinstance(x, float) and x != x) for x in got):
             out[r.quantity.name] = None
         else:
-            out[r.quantity.name] = int(bool(r.agree({n: int(values[n]) for n in r.reads})))
+            # Integers as int; a float quantity (q_xy) as it is.
+            read = {n: values[n] if isinstance(values[n], float) else int(values[n])
+                    for n in r.reads}
+            out[r.quantity.name] = int(bool(r.agree(read)))
     return out
