@@ -1,17 +1,30 @@
-"""Runner benchmarks (run by hand, not by CI): parallel efficiency, runner + store overhead, and
-peak memory against the number of grid points.
+"""Runner benchmarks (run by hand, not by CI): scaling with workers, the share of wall time that
+is overhead, and peak memory against the number of grid points.
 
-    python benchmarks/bench_runner.py
+    python benchmarks/bench_runner.py [--grid 50x20] [--workers 1,2] [--repeat 2]
+                                      [--job jobs/driven-corners.toml] [--memory]
 
 Prints
-* the speed-up of 2 workers over 1 on a 200-point sweep (aim >= 1.8 on 2 cores);
-* the overhead of the runner and store over the bare loop of measurements (aim <= 5 %);
-* peak RSS of `sweepcli run` for 1k and 10k points of the same job, beside the size of the
+* for a static Qi-Wu-Zhang sweep with ``[predict]`` (``--grid MxT`` points, 1000 by default; the
+  200 x 200 grid of the issue is ``--grid 200x200``, about 40,000 points), or for ``--job``:
+  the bare serial work (every point and every predicted line in one loop, no runner), then for
+  each worker count the wall time, the speed-up and efficiency over 1 worker, the CPU time of
+  the workers (summed over processes, from psutil) and its ratio to 1 worker's (ideally 1.0:
+  the same points cost the same CPU however many workers share them), and the overhead share
+  of wall time ``1 - bare / (N x wall)`` (what the runner, store, process start and idle
+  workers cost; on a machine with fewer free cores than N workers it also holds the waiting),
+  and of CPU time ``1 - bare CPU / (workers' + parent's CPU)``, which a loaded machine leaves
+  alone; the first run on the most workers, which starts the pool, is shown apart;
+* with ``--memory``, peak RSS of ``sweepcli run`` for 1k and 10k points beside the size of the
   result arrays, so that growth beyond the arrays themselves shows.
+
+Runs are interleaved (bare, 1 worker, 2 workers, ... in each of ``--repeat`` rounds) and the
+best of the rounds is kept: the machine may be shared and noisy.
 """
 
 from __future__ import annotations
 
+import argparse
 import os
 import subprocess
 import sys
@@ -19,20 +32,24 @@ import tempfile
 import time
 from pathlib import Path
 
-from sweepcli.jobfile import load_job
-from sweepcli.run.layout import results_for_job
-from sweepcli.run.runner import run_sweep
-from sweepcli.run.worker import evaluate_point
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")  # one BLAS thread, as every worker of a sweep has
 
-# About 0.1 s per point.
-HEAVY = """
+from sweepcli.jobfile import load_job  # noqa: E402
+from sweepcli.run.layout import results_for_job  # noqa: E402
+from sweepcli.run.predict import Predictions, predict_transitions  # noqa: E402
+from sweepcli.run.runner import run_job  # noqa: E402
+from sweepcli.run.worker import evaluate_point  # noqa: E402
+
+QWZ = """
 [model]
-name = "bhz"
+name = "qwz"
 [sweep]
-M = {{ start = -1.0, stop = 9.0, num = {n} }}
+m = {{ start = -3.0, stop = 3.0, num = {nm} }}
+t = {{ start = 0.25, stop = 1.5, num = {nt} }}
 [measure.gap]
-[measure.spin_chern]
-kmesh = 48
+[measure.chern]
+[predict]
 [output]
 path = "{out}"
 """
@@ -50,48 +67,76 @@ path = "{out}"
 """
 
 
-def timed_run(job, workers):
+def cpu_of_children() -> float:
+    """User + system CPU seconds of the live child processes (the pool's workers)."""
+    import psutil
+
+    total = 0.0
+    for child in psutil.Process().children(recursive=True):
+        try:
+            t = child.cpu_times()
+        except psutil.Error:
+            continue
+        total += t.user + t.system
+    return total
+
+
+def bare(job) -> tuple[float, float]:
+    """Wall and CPU time of the same work in one loop: every point, then the predictions."""
+    w0, c0 = time.perf_counter(), time.process_time()
+    for i in range(job.size):
+        evaluate_point(job, i)
+    if job.predict is not None:
+        predict_transitions(job)
+    return time.perf_counter() - w0, time.process_time() - c0
+
+
+def timed_run(job, workers: int) -> tuple[float, float, float]:
+    """Wall time, workers' CPU and the parent's CPU of a run (points and predictions)."""
     results = results_for_job(job)
-    t0 = time.perf_counter()
-    run_sweep(job, results, workers=workers, progress=False)
-    return time.perf_counter() - t0
+    predictions = Predictions(job) if job.predict is not None else None
+    k0, c0 = cpu_of_children(), time.process_time()
+    w0 = time.perf_counter()
+    summary = run_job(job, results, workers=workers, progress=False, predictions=predictions)
+    wall = time.perf_counter() - w0
+    parent = time.process_time() - c0
+    assert summary.done == job.size and (predictions is None or predictions.complete)
+    if workers == 1:  # the serial executor computes in this process
+        return wall, parent, 0.0
+    return wall, cpu_of_children() - k0, parent
 
 
-def main() -> None:
-    tmp = Path(tempfile.mkdtemp())
-    path = tmp / "heavy.toml"
-    path.write_text(HEAVY.format(n=200, out=tmp / "h.h5"))
-    job = load_job(path)
+def scaling(job, label: str, counts: list[int], repeat: int) -> None:
+    from threadpoolctl import threadpool_limits
 
-    def bare_loop():
-        from threadpoolctl import threadpool_limits
-
-        # One BLAS thread, as the runner's workers have: the same arithmetic, no orchestration.
+    runs: dict[str, list] = {"bare": []}
+    cold = timed_run(job, max(counts)) if max(counts) > 1 else None  # starts the pool
+    for _ in range(repeat):
         with threadpool_limits(limits=1, user_api="blas"):
-            t0 = time.perf_counter()
-            for i in range(job.size):
-                evaluate_point(job, i)
-            return time.perf_counter() - t0
+            runs["bare"].append(bare(job))
+        for n in counts:
+            runs.setdefault(n, []).append(timed_run(job, n))
+    b_wall, b_cpu = min(runs["bare"])
+    print(f"{label}: {job.size} points"
+          + (f" + {Predictions(job).total} predicted lines" if job.predict is not None else "")
+          + f"; best of {repeat}")
+    print(f"  bare loop (no runner): wall {b_wall:.2f} s, CPU {b_cpu:.2f} s")
+    print("  workers    wall   speed-up  efficiency  worker CPU  CPU ratio  parent CPU  "
+          "overhead (wall, CPU)")
+    base_wall, base_cpu = min(runs[counts[0]])[:2] if counts[0] == 1 else (None, None)
+    for n in counts:
+        wall, cpu, parent = min(runs[n])
+        speed = f"{base_wall / wall:6.2f}x" if base_wall else "     -"
+        eff = f"{base_wall / wall / n:9.0%}" if base_wall else "        -"
+        ratio = f"{cpu / base_cpu:8.2f}" if base_cpu else "       -"
+        print(f"  {n:>7} {wall:7.2f} s {speed}   {eff}  {cpu:8.2f} s  {ratio}   "
+              f"{parent:7.2f} s  {1 - b_wall / (n * wall):7.1%} {1 - b_cpu / (cpu + parent):7.1%}")
+    if cold is not None:
+        print(f"  first run on {max(counts)} workers, starting the pool: wall {cold[0]:.2f} s "
+              f"(best warm {min(runs[max(counts)])[0]:.2f} s)")
 
-    def with_store():
-        results = results_for_job(job)
-        t0 = time.perf_counter()
-        run_sweep(job, results, workers=1, progress=False,
-                  checkpoint=lambda r: r.write(tmp / "c.h5"), checkpoint_every=0)
-        return time.perf_counter() - t0
 
-    # Interleaved repeats, best of three: the machine is shared and noisy.
-    bare, t1, t1_store = (min(ts) for ts in zip(*[(bare_loop(), timed_run(job, 1), with_store())
-                                                  for _ in range(3)]))
-    t2_cold = timed_run(job, 2)  # includes starting the worker processes
-    t2 = timed_run(job, 2)  # loky reuses its workers: the steady state of a long sweep
-    print(f"200 points of bhz gap + spin_chern: bare loop {bare:.2f} s")
-    print(f"  runner, 1 worker:            {t1:.2f} s   overhead {100 * (t1 / bare - 1):+.1f} %")
-    print(f"  runner + checkpoint each chunk: {t1_store:.2f} s   "
-          f"overhead {100 * (t1_store / bare - 1):+.1f} %")
-    print(f"  runner, 2 workers, cold:     {t2_cold:.2f} s   speed-up {t1 / t2_cold:.2f}x")
-    print(f"  runner, 2 workers, warm:     {t2:.2f} s   speed-up {t1 / t2:.2f}x (aim >= 1.8x)")
-
+def memory(tmp: Path) -> None:
     for n in (1_000, 10_000):
         p = tmp / f"light{n}.toml"
         out = tmp / f"light{n}.h5"
@@ -106,6 +151,28 @@ def main() -> None:
         arrays = n * (8 * 3 + 1 + 1 + 8)  # gap, gap_k1, gap_k2, reason, done, failure pointer
         print(f"{n:>6} points: peak RSS {rss_kib / 1024:.1f} MiB; "
               f"result arrays {arrays / 2**20:.2f} MiB")
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--grid", default="50x20", help="m x t points of the QWZ sweep")
+    ap.add_argument("--job", type=Path, help="a job file to time instead of the QWZ sweep")
+    ap.add_argument("--workers", default="1,2", help="worker counts, comma-separated")
+    ap.add_argument("--repeat", type=int, default=2)
+    ap.add_argument("--memory", action="store_true", help="also the peak-memory figures")
+    args = ap.parse_args()
+    tmp = Path(tempfile.mkdtemp())
+    counts = [int(c) for c in args.workers.split(",")]
+    if args.job is not None:
+        job, label = load_job(args.job), str(args.job)
+    else:
+        nm, nt = (int(x) for x in args.grid.lower().split("x"))
+        path = tmp / "qwz.toml"
+        path.write_text(QWZ.format(nm=nm, nt=nt, out=tmp / "q.h5"))
+        job, label = load_job(path), f"QWZ gap + chern + [predict], {nm} x {nt}"
+    scaling(job, label, counts, args.repeat)
+    if args.memory:
+        memory(tmp)
 
 
 if __name__ == "__main__":

@@ -7,7 +7,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq, linear_sum_assignment
 
 from .quasienergy import unitary_eig
 
@@ -50,6 +49,8 @@ def transition_points(u_of: Callable[[float], np.ndarray], grid: Sequence[float]
     below the accuracy brentq guarantees, so that a crossing at 0.5 reads 0.5 rather than the
     root finder's last step, 0.5000000000000001.
     """
+    from scipy.optimize import brentq, linear_sum_assignment  # ~0.3 s to import: only here
+
     decimals = max(0, int(np.floor(-np.log10(xtol))))
     grid = [float(x) for x in grid]
     if any(b <= a for a, b in zip(grid, grid[1:])):

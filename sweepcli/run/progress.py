@@ -19,11 +19,17 @@ def _duration(seconds: float) -> str:
 
 
 class Progress:
-    """Counts finished points of ``total``; ``already`` were done before this run started."""
+    """Counts finished points of ``total``; ``already`` were done before this run started.
+
+    ``side = (done, total)`` counts the predicted-transition lines computed beside the points
+    (shown after the points; they do not enter the points' rate).
+    """
 
     def __init__(self, total: int, already: int = 0, *, stream=None, interval: float = 30.0,
-                 enabled: bool = True, label: str = "") -> None:
+                 enabled: bool = True, label: str = "",
+                 side: tuple[int, int] | None = None) -> None:
         self.total, self.already = total, already
+        self.side = list(side) if side is not None else None
         self.label = label  # e.g. "pass 1 of 2, bulk": which pass of a [confirm] run
         self.count = already
         self.stream = stream if stream is not None else sys.stderr
@@ -36,14 +42,33 @@ class Progress:
             self.bar = tqdm(total=total, initial=already, unit="pt", file=self.stream,
                             desc=label or None,
                             dynamic_ncols=True, smoothing=0.1)
+            if self.side is not None:
+                self.bar.set_postfix_str(self._side_text(), refresh=False)
+
+    def _side_text(self) -> str:
+        return f"predicted lines {self.side[0]}/{self.side[1]}"
+
+    def side_update(self, n: int) -> None:
+        """``n`` more prediction lines done."""
+        if self.side is None:
+            return
+        self.side[0] += n
+        if self.bar is not None:
+            self.bar.set_postfix_str(self._side_text())
+        else:
+            self._log()
 
     def update(self, n: int) -> None:
         self.count += n
         if self.bar is not None:
             self.bar.update(n)
             return
+        self._log()
+
+    def _log(self) -> None:
         now = time.monotonic()
-        if self.enabled and (now - self.last >= self.interval or self.count == self.total):
+        last = self.count == self.total and (self.side is None or self.side[0] == self.side[1])
+        if self.enabled and (now - self.last >= self.interval or last):
             self.last = now
             self.stream.write(self.line() + "\n")
             self.stream.flush()
@@ -57,7 +82,8 @@ class Progress:
         pct = 100.0 * self.count / self.total if self.total else 100.0
         eta_s = _duration(eta) if eta == eta else "?"
         what = f" ({self.label})" if self.label else ""
-        return (f"[{stamp}] {self.count}/{self.total} points{what} ({pct:.0f}%), "
+        side = f", {self._side_text()}" if self.side is not None else ""
+        return (f"[{stamp}] {self.count}/{self.total} points{what} ({pct:.0f}%){side}, "
                 f"{rate:.3g} points/s, elapsed {_duration(elapsed)}, ETA {eta_s}")
 
     def close(self) -> None:

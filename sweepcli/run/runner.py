@@ -26,9 +26,10 @@ from .confirm import (
     run_confirmed,
 )
 from .executors import make_executor
+from .predict import Predictions
 from .progress import Progress
 from .refine import base_indices, level_indices
-from .worker import evaluate_chunk
+from .worker import evaluate_task
 
 
 class WorkerDied(SweepError):
@@ -69,14 +70,38 @@ def default_chunk_size(n_points: int, workers: int) -> int:
     return max(1, min(64, math.ceil(n_points / (8 * workers))))
 
 
+def line_chunks(ids: list[int], workers: int) -> list[list[int]]:
+    """Prediction lines in tasks: about 8 tasks per worker (strided, as :func:`chunks`)."""
+    if not ids:
+        return []
+    m = min(len(ids), 8 * workers)
+    return [ids[j::m] for j in range(m)]
+
+
+def interleave(main: list, side: list) -> list:
+    """``main`` with the tasks of ``side`` spread evenly among them (side task ``j`` before
+    main task ``floor(j len(main) / len(side))``), so neither kind waits for the other."""
+    out, j = [], 0
+    for i, task in enumerate(main):
+        while j < len(side) and j * len(main) // len(side) <= i:
+            out.append(side[j])
+            j += 1
+        out.append(task)
+    return out + side[j:]
+
+
 def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, tuple | None]],
                     store: Callable[[int, dict, str], None], *, total: int, already: int,
                     workers: int = 1, chunk_size: int | None = None,
                     checkpoint: Callable[[Results], None] | None = None,
                     checkpoint_every: float = 60.0, progress: bool = True, executor=None,
-                    label: str = "") -> bool:
+                    label: str = "", predictions: Predictions | None = None) -> bool:
     """Evaluate ``groups`` (``(flat indices, measurement names or None for all)``) through the
     executor, passing each record to ``store``; returns whether the run was interrupted.
+
+    The lines of ``predictions`` not yet computed go to the same executor as tasks spread evenly
+    among the point chunks (:func:`interleave`), shown in the progress and collected in
+    ``predictions``, so that the workers compute them beside the points.
 
     ``checkpoint(results)`` is called every ``checkpoint_every`` seconds, at the end and on
     interruption; SIGTERM is turned into the same clean stop as Ctrl-C.
@@ -84,7 +109,9 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
     executor = executor or make_executor(workers)
     n_todo = sum(len(g) for g, _ in groups)
     size = chunk_size or default_chunk_size(n_todo, executor.workers)
-    bar = Progress(total, already, enabled=progress, label=label)
+    side = predictions.pending() if predictions is not None else []
+    bar = Progress(total, already, enabled=progress, label=label,
+                   side=(predictions.total - len(side), predictions.total) if side else None)
     interrupted = False
     last = time.monotonic()
     previous = signal.getsignal(signal.SIGTERM)
@@ -98,11 +125,18 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         previous = None
     died = None
     try:
-        tasks = ((job, c, only) for todo, only in groups for c in chunks(todo, size))
-        for records in executor.imap(evaluate_chunk, tasks):
-            for index, values, failure in records:
+        point_tasks = [("points", job, c, only) for todo, only in groups
+                       for c in chunks(todo, size)]
+        side_tasks = [("predict", job, (ids, predictions.task(ids)), None)
+                      for ids in line_chunks(side, executor.workers)]
+        for kind, out in executor.imap(evaluate_task, interleave(point_tasks, side_tasks)):
+            if kind == "predict":
+                predictions.record(*out)
+                bar.side_update(len(out[0]))
+                continue
+            for index, values, failure in out:
                 store(index, values, failure)
-            bar.update(len(records))
+            bar.update(len(out))
             if checkpoint is not None and time.monotonic() - last >= checkpoint_every:
                 checkpoint(results)
                 last = time.monotonic()
@@ -127,7 +161,7 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
 def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int | None = None,
               checkpoint: Callable[[Results], None] | None = None, checkpoint_every: float = 60.0,
               progress: bool = True, selection: np.ndarray | None = None,
-              executor=None) -> RunSummary:
+              executor=None, predictions: Predictions | None = None) -> RunSummary:
     """Evaluate every pending point of ``job`` into ``results`` (see :func:`evaluate_groups`)."""
     start = time.monotonic()
     todo = pending_indices(results, selection)
@@ -135,7 +169,8 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
     interrupted = evaluate_groups(
         job, results, [(todo, None)], results.record, total=total, already=total - len(todo),
         workers=workers, chunk_size=chunk_size, checkpoint=checkpoint,
-        checkpoint_every=checkpoint_every, progress=progress, executor=executor)
+        checkpoint_every=checkpoint_every, progress=progress, executor=executor,
+        predictions=predictions)
     sel_done = results.done.ravel() if selection is None else results.done.ravel()[selection]
     failed = results.failure.ravel() if selection is None else results.failure.ravel()[selection]
     return RunSummary(done=int(sel_done.sum()), total=total,
@@ -174,7 +209,25 @@ def run_confirm_job(job: Job, results: Results, *, selection: np.ndarray | None 
 def run_job(job: Job, results: Results, *, selection: np.ndarray | None = None,
             **options) -> RunSummary:
     """Run a job: the whole grid (or ``selection``); with ``[refine]``, level by level; with
-    ``[confirm]``, bulk then boundary (:func:`run_confirm_job`)."""
+    ``[confirm]``, bulk then boundary (:func:`run_confirm_job`).
+
+    ``predictions`` (:class:`sweepcli.run.predict.Predictions`), when given, are computed by the
+    same workers beside the first points; lines still missing when every point is done (none
+    were pending) are computed then, through the executor. The summary's time covers both.
+    """
+    start = time.monotonic()
+    summary = _run_points(job, results, selection=selection, **options)
+    predictions = options.get("predictions")
+    if predictions is not None and not summary.interrupted and not predictions.complete:
+        summary.interrupted = evaluate_groups(
+            job, results, [], results.record, total=summary.total, already=summary.done,
+            **{k: v for k, v in options.items() if k not in ("checkpoint", "selection")})
+    summary.seconds = time.monotonic() - start
+    return summary
+
+
+def _run_points(job: Job, results: Results, *, selection: np.ndarray | None = None,
+                **options) -> RunSummary:
     if job.confirm is not None:
         return run_confirm_job(job, results, selection=selection, **options)
     if job.refine is None:

@@ -2,9 +2,10 @@
 
 :class:`RunSession` decides which file a run writes and whether it may (``force``, ``resume``,
 the job's sha256 and shard label must match the file it continues), connects dask when asked,
-runs the sweep with checkpoints and, when it finishes, adds the predicted transitions and the
-finish time. :func:`merge_shards` merges shard files and, for a complete grid, adds what shards
-skip. The command line only turns options into these calls and their results into text.
+runs the sweep with checkpoints (the predicted transitions are computed by the same workers,
+beside the points) and, when it finishes, adds them and the finish time. :func:`merge_shards`
+merges shard files and, for a complete grid, adds what shards skip. The command line only
+turns options into these calls and their results into text.
 """
 
 from __future__ import annotations
@@ -23,6 +24,7 @@ from ..store import Results
 from ..store.merge import SHARDS_TABLE, MergeReport, merge_results
 from ..store.provenance import now
 from .layout import confirm_attrs, results_for_job
+from .predict import Predictions
 from .runner import RunSummary, run_job
 from .shards import Shard, parse_shard
 
@@ -113,16 +115,16 @@ class RunSession:
                     f"measurements: {', '.join(n for n, _ in job.measurements)}"
                     + (f" ({', '.join(job.confirm.measurements)} on selected cells only)"
                        if job.confirm else "") + f"; -> {out}")
+            # Predicted transitions (whole grids only) are tasks beside the points.
+            predictions = Predictions(job) if job.predict is not None and part is None else None
             summary = run_job(job, results, workers=self.workers, chunk_size=self.chunk_size,
                               checkpoint=lambda r: r.write(out),
                               checkpoint_every=self.checkpoint_every, progress=self.progress,
-                              executor=executor,
+                              executor=executor, predictions=predictions,
                               selection=part.indices(job.size) if part else None)
             if not summary.interrupted:
-                if job.predict is not None and part is None:
-                    from .predict import predict_transitions
-
-                    results.tables["transitions"] = predict_transitions(job)
+                if predictions is not None:
+                    results.tables["transitions"] = predictions.table()
                 results.attrs["finished"] = now()
                 results.write(out)
         finally:

@@ -48,3 +48,15 @@ def evaluate_point(job: Job, index: int, only: tuple[str, ...] | None = None) ->
 
 def evaluate_chunk(job: Job, indices, only: tuple[str, ...] | None = None) -> list[Record]:
     return [evaluate_point(job, int(i), only) for i in indices]
+
+
+def evaluate_task(kind: str, job: Job, payload, only: tuple[str, ...] | None = None):
+    """One executor task: ``("points", records)`` of the flat indices ``payload``, or
+    ``("predict", (line ids, rows per line))`` for ``payload = (ids, lines)``
+    (:func:`sweepcli.run.predict.predict_lines`)."""
+    if kind == "predict":
+        from .predict import predict_lines
+
+        ids, lines = payload
+        return kind, (ids, predict_lines(job, lines))
+    return kind, evaluate_chunk(job, payload, only)

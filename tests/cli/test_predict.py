@@ -2,6 +2,7 @@
 +1 or -1, found between grid values by root finding, stored in the file and drawn by map."""
 
 import numpy as np
+import pytest
 from typer.testing import CliRunner
 
 from sweepcli.cli import app
@@ -94,3 +95,101 @@ path = "{out}"
                     for m, k1, k2 in zip(t["m"], t["k1"], t["k2"])})
     assert found == [(-2.0, 0.0, 0.0), (0.0, 0.0, 0.5), (0.0, 0.5, 0.0), (2.0, 0.5, 0.5)]
     assert set(t["gap"]) == {"0"}
+
+
+QWZ_2D = """
+[model]
+name = "qwz"
+[sweep]
+m = { start = -2.9, stop = 2.9, num = 9 }
+t = [0.5, 1.0, 1.25]
+[measure.gap]
+kmesh = 8
+[predict]
+[output]
+path = "OUT"
+"""
+
+
+@pytest.mark.parametrize("text, workers", [(QWZ_2D, 2), (JOB, 2), (QWZ_2D, 1)])
+def test_predictions_beside_the_points_equal_the_serial_table(tmp_path, text, workers):
+    from sweepcli.jobfile import load_job
+    from sweepcli.run.predict import predict_transitions
+    from sweepcli.run.session import RunSession
+
+    job = tmp_path / "job.toml"
+    out = tmp_path / "o.h5"
+    job.write_text(text.replace("OUT", str(out)))
+    serial = predict_transitions(load_job(job))
+    assert len(serial["axis"]) > 0
+    RunSession(job, workers=workers, progress=False, argv=["test"]).run()
+    table = Results.read(out).tables["transitions"]
+    assert table.keys() == serial.keys()
+    assert all(np.array_equal(table[c], serial[c]) for c in serial)
+    if text is QWZ_2D:
+        # Analytic (Qi, Wu and Zhang, PRB 74, 085308 (2006)): closings at m = -2t, 0, 2t
+        # along m at each t, found at the same m along t where the t grid brackets m / 2.
+        along_m = sorted({round(float(m), 9) for a, m, t in zip(table["axis"], table["m"],
+                                                                table["t"]) if a == "m"})
+        assert along_m == [-2.5, -2.0, -1.0, 0.0, 1.0, 2.0, 2.5]
+
+
+class FakeClock:
+    """Stands in for the runner's ``time`` module: 1 s per call, plus what a task adds."""
+
+    def __init__(self):
+        self.now = 0.0
+
+    def monotonic(self):
+        self.now += 1.0
+        return self.now
+
+
+@pytest.mark.parametrize("resume", [False, True])
+def test_reported_time_covers_the_predictions(tmp_path, monkeypatch, resume):
+    # A fake clock advanced by 1000 "seconds" inside each prediction task (one worker, so the
+    # tasks run in this process): the summary's time must hold every one of them, whether
+    # the lines run beside the points or, on a resumed complete file, after them.
+    import sweepcli.run.predict as predict
+    import sweepcli.run.runner as runner
+    from sweepcli.run.session import RunSession
+
+    job = tmp_path / "job.toml"
+    out = tmp_path / "o.h5"
+    job.write_text(QWZ_2D.replace("OUT", str(out)))
+    if resume:
+        RunSession(job, progress=False, argv=["test"]).run()
+        r = Results.read(out)
+        del r.tables["transitions"]
+        r.attrs.pop("finished", None)
+        r.write(out)
+    clock = FakeClock()
+    original = predict.predict_lines
+    tasks = []
+
+    def slow_lines(job, lines):
+        clock.now += 1000.0
+        tasks.append(len(lines))
+        return original(job, lines)
+
+    monkeypatch.setattr(runner, "time", clock)
+    monkeypatch.setattr(predict, "predict_lines", slow_lines)
+    done = RunSession(job, progress=False, resume=resume, force=not resume,
+                      argv=["test"]).run()
+    assert sum(tasks) == 9 + 3  # every line: 3 along m (one per t), 9 along t (one per m)
+    assert done.run.seconds >= 1000.0 * len(tasks)
+    assert done.run.done == done.run.total == 27
+    assert "transitions" in Results.read(out).tables
+
+
+def test_progress_counts_the_predicted_lines(tmp_path):
+    import io
+
+    from sweepcli.run.progress import Progress
+
+    stream = io.StringIO()
+    bar = Progress(4, stream=stream, interval=1e9, side=(0, 3))
+    bar.update(4)
+    assert stream.getvalue() == ""  # points done, lines not yet: no final line
+    bar.side_update(3)
+    assert "4/4 points (100%), predicted lines 3/3" in stream.getvalue()

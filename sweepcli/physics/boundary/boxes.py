@@ -17,7 +17,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 from scipy.sparse.linalg import ArpackNoConvergence
 
 from ...schema import Reason
@@ -332,6 +331,8 @@ def gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], nk: int) -> tuple[fl
 def _gap_and_decay(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray, d: np.ndarray,
                    curvature: bool = True) -> tuple[float, float]:
     """:func:`gap_and_decay` with the grid values ``d = dist(k)`` already known."""
+    from scipy.optimize import minimize_scalar  # here: scipy.optimize takes ~0.3 s to import
+
     j = int(np.argmin(d))
     step = 2 * np.pi / k.size
     res = minimize_scalar(lambda x: float(dist(np.array([x]))[0]),

@@ -18,7 +18,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
 from ...schema import Reason
 from .. import quasienergy as qe
@@ -115,6 +114,8 @@ def _edge_modes(spectrum: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]],
     dist = np.min(np.abs(rel), axis=1)
     j = int(np.argmin(dist))
     step = 2 * np.pi / nk
+    from scipy.optimize import minimize_scalar  # here: scipy.optimize takes ~0.3 s to import
+
     res = minimize_scalar(lambda x: float(np.min(np.abs(levels_at(x)))),
                           bounds=(k[j] - step, k[j] + step), method="bounded",
                           options={"xatol": 1e-10})
