@@ -236,3 +236,30 @@ def test_kagome_job_validates(tmp_path):
                    .replace("OUT", str(tmp_path / "o.h5")))
     result = CliRunner().invoke(app, ["check", str(job)])
     assert result.exit_code == 0, result.output
+
+
+def test_driven_square_polygon_reproduces_driven_box():
+    # A two-step mass drive of bhz_corner (modes at 0 and at pi/T, as in
+    # test_boundary_reference.py): the square's counts per gap equal the box's, with the edge
+    # gaps of the side ribbons equal to those of the two cuts.
+    from sweepcli.physics.drives.steps import StepDrive
+
+    period = 2 * np.pi / 6
+    drive = StepDrive(period, ((0.4 * period, model("bhz_corner", m=-0.5, delta2=0.8)),
+                               (0.6 * period, model("bhz_corner", m=3.0, delta2=0.8))))
+    factors = list(drive.factors())
+    windows = bd.floquet_windows(drive)
+    sq = polygon(factors[0][1], "square")
+    centres = [windows[g].centre for g in windows]
+    box_gaps = bd.floquet_boundary_gaps(factors, period, centres, 12)
+    cut_gaps = bd.floquet_boundary_gaps(factors, period, centres, 12,
+                                        cuts=samples.polygon_cuts(sq, 12))
+    assert np.allclose(box_gaps, cut_gaps, rtol=1e-9)
+    edge = {g: bd.edge_window(windows[g], x[0]) for g, x in zip(windows, box_gaps)}
+    xi = {g: x[1] for g, x in zip(windows, box_gaps)}
+    box = bd.floquet_box_modes(factors, (12, 12), edge, xi=xi, max_side=24)
+    poly = bd.floquet_polygon_modes(factors, sq, 12, edge, xi=xi, max_size=24)
+    for g in edge:
+        assert box[g].reason == poly[g].reason == Reason.OK
+        assert box[g].per_corner.tolist() == poly[g].per_corner[[0, 1, 3, 2]].tolist()
+        assert box[g].total == 4
