@@ -27,7 +27,7 @@ def test_every_quantity_is_documented():
                 # placeholder: line_w0_sj, corner_modes_g_00.
                 name = re.sub(r"_s\d+$", "_sj", q.name)
                 name = re.sub(r"_(0|pi)(?=_|$)", "_g", name) if entry.name in (
-                    "end_modes", "edge_modes", "corner_modes") else name
+                    "end_modes", "edge_modes", "corner_modes", "polygon_modes") else name
                 if f"`{name}`" not in text and f"`{q.name}`" not in text:
                     missing.append(q.name)
     assert not sorted(set(missing))

@@ -81,6 +81,15 @@ class Checker:
                     isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
                 raise self.fail(table, key, param.expectation(), value)
             return [float(v) for v in value]
+        if param.kind == "points":
+            if value is None and param.default is None:
+                return None
+            if not (isinstance(value, list) and len(value) >= 3 and all(
+                    isinstance(p, list) and len(p) == 2 and all(
+                        isinstance(v, (int, float)) and not isinstance(v, bool)
+                        and abs(v) <= MAX_MAGNITUDE for v in p) for p in value)):
+                raise self.fail(table, key, param.expectation(), value)
+            return [[float(v) for v in p] for p in value]
         if param.kind == "matrix":
             self.matrix(table, key, value)
             return value

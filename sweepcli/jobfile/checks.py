@@ -120,6 +120,8 @@ def _check_samples(ck: Checker, job: Job, point: Point) -> None:
     from ..physics import boundary, samples
 
     for name, options in job.measurements:
+        if name == "polygon_modes":
+            _check_polygon(ck, job, point, dict(options))
         if name not in SAMPLE_SHAPES:
             continue
         size_key, max_key, dims = SAMPLE_SHAPES[name]
@@ -139,6 +141,38 @@ def _check_samples(ck: Checker, job: Job, point: Point) -> None:
         except ValueError as exc:
             raise JobError(f"{ck.path}: [measure.{name}] {key} = {opts[key]} needs "
                            f"more memory than this machine has: {exc}.") from None
+
+
+def _check_polygon(ck: Checker, job: Job, point: Point, opts: dict) -> None:
+    """The polygon of ``[measure.polygon_modes]`` on the model's lattice: convex, sides along
+    lattice vectors, long enough, and its largest sample within memory."""
+    from ..physics import boundary, samples
+    from ..physics.measurements.boundary import point_polygon
+
+    table = "measure.polygon_modes"
+    tb = point.drive.factors()[0][1] if point.drive is not None else point.tb
+    key = "vertices" if opts["vertices"] is not None else "shape"
+    try:
+        poly = point_polygon(tb, opts["shape"], opts["vertices"], opts["coordinates"])
+    except ValueError as exc:
+        got = opts[key] if key == "vertices" else opts["shape"]
+        raise ck.fail(table, key, "a convex polygon whose sides run along lattice vectors of "
+                      "the model", got, f" {str(exc)[:1].upper()}{str(exc)[1:]}.") from None
+    if opts.get("energy") is not None and point.drive is not None:
+        raise ck.fail(table, "energy", "absent in a driven job (its windows are centred at 0 "
+                      "and pi/T)", opts["energy"])
+    try:
+        boundary.check_polygon_side(poly, opts["size"])
+    except ValueError as exc:
+        raise JobError(f"{ck.path}: [{table}] size = {opts['size']} is too small: "
+                       f"{exc}.") from None
+    largest = max(opts["size"], opts["max_size"])
+    try:
+        samples.choose_method(tb, samples.polygon_cells(poly, largest)[1],
+                              opts.get("method", "auto"), driven=point.drive is not None)
+    except ValueError as exc:
+        raise JobError(f"{ck.path}: [{table}] max_size = {largest} needs more memory than "
+                       f"this machine has: {exc}.") from None
 
 
 def check_values(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict) -> None:

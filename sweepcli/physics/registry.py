@@ -23,7 +23,7 @@ class Param:
     kind
         ``"real"`` (an int is accepted), ``"int"`` (a float is refused), ``"bool"``, ``"choice"``
         (one of ``choices``), ``"str"``, ``"matrix"`` (a square complex matrix or a Pauli word),
-        ``"vector"`` (a list of reals).
+        ``"vector"`` (a list of reals), ``"points"`` (a list of ``[x, y]`` pairs of reals).
     low, high
         Interval bounds (inclusive unless ``open_low`` / ``open_high``); ``None`` is unbounded.
     sweepable
@@ -52,7 +52,8 @@ class Param:
             return "one of " + ", ".join(repr(c) for c in self.choices)
         base = {"real": "a real number", "int": "an integer", "bool": "true or false",
                 "str": "a string", "matrix": "a square matrix or a Pauli word such as \"zx\"",
-                "vector": "a list of real numbers"}[self.kind]
+                "vector": "a list of real numbers",
+                "points": "a list of at least 3 [x, y] pairs of real numbers"}[self.kind]
         if self.low is None and self.high is None:
             return base
         lo = "-inf" if self.low is None else f"{self.low:g}"

@@ -1,12 +1,18 @@
 """Open samples built from the same :class:`~sweepcli.physics.lattice.TightBinding` as the bulk.
 
-Three geometries, all from ``tb.onsite`` and ``tb.hoppings`` (never a second copy of a model):
+Four geometries, all from ``tb.onsite`` and ``tb.hoppings`` (never a second copy of a model):
 
 * :func:`open_hamiltonian` / :func:`chain` / :func:`flake`: a box of ``L_1 x ... x L_d`` cells,
   open in every direction, as a ``scipy.sparse`` CSR matrix;
 * :func:`ribbon`: ``W`` cells open along one lattice direction and periodic along the other,
   returned as a one-dimensional :class:`TightBinding` supercell whose ``bloch(k_par)`` is the
-  batched ribbon Hamiltonian ``(..., W n, W n)`` as a function of the momentum along the edge.
+  batched ribbon Hamiltonian ``(..., W n, W n)`` as a function of the momentum along the edge
+  (:func:`cut_ribbon`: periodic along the side of a polygon, terminated as that side is);
+* :class:`Polygon` / :func:`polygon_hamiltonian`: the orbitals of a covering box whose
+  Cartesian positions lie inside a convex polygon whose sides run along lattice vectors
+  (built-in :data:`POLYGONS` or given), scaled by a size; a site on a side is kept or dropped by
+  the tie-break :data:`POLYGON_SHIFT`, which makes the square of size ``L`` on a square lattice
+  the box of ``L x L`` cells.
 
 Orbital order (every geometry): sample orbital ``I = c * n + o`` with ``o`` the orbital inside
 the cell and ``c`` the cell's flat index in C order over the box shape, so the *last* lattice
@@ -302,3 +308,270 @@ def choose_method(tb: TightBinding, shape: int | Sequence[int], method: str = "a
         method = "dense" if n <= dense_max and dense_fits else "sparse"
     check_memory(tb, shape, method, driven=driven, limit=limit)
     return method
+
+
+# ----------------------------------------------------------------------------------------------
+# Polygonal samples
+# ----------------------------------------------------------------------------------------------
+
+#: Built-in polygons of unit size: vertices and whether they are in reduced (lattice-vector) or
+#: Cartesian coordinates. Scaled by the size, each side is ``size`` cells long on a lattice where
+#: the side's lattice vector has length 1 (the triangle and hexagon are regular on the
+#: triangular lattice ``a_2 = a_1`` rotated by 60 degrees; the square needs a square lattice).
+POLYGONS = {
+    "triangle": (((0, 0), (1, 0), (0, 1)), "reduced"),
+    "rhombus": (((0, 0), (1, 0), (1, 1), (0, 1)), "reduced"),
+    "hexagon": (((1, 0), (0, 1), (-1, 1), (-1, 0), (0, -1), (1, -1)), "reduced"),
+    "square": (((0, 0), (1, 0), (1, 1), (0, 1)), "cartesian"),
+}
+#: Tie-break of the boundary (lattice constants): a site is inside when it is inside after a
+#: move by this vector, so a site on a side is kept on the sides that face ``-x`` (and ``-y``)
+#: and dropped on the others, like the half-open box ``0 <= c_i < L_i``.
+POLYGON_SHIFT = 1e-7 * np.array([1.0, (math.sqrt(5) - 1) / 20])
+#: Largest entry of the integer direction searched for a side along a lattice vector.
+MAX_SIDE_INDEX = 24
+
+
+class Polygon:
+    """A convex polygon of unit size on the lattice of a 2D model, with its sides' directions.
+
+    Parameters
+    ----------
+    tb : the 2D model (its lattice vectors).
+    vertices : (n, 2) vertices of the unit-size polygon, ``n >= 3``, in either orientation.
+    coordinates : ``"reduced"`` (multiples of the lattice vectors) or ``"cartesian"``.
+
+    Raises ``ValueError`` (one sentence) for fewer than 3 vertices, repeated or collinear
+    vertices, a polygon that is not convex, or a side that is not along a lattice vector.
+
+    Attributes
+    ----------
+    vertices : (n, 2) Cartesian vertices at size 1, counter-clockwise.
+    directions : (n, 2) int, the primitive lattice vector (reduced) along each side ``j``, from
+        vertex ``j`` to vertex ``j + 1``.
+    cells_per_unit : (n,) the length of each side at size 1 in units of its primitive lattice
+        vector: a side has ``size * cells_per_unit[j]`` cells.
+    """
+
+    def __init__(self, tb: TightBinding, vertices, coordinates: str = "reduced") -> None:
+        if tb.dim != 2:
+            raise ValueError(f"a polygonal sample needs a 2D model; this one is {tb.dim}D")
+        v = np.asarray(vertices, dtype=float)
+        if v.ndim != 2 or v.shape[1] != 2 or v.shape[0] < 3:
+            raise ValueError("a polygon needs at least 3 vertices of 2 coordinates each")
+        if coordinates not in ("reduced", "cartesian"):
+            raise ValueError(f"coordinates must be 'reduced' or 'cartesian'; got {coordinates!r}")
+        a = tb.lattice_vectors
+        cart = v @ a if coordinates == "reduced" else v
+        edges = np.roll(cart, -1, axis=0) - cart
+        scale = float(np.abs(cart).max()) or 1.0
+        if np.any(np.linalg.norm(edges, axis=1) <= 1e-9 * scale):
+            raise ValueError("a polygon may not repeat a vertex")
+        turns = edges[:, 0] * np.roll(edges, -1, axis=0)[:, 1] \
+            - edges[:, 1] * np.roll(edges, -1, axis=0)[:, 0]
+        area = 0.5 * float(np.sum(cart[:, 0] * np.roll(cart[:, 1], -1)
+                                  - cart[:, 1] * np.roll(cart[:, 0], -1)))
+        if abs(area) <= 1e-9 * scale**2:
+            raise ValueError("a polygon must enclose a nonzero area")
+        sign = 1.0 if area > 0 else -1.0
+        if np.any(sign * turns <= 1e-9 * scale**2) or \
+                abs(np.sum(np.arctan2(sign * turns, np.einsum(
+                    "ij,ij->i", edges, np.roll(edges, -1, axis=0))))) > 2 * np.pi + 1e-6:
+            raise ValueError("a polygon must be convex, with no three consecutive vertices on "
+                             "a line")
+        if sign < 0:
+            cart = cart[::-1].copy()
+            edges = np.roll(cart, -1, axis=0) - cart
+        inv = np.linalg.inv(a)
+        dirs, lengths = [], []
+        for j, e in enumerate(edges):
+            d = _lattice_direction(e @ inv)
+            if d is None:
+                raise ValueError(f"side {j + 1} of the polygon (from {_fmt(cart[j])} to "
+                                 f"{_fmt(cart[(j + 1) % len(cart)])}, Cartesian) is not along a "
+                                 f"lattice vector, so no ribbon can be cut along it")
+            dirs.append(d)
+            lengths.append(float(np.linalg.norm(e) / np.linalg.norm(np.asarray(d) @ a)))
+        self.vertices = cart
+        self.directions = np.array(dirs, dtype=int)
+        self.cells_per_unit = np.array(lengths)
+        self.lattice = a
+
+    @property
+    def n(self) -> int:
+        return self.vertices.shape[0]
+
+    def side_cells(self, size: float) -> int:
+        """Cells along the shortest side at ``size`` (rounded down)."""
+        return int(math.floor(size * float(self.cells_per_unit.min()) + 1e-9))
+
+    def inward_normals(self) -> np.ndarray:
+        """(n, 2) unit normals of the sides pointing into the polygon."""
+        e = np.roll(self.vertices, -1, axis=0) - self.vertices
+        nrm = np.stack([-e[:, 1], e[:, 0]], axis=1)
+        return nrm / np.linalg.norm(nrm, axis=1)[:, None]
+
+    def row_spacing(self) -> np.ndarray:
+        """(n,) distance between neighbouring lattice rows parallel to each side: the cell
+        area over the length of the side's primitive lattice vector."""
+        area = abs(float(np.linalg.det(self.lattice)))
+        return area / np.linalg.norm(self.directions @ self.lattice, axis=1)
+
+    def inside(self, points: np.ndarray, size: float) -> np.ndarray:
+        """Whether Cartesian ``points`` (m, 2) lie inside the polygon scaled by ``size`` (the
+        boundary tie-break of :data:`POLYGON_SHIFT`)."""
+        q = np.asarray(points, float) + POLYGON_SHIFT
+        nrm = self.inward_normals()
+        d = np.einsum("mjk,jk->mj", q[:, None, :] - size * self.vertices[None], nrm)
+        return np.all(d > 0, axis=1)
+
+
+def _fmt(x: np.ndarray) -> str:
+    return "(" + ", ".join(f"{v:.6g}" for v in x) + ")"
+
+
+def _lattice_direction(r: np.ndarray) -> tuple[int, int] | None:
+    """The primitive integer vector parallel to the reduced vector ``r`` (same sign), or
+    ``None`` when no vector with entries up to :data:`MAX_SIDE_INDEX` is parallel to it."""
+    norm = float(np.linalg.norm(r))
+    best = None
+    for m in range(-MAX_SIDE_INDEX, MAX_SIDE_INDEX + 1):
+        for n in range(-MAX_SIDE_INDEX, MAX_SIDE_INDEX + 1):
+            if (m, n) == (0, 0) or math.gcd(m, n) != 1 or m * r[0] + n * r[1] <= 0:
+                continue
+            if abs(m * r[1] - n * r[0]) <= 1e-9 * norm * math.hypot(m, n):
+                if best is None or abs(m) + abs(n) < abs(best[0]) + abs(best[1]):
+                    best = (m, n)
+    return best
+
+
+def polygon_cells(poly: Polygon, size: float) -> tuple[tuple[int, int], tuple[int, int]]:
+    """The box of cells ``(offset, shape)`` that covers the polygon scaled by ``size``."""
+    red = size * poly.vertices @ np.linalg.inv(poly.lattice)
+    low = np.floor(red.min(axis=0) - 1e-6).astype(int) - 1
+    high = np.ceil(red.max(axis=0) + 1e-6).astype(int)
+    return (int(low[0]), int(low[1])), (int(high[0] - low[0] + 1), int(high[1] - low[1] + 1))
+
+
+def polygon_sites(tb: TightBinding, poly: Polygon, size: float
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The orbitals of the polygonal sample of ``size``.
+
+    Returns ``(keep, cells, positions)``: ``keep`` indexes the orbitals of the covering box
+    (:func:`polygon_cells`, orbital order as for boxes) whose Cartesian position lies inside the
+    polygon; ``cells`` (m, 2) are their integer cells (with the box offset) and ``positions``
+    (m, 2) their Cartesian positions. Sample orbital ``I`` of a polygon is box orbital
+    ``keep[I]``, so orbitals keep the box's C order.
+    """
+    offset, shape = polygon_cells(poly, size)
+    cells, _ = sample_sites(tb, shape)
+    cells = cells + np.asarray(offset)
+    pos = (cells + np.tile(tb.orbital_positions, (math.prod(shape), 1))) @ tb.lattice_vectors
+    keep = np.flatnonzero(poly.inside(pos, size))
+    return keep, cells[keep], pos[keep]
+
+
+def polygon_hamiltonian(tb: TightBinding, poly: Polygon, size: float) -> sp.csr_matrix:
+    """Open polygonal sample: the covering box's Hamiltonian restricted to the orbitals inside
+    the polygon (every hopping that leaves the polygon is dropped). Orbital order as
+    :func:`polygon_sites`."""
+    _, shape = polygon_cells(poly, size)
+    keep, _, _ = polygon_sites(tb, poly, size)
+    h = open_hamiltonian(tb, shape)
+    return h[keep][:, keep].tocsr()
+
+
+def polygon_cuts(poly: Polygon, size: float) -> list[SideCut]:
+    """One :class:`SideCut` per side of the polygon scaled by ``size``, a side and its
+    anti-parallel partner (if any) sharing one cut."""
+    nrm = poly.inward_normals()
+    verts = size * poly.vertices
+    spacing = poly.row_spacing()
+    out: list[SideCut] = []
+    done: set[int] = set()
+    for j in range(poly.n):
+        if j in done:
+            continue
+        d = tuple(int(x) for x in poly.directions[j])
+        partner = next((i for i in range(poly.n) if i != j and
+                        tuple(int(x) for x in poly.directions[i]) == (-d[0], -d[1])), None)
+        far = None
+        if partner is not None:
+            done.add(partner)
+            dist = float((verts[partner] - verts[j]) @ nrm[j])
+            far = dist / spacing[j] - math.floor(dist / spacing[j] + 1e-9)
+        out.append(SideCut(d, (float(nrm[j][0]), float(nrm[j][1])),
+                           float(verts[j] @ nrm[j]), float(spacing[j]), far))
+    return out
+
+
+class SideCut:
+    """The edge of one polygon side, as a ribbon (:func:`cut_ribbon`).
+
+    Attributes
+    ----------
+    direction : primitive lattice vector (reduced) along the side.
+    normal : unit normal into the polygon; offset : ``x . normal`` on the side's line.
+    spacing : distance between lattice rows parallel to the side.
+    far : ``None`` when the polygon has no side anti-parallel to this one; else the fractional
+        part (in rows) of the distance to that side, so the ribbon's far edge is cut as that
+        side is.
+    """
+
+    def __init__(self, direction: tuple[int, int], normal: tuple[float, float], offset: float,
+                 spacing: float, far: float | None) -> None:
+        self.direction, self.normal, self.offset = direction, normal, offset
+        self.spacing, self.far = spacing, far
+
+
+def cut_ribbon(tb: TightBinding, cut: SideCut, width: int
+               ) -> tuple[TightBinding, np.ndarray | None]:
+    """Ribbon periodic along the side of ``cut``, ``width`` rows wide: the orbitals between the
+    side's line and a parallel line (kept by the sample's own tie-break,
+    :data:`POLYGON_SHIFT`), so its near edge is terminated as the polygon side is.
+
+    The lattice is re-based on ``b_1 = direction`` and a ``b_2`` with ``det = 1`` (the same
+    cells) and the rows of ``b_2`` that meet the strip are cut as by :func:`ribbon`, then the
+    orbitals outside the strip are dropped. The far line is ``width`` rows away plus the
+    fractional row offset of the anti-parallel side (``cut.far``); without one the far edge is
+    not a polygon edge and the second value returned marks the ribbon orbitals of the strip's
+    far half (levels with most weight there are not the polygon's; ``None`` otherwise).
+    """
+    m, n = cut.direction
+    g, x, y = _egcd(m, n)
+    if g != 1:
+        raise ValueError(f"direction {cut.direction} is not a primitive lattice vector")
+    basis = np.array([[m, n], [-y, x]])
+    inv = np.linalg.inv(basis)
+    hops: dict[tuple[int, ...], np.ndarray] = {}
+    for r, t in tb.hoppings.items():
+        rn = tuple(int(v) for v in np.rint(np.asarray(r) @ inv))
+        hops[rn] = hops.get(rn, 0) + t
+    pos_new = tb.orbital_positions @ inv
+    rebased = TightBinding(basis @ tb.lattice_vectors, pos_new, tb.onsite, hops, tb.operators)
+    a = rebased.lattice_vectors
+    nrm = np.asarray(cut.normal)
+    step = float(a[1] @ nrm)  # +-spacing per row of b_2
+    base = (pos_new @ a + POLYGON_SHIFT) @ nrm - cut.offset  # orbital distances in row 0
+    depth = (width + (cut.far or 0.0)) * cut.spacing
+    # Rows m (along b_2) whose orbitals can fall inside 0 < d < depth.
+    lo = math.floor(min((-base.max()) / step, (depth - base.min()) / step)) - 1
+    hi = math.ceil(max((-base.min()) / step, (depth - base.max()) / step)) + 1
+    rows = np.arange(lo, hi + 1)
+    d = (rows[:, None] * step + base[None, :]).ravel()
+    keep = np.flatnonzero((d > 0) & (d < depth))
+    full = ribbon(rebased, rows.size, open_axis=1)
+    sub = {r: t[np.ix_(keep, keep)] for r, t in full.hoppings.items()}
+    ops = {k: v[np.ix_(keep, keep)] for k, v in full.operators.items()}
+    out = TightBinding(full.lattice_vectors, full.orbital_positions[keep],
+                       full.onsite[np.ix_(keep, keep)], sub, ops)
+    far = None if cut.far is not None else d[keep] > depth / 2
+    return out, far
+
+
+def _egcd(a: int, b: int) -> tuple[int, int, int]:
+    """``(g, x, y)`` with ``a x + b y = g = gcd(a, b) >= 0``."""
+    if b == 0:
+        return (abs(a), 1 if a >= 0 else -1, 0)
+    g, x, y = _egcd(b, a % b)
+    return g, y, x - (a // b) * y

@@ -39,6 +39,7 @@ SAMPLES = {
     "bbh": dict(gamma=0.4, lam=1.2, delta=0.1),
     "bipartite_square": dict(j1=0.3, j2=0.7, j3=1.1, j4=0.5, delta=0.2),
     "graphene_field": dict(t=1.1, M=0.2, ax=0.3, ay=-0.45),
+    "breathing_kagome": dict(ta=0.3, tb=1.2, mu=0.15),
 }
 
 
@@ -143,7 +144,18 @@ def table_graphene_field(t, M, ax, ay):
     return rows, 2
 
 
-TABLES = {"graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square,
+def table_breathing_kagome(ta, tb, mu):
+    # Ezawa, PRL 120, 026801 (2018): -ta on the bonds of the upward triangle (A, B, C of one
+    # cell), -tb on those of the downward triangles (A to B of the cell -a_1, A to C of the cell
+    # -a_2, B to C of the cell a_1 - a_2).
+    rows = [((0, 0), i, i, mu) for i in range(3)]
+    rows += [((0, 0), 0, 1, -ta), ((0, 0), 0, 2, -ta), ((0, 0), 1, 2, -ta),
+             ((-1, 0), 0, 1, -tb), ((0, -1), 0, 2, -tb), ((1, -1), 1, 2, -tb)]
+    return rows, 3
+
+
+TABLES = {"breathing_kagome": table_breathing_kagome,
+          "graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square,
           "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
           "bhz": table_bhz, "bhz_corner": table_bhz_corner, "bbh": table_bbh}
 
@@ -212,6 +224,15 @@ def formula(name, p, k):
         disp = [(0, 0), (0, -1), (-1, -1), (-1, 0)]
         f = sum(p[f"j{i + 1}"] * np.exp(1j * np.dot(k, r)) for i, r in enumerate(disp))
         return np.array([[p["delta"], f], [np.conj(f), -p["delta"]]])
+    if name == "breathing_kagome":
+        # Ezawa (2018), periodic gauge: H_AB = -(ta + tb e^{-ik1}), H_AC = -(ta + tb e^{-ik2}),
+        # H_BC = -(ta + tb e^{i(k1 - k2)}).
+        ta, tb = p["ta"], p["tb"]
+        ab = -(ta + tb * np.exp(-1j * k[0]))
+        ac = -(ta + tb * np.exp(-1j * k[1]))
+        bc = -(ta + tb * np.exp(1j * (k[0] - k[1])))
+        return p["mu"] * np.eye(3) + np.array([[0, ab, ac], [np.conj(ab), 0, bc],
+                                               [np.conj(ac), np.conj(bc), 0]])
     raise KeyError(name)
 
 
@@ -279,6 +300,7 @@ def test_expected_operators():
     assert ops["bhz_corner"] == {"chiral", "mirror_diag"}
     assert ops["bbh"] == set()  # delta != 0 in the sample breaks the chiral symmetry
     assert set(MODELS["bbh"].func(gamma=0.4).operators) == {"chiral"}
+    assert ops["breathing_kagome"] == set()  # three sublattices: no chiral operator
 
 
 # ---------------------------------------------------------------------------------------------
@@ -307,9 +329,10 @@ def test_haldane_honeycomb_geometry():
     assert np.isclose(np.dot(a[0], a[1]), 0.5)  # 60 degrees between a1 and a2, |a_i| = 1
 
 
-@pytest.mark.parametrize("name", ["ssh", "bbh"])
+@pytest.mark.parametrize("name", ["ssh", "bbh", "breathing_kagome"])
 def test_bonds_join_neighbouring_sites(name):
-    # SSH chain sites half a cell apart; BBH sites on a square lattice of spacing 1/2.
+    # SSH chain sites half a cell apart; BBH sites on a square lattice of spacing 1/2; kagome
+    # sites at the corners of triangles of side 1/2.
     p = dict(SAMPLES[name], **({"delta": 0.0} if name == "bbh" else {}))
     for _, length in bond_lengths(name, p):
         assert np.isclose(length, 0.5)

@@ -13,6 +13,8 @@ boundary as bd; bd.box_modes(...)``); by concern they live in
 * :mod:`~sweepcli.physics.boundary.boxes`: end and corner modes of chains and flakes, the gaps
   and decay lengths that confine them, and the box doubling (:class:`ModeCount`,
   :func:`box_modes`, :func:`floquet_box_modes`);
+* :mod:`~sweepcli.physics.boundary.polygons`: corner modes of polygonal samples, one count per
+  vertex (:func:`polygon_modes`, :func:`floquet_polygon_modes`);
 * :mod:`~sweepcli.physics.boundary.ribbons`: chiral edge modes and edge gaps of ribbons
   (:class:`EdgeModes`, :func:`ribbon_modes`, :func:`floquet_ribbon_modes`).
 
@@ -32,7 +34,15 @@ from .boxes import (
     floquet_boundary_gaps,
     floquet_box_modes,
     gap_and_decay,
+    settle_count,
     static_boundary_gap,
+)
+from .polygons import (
+    check_polygon_side,
+    floquet_polygon_modes,
+    polygon_modes,
+    polygon_regions,
+    polygon_sizes,
 )
 from .ribbons import (
     K_OFFSET,
@@ -56,6 +66,7 @@ from .windows import (
     Window,
     default_kmesh,
     edge_window,
+    energy_window,
     floquet_windows,
     static_window,
 )
@@ -63,9 +74,11 @@ from .windows import (
 __all__ = [
     "DECAY_STEP", "K_OFFSET", "SIGMA_OFFSET", "V0_SEED", "WINDOW_FRACTION",
     "EdgeModes", "FloquetSample", "ModeCount", "Window",
-    "box_modes", "box_sizes", "check_sample_side", "count_boxes", "default_kmesh",
-    "edge_window", "floquet_boundary_gap", "floquet_boundary_gaps",
-    "floquet_box_modes", "floquet_levels",
+    "box_modes", "box_sizes", "check_polygon_side", "check_sample_side", "count_boxes",
+    "default_kmesh",
+    "edge_window", "energy_window", "floquet_boundary_gap", "floquet_boundary_gaps",
+    "floquet_box_modes", "floquet_levels", "floquet_polygon_modes", "polygon_modes",
+    "polygon_regions", "polygon_sizes", "settle_count",
     "floquet_ribbon_modes", "floquet_windows", "gap_and_decay", "low_edge_mask",
     "ribbon_kgrid", "ribbon_modes", "sample_steps", "signed_crossings", "static_boundary_gap",
     "static_levels", "static_window",

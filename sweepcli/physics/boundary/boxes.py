@@ -22,6 +22,7 @@ from scipy.sparse.linalg import ArpackNoConvergence
 from ...schema import Reason
 from .. import quasienergy as qe
 from .. import samples
+from ..drives.evolution import evolve
 from ..lattice import TightBinding
 from . import counts
 from .ribbons import ribbon_kgrid
@@ -113,7 +114,8 @@ CERTIFY_EVALS = 12
 
 
 def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = None,
-                        nk: int = 64) -> tuple[float, float]:
+                        nk: int = 64, cuts: Sequence[samples.SideCut] | None = None
+                        ) -> tuple[float, float]:
     """Gap around ``centre`` that confines boundary modes, and their decay length (cells).
 
     1D model: the bulk levels against ``k``. 2D model: ribbons of ``width`` cells cut along
@@ -121,31 +123,39 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
     a corner mode of a second-order phase lives in the edge gap). A ribbon gap that halves or
     more when the ribbon is twice as wide is the tunnelling of a gapless edge across the
     ribbon, not a gap: it is returned as 0. Returns the smallest gap and the longest decay
-    length over the geometries (:func:`gap_and_decay`).
+    length over the geometries (:func:`gap_and_decay`). ``cuts`` replaces the two cuts by the
+    ribbons of the sides of a polygonal sample (:func:`sweepcli.physics.samples.cut_ribbon`);
+    the levels of a ribbon's far edge that is no polygon edge are left out.
     """
-    def dists_of(h: TightBinding) -> Callable[[np.ndarray], np.ndarray]:
+    def dists_of(h: TightBinding, far: np.ndarray | None) -> Callable[[np.ndarray], np.ndarray]:
         def dists(k: np.ndarray) -> np.ndarray:
-            e = np.linalg.eigvalsh(h.bloch(k[:, None]))
+            if far is None:
+                e = np.linalg.eigvalsh(h.bloch(k[:, None]))
+            else:
+                e, v = np.linalg.eigh(h.bloch(k[:, None]))
+                e = np.where(_far_weight(v, far) > 0.5, np.inf, e)
             return np.min(np.abs(e - centre), axis=-1)[None]
         return dists
 
     found = []
-    for geometry in _geometries(tb, width):
-        lip = _slope_bound([(1.0, geometry[-1])])
-        found.append(_geometry_gaps([dists_of(h) for h in geometry], 1, nk, lip)[0])
+    for geometry in _geometries(tb, width, cuts):
+        lip = _slope_bound([(1.0, geometry[-1][0])])
+        found.append(_geometry_gaps([dists_of(h, far) for h, far in geometry], 1, nk, lip)[0])
     return _settled_all([found])[0]
 
 
 def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: float,
                          centre: float, width: int | None = None,
-                         nk: int = 64) -> tuple[float, float]:
+                         nk: int = 64, cuts: Sequence[samples.SideCut] | None = None
+                         ) -> tuple[float, float]:
     """:func:`static_boundary_gap` of a drive, around quasienergy ``centre`` (0 or ``pi/T``)."""
-    return floquet_boundary_gaps(factors, period, [centre], width, nk)[0]
+    return floquet_boundary_gaps(factors, period, [centre], width, nk, cuts)[0]
 
 
 def floquet_boundary_gaps(factors: Sequence[tuple[float, TightBinding]], period: float,
                           centres: Sequence[float], width: int | None = None,
-                          nk: int = 64) -> list[tuple[float, float]]:
+                          nk: int = 64, cuts: Sequence[samples.SideCut] | None = None
+                          ) -> list[tuple[float, float]]:
     """:func:`floquet_boundary_gap` at several centres, sharing the ribbon evolutions.
 
     ``U(k_par)`` of each ribbon is evolved once per momentum for all centres; the distance of
@@ -155,20 +165,29 @@ def floquet_boundary_gaps(factors: Sequence[tuple[float, TightBinding]], period:
     it is below ``ARCCOS_GUARD / T``. Returns ``[(gap, xi), ...]`` in the order of ``centres``.
     """
     centres = [float(c) for c in centres]
-    per_step = [_geometries(f, width) for _, f in factors]
+    per_step = [_geometries(f, width, cuts) for _, f in factors]
     found = []
     for j in range(len(per_step[0])):
-        geometry = [[(float(t), g[j][w]) for (t, _), g in zip(factors, per_step)]
+        geometry = [[(float(t), g[j][w][0]) for (t, _), g in zip(factors, per_step)]
                     for w in range(len(per_step[0][j]))]
+        fars = [per_step[0][j][w][1] for w in range(len(per_step[0][j]))]
         lip = _slope_bound(geometry[-1]) / period
-        found.append(_geometry_gaps([_floquet_dists(parts, period, centres)
-                                     for parts in geometry], len(centres), nk, lip))
+        found.append(_geometry_gaps([_floquet_dists(parts, period, centres, far)
+                                     for parts, far in zip(geometry, fars)],
+                                    len(centres), nk, lip))
     return _settled_all(list(zip(*found)))
 
 
+def _far_weight(v: np.ndarray, far: np.ndarray) -> np.ndarray:
+    """``(..., m)`` weight of each eigenvector (columns of ``v``) on the orbitals ``far``."""
+    return np.sum(np.abs(v[..., far, :]) ** 2, axis=-2)
+
+
 def _floquet_dists(parts: list[tuple[float, TightBinding]], period: float,
-                   centres: list[float]) -> Callable[[np.ndarray], np.ndarray]:
-    """``k -> (len(centres), nk)`` distances of the nearest quasienergy from each centre."""
+                   centres: list[float], far: np.ndarray | None = None
+                   ) -> Callable[[np.ndarray], np.ndarray]:
+    """``k -> (len(centres), nk)`` distances of the nearest quasienergy from each centre
+    (leaving out the levels with most weight on ``far``, when given)."""
     signs = []
     for c in centres:
         turn = c * period / np.pi
@@ -179,6 +198,11 @@ def _floquet_dists(parts: list[tuple[float, TightBinding]], period: float,
         return np.min(np.abs(qe.wrap_quasienergy(eps - c, period)), axis=-1)
 
     def dists(k: np.ndarray) -> np.ndarray:
+        if far is not None:
+            phases, v = qe.unitary_eig(evolve([(t, h.bloch(k[:, None])) for t, h in parts]))
+            eps = np.where(_far_weight(v, far) > 0.5, np.nan, -phases / period)
+            return np.array([np.nanmin(np.abs(qe.wrap_quasienergy(eps - c, period)), axis=-1,
+                                       initial=np.inf) for c in centres])
         u = _similar_floquet(parts, k)
         out = np.empty((len(centres), k.size))
         herm = None
@@ -286,11 +310,18 @@ def _halved(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray, d: np.ndarr
     return gap < 2 * threshold
 
 
-def _geometries(tb: TightBinding, width: int | None) -> list[list[TightBinding]]:
-    """The bulk chain (1D), or for each cut direction ribbons of ``width`` and ``2 width``."""
+def _geometries(tb: TightBinding, width: int | None,
+                cuts: Sequence[samples.SideCut] | None = None
+                ) -> list[list[tuple[TightBinding, np.ndarray | None]]]:
+    """The bulk chain (1D), or for each cut direction ribbons of ``width`` and ``2 width``
+    (cut along ``a_1`` and ``a_2``, or along each polygon side of ``cuts``), each with the
+    orbitals of a far edge whose levels are left out (``None``: none are)."""
     if tb.dim == 1:
-        return [[tb]]
-    return [[samples.ribbon(tb, int(w), axis) for w in (width, 2 * width)] for axis in (0, 1)]
+        return [[(tb, None)]]
+    if cuts is not None:
+        return [[samples.cut_ribbon(tb, c, int(w)) for w in (width, 2 * width)] for c in cuts]
+    return [[(samples.ribbon(tb, int(w), axis), None) for w in (width, 2 * width)]
+            for axis in (0, 1)]
 
 
 def _settled_all(found: list[list[tuple[tuple[float, float], bool]]]
@@ -372,17 +403,29 @@ def count_boxes(shape: Sequence[int], window: Window, xi: float,
     if window.closed(gap_tol):
         return ModeCount(None, None, window=window, reason=Reason.GAP_CLOSED)
     boxes = _sizes_to_try(shape, max_side, xi, chiral is not None)
+    return settle_count(boxes, window, xi, levels_of, method_of,
+                        lambda box: counts.box_regions(cells_of(box), box), chiral=chiral)
+
+
+def settle_count(samples_: Sequence[tuple[int, ...]], window: Window, xi: float,
+                 levels_of: Callable[[tuple[int, ...], str], tuple[np.ndarray, np.ndarray]],
+                 method_of: Callable[[tuple[int, ...]], str],
+                 regions_of: Callable[[tuple[int, ...]], counts.Regions], *,
+                 chiral: np.ndarray | None = None) -> ModeCount:
+    """Count on each sample in turn (named by its size tuple) until one is not
+    ``FINITE_SIZE``; the shared loop of :func:`count_boxes` and polygonal samples."""
     result = ModeCount(None, None, window=window, reason=Reason.FINITE_SIZE)
-    for box in boxes:
+    for box in samples_:
         method = method_of(box)
         try:
             levels, vectors = levels_of(box, method)
         except ArpackNoConvergence:
             return ModeCount(None, None, method=method, window=window,
                              reason=Reason.NOT_CONVERGED, shape=box)
-        pin = counts.pin_bound(window.gap, xi, min(box))
-        c = counts.count(levels, vectors, cells_of(box), box, window.halfwidth, pin=pin,
-                         chiral=chiral)
+        regions = regions_of(box)
+        pin = counts.pin_bound(window.gap, xi, regions.side)
+        c = counts.count_regions(levels, vectors, regions, window.halfwidth, pin=pin,
+                                 chiral=chiral)
         result = ModeCount(c.per_corner, c.total, levels, c.kinds, method, window, c.reason,
                            c.states, c.weight, c.region, box, vectors)
         if c.reason != Reason.FINITE_SIZE:

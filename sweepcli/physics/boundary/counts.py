@@ -57,11 +57,17 @@ common practice with no published source.
 
 Geometry
 --------
-Corners of a box of ``L_1 x ... x L_d`` cells are numbered ``sum_i b_i 2^i`` with ``b_i = 1`` at
-the high end of direction ``i`` (chain: 0 = left, 1 = right; flake: 0 = (low a_1, low a_2), 1 =
-(high, low), 2 = (low, high), 3 = (high, high)). A cell belongs to the half-box (quadrant) of its
+The rule sees a sample through its :class:`Regions`: the corner region of every orbital, its
+corner distance and its face distance (in rows of cells), and the shortest side. Corners of a
+box of ``L_1 x ... x L_d`` cells are numbered ``sum_i b_i 2^i`` with ``b_i = 1`` at the high end
+of direction ``i`` (chain: 0 = left, 1 = right; flake: 0 = (low a_1, low a_2), 1 = (high, low),
+2 = (low, high), 3 = (high, high)). A cell belongs to the half-box (quadrant) of its
 nearest corner; its corner distance is the Chebyshev distance ``max_i min(c_i, L_i - 1 - c_i)``
-and its face distance ``min_i min(c_i, L_i - 1 - c_i)``.
+and its face distance ``min_i min(c_i, L_i - 1 - c_i)`` (:func:`box_regions`). A polygonal
+sample (:func:`sweepcli.physics.boundary.polygons.polygon_regions`) numbers its corners by its
+vertices and gives each orbital to its nearest vertex (a Voronoi partition, which is the
+half-box partition on a square); its distances count the rows of cells between an orbital and
+the sides of the polygon.
 """
 
 from __future__ import annotations
@@ -139,6 +145,33 @@ def pin_bound(gap: float, xi: float, side: int) -> float:
     return 0.5 * gap * max(decay, PIN_FLOOR)
 
 
+@dataclass(frozen=True)
+class Regions:
+    """How the counting rule sees a sample's orbitals.
+
+    Attributes
+    ----------
+    corner : (N,) int, the corner region of every orbital (``0 .. ncorner - 1``).
+    cdist : (N,) int, its corner distance (rows of cells from the sides meeting at its corner).
+    fdist : (N,) int, its face distance (rows of cells from the nearest side).
+    ncorner : number of corners.
+    side : shortest side in cells (corner regions reach up to a quarter of it).
+    """
+
+    corner: np.ndarray
+    cdist: np.ndarray
+    fdist: np.ndarray
+    ncorner: int
+    side: int
+
+
+def box_regions(cells: np.ndarray, shape: Sequence[int]) -> Regions:
+    """The :class:`Regions` of a box of ``shape`` cells (module docstring, Geometry)."""
+    shape_a = np.asarray([int(x) for x in shape])
+    corner, cdist, fdist = _half_index(np.asarray(cells), shape_a)
+    return Regions(corner, cdist, fdist, 2 ** shape_a.size, int(shape_a.min()))
+
+
 def _half_index(cells: np.ndarray, shape: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Corner number, corner distance and face distance of every orbital (module docstring)."""
     to_low = cells
@@ -201,14 +234,20 @@ def count(levels: np.ndarray, vectors: np.ndarray, cells: np.ndarray, shape: Seq
     -------
     Count
     """
-    shape_a = np.asarray([int(x) for x in shape])
-    ncorner = 2 ** shape_a.size
+    return count_regions(levels, vectors, box_regions(cells, shape), halfwidth, pin=pin,
+                         chiral=chiral)
+
+
+def count_regions(levels: np.ndarray, vectors: np.ndarray, regions: Regions, halfwidth: float,
+                  *, pin: float, chiral: np.ndarray | None = None) -> Count:
+    """:func:`count` on a sample of any shape, seen through its :class:`Regions`."""
+    ncorner = regions.ncorner
     m = levels.size
     kinds = np.full(m, BULK, dtype=int)
     if m == 0:
         return Count(np.zeros(ncorner, int), 0, 0, float("nan"), 0, kinds, Reason.OK)
-    corner, cdist, fdist = _half_index(np.asarray(cells), shape_a)
-    rmax = max(1, int(shape_a.min()) // 4)
+    corner, cdist, fdist = regions.corner, regions.cdist, regions.fdist
+    rmax = max(1, int(regions.side) // 4)
     groups = _clusters(levels, halfwidth)
     weights = [_projector_diagonal(vectors, g) for g in groups]
     # inside[j, r - 1]: fraction of cluster j within corner distance < r, for r = 1 .. rmax

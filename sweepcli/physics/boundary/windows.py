@@ -8,7 +8,10 @@ counted, while modes bound to the boundary, which sit near the gap centre, are).
 * Static: the gap above the lowest ``nocc`` bands is the *indirect* gap
   ``min_k E_nocc(k) - max_k E_{nocc-1}(k)`` (never above the direct gap of
   :func:`sweepcli.physics.spectrum.band_gap`), and the centre is its midpoint (energy 0 for a
-  chiral or particle-hole symmetric model).
+  chiral or particle-hole symmetric model). :func:`energy_window` instead centres the window on
+  a given energy inside a gap (modes pinned there by a model's own structure, such as the
+  zero-energy corner modes of the breathing kagome lattice); its gap is then twice the distance
+  to the nearest band, the gap of a spectrum symmetric about that energy.
 * Driven (period ``T``, ``U = exp(-i H_F T)``, quasienergies ``eps`` in ``(-pi/T, pi/T]``): the
   gap at 0 is ``2 min_{k,n} |eps_n(k)|`` and the gap at ``pi/T`` is
   ``2 min_{k,n} (pi/T - |eps_n(k)|)``; each window is centred on its gap.
@@ -28,8 +31,8 @@ import numpy as np
 from .. import quasienergy as qe
 from ..drives.base import Drive
 from ..drives.evolution import Slicing, decide_slicing
-from ..lattice import TightBinding
-from ..spectrum import band_edges, band_gap
+from ..lattice import TightBinding, kmesh
+from ..spectrum import band_edges, band_gap, energies, polish_minima, velocity_bound
 
 WINDOW_FRACTION = 0.5
 
@@ -85,6 +88,40 @@ def static_window(tb: TightBinding, nocc: int | None = None, fraction: float = W
     direct = band_gap(tb, nocc, n).gap if direct_gap is None else float(direct_gap)
     gap = max(0.0, min(bottom - top, direct))
     return Window(0.5 * (top + bottom), fraction * gap / 2 if gap > 0 else float("nan"), gap)
+
+
+def energy_window(tb: TightBinding, energy: float, fraction: float = WINDOW_FRACTION,
+                  kmesh_n: int | None = None) -> Window:
+    """Window centred on ``energy`` of a static model (see module docstring).
+
+    The bands below and above ``energy`` are told apart on the mesh, and their nearest edges
+    are refined in continuous k (:func:`~sweepcli.physics.spectrum.polish_minima`); with ``d``
+    the distance from ``energy`` to the nearest band, the window has half-width
+    ``fraction * d`` and gap ``2 d``. An energy inside a band (on the mesh or after refining)
+    gives a closed window (gap 0).
+    """
+    n = default_kmesh(tb.dim) if kmesh_n is None else int(kmesh_n)
+    mesh = kmesh(n, tb.dim)
+    e = energies(tb, mesh)
+    low = e.max(axis=tuple(range(e.ndim - 1))) < energy
+    high = e.min(axis=tuple(range(e.ndim - 1))) > energy
+    closed = Window(float(energy), float("nan"), 0.0)
+    if not np.all(low | high):
+        return closed
+    v = velocity_bound(tb.hoppings)
+    dists = []
+    nocc = int(low.sum())
+    if nocc > 0:
+        top = -polish_minima(lambda k: -energies(tb, k)[..., nocc - 1], -e[..., nocc - 1],
+                             mesh, v)[0]
+        dists.append(energy - top)
+    if nocc < tb.norb:
+        bottom = polish_minima(lambda k: energies(tb, k)[..., nocc], e[..., nocc], mesh, v)[0]
+        dists.append(bottom - energy)
+    d = min(dists)
+    if not d > 0:
+        return closed
+    return Window(float(energy), fraction * d, 2.0 * d)
 
 
 def floquet_windows(drive: Drive, fraction: float = WINDOW_FRACTION, *,

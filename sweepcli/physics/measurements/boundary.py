@@ -364,3 +364,142 @@ def corner_modes(point: Point, *, size: int = 16, max_size: int = 48,
     out["corner_modes_method"] = _method_code(results)
     out["reason"] = _reasons(results)
     return out
+
+
+_SHAPES = (*samples.POLYGONS, "custom")
+
+
+def point_polygon(tb: TightBinding, shape: str, vertices: Any, coordinates: str
+                  ) -> samples.Polygon:
+    """The polygon of ``[measure.polygon_modes]`` on the lattice of ``tb`` (``ValueError`` for
+    a bad one, a custom shape without vertices or vertices with a built-in shape)."""
+    if shape == "custom":
+        if vertices is None:
+            raise ValueError("shape = \"custom\" needs vertices")
+        return samples.Polygon(tb, vertices, coordinates)
+    if vertices is not None:
+        raise ValueError(f"vertices are given, so shape must be \"custom\", not {shape!r}")
+    verts, coords = samples.POLYGONS[shape]
+    return samples.Polygon(tb, verts, coords)
+
+
+def _polygon_quantities(dim: int, driven: bool = False) -> tuple[Quantity, ...]:
+    qs = []
+    for g in _GAPS[driven]:
+        qs += [Quantity(f"polygon_modes_{g}", "int32", "1",
+                        f"corner modes of a polygonal flake {_AT[g]}, all corners", g),
+               Quantity(f"polygon_modes_{g}_min", "int32", "1",
+                        f"fewest corner modes {_AT[g]} on one corner of the polygon", g),
+               Quantity(f"polygon_modes_{g}_max", "int32", "1",
+                        f"most corner modes {_AT[g]} on one corner of the polygon", g),
+               *_trust_quantities("polygon_modes", g, "size", "polygon size used"),
+               Quantity(f"polygon_modes_{g}_edge_gap", "float64", "energy",
+                        f"gap confining the corner modes {_AT[g]}: the smaller of the bulk gap "
+                        f"and the edge gaps of ribbons along the polygon's sides", g)]
+    qs.append(Quantity("polygon_modes_method", "int32", "1", "solver: 0 dense, 1 Lanczos"))
+    return tuple(qs)
+
+
+@MEASUREMENTS.register(
+    "polygon_modes",
+    description="modes bound to the corners of a polygonal flake (triangle, hexagon, ...), "
+                "counted per vertex",
+    source="Benalcazar, Bernevig and Hughes, Science 357, 61 (2017); Ezawa, PRL 120, 026801 "
+           "(2018) (breathing kagome triangles)",
+    params=(Param("shape", kind="choice", default="triangle", choices=_SHAPES,
+                  doc="built-in polygon, or \"custom\" with vertices", sweepable=False),
+            Param("vertices", kind="points", default=None,
+                  doc="vertices [[x, y], ...] of a convex polygon of size 1 whose sides run "
+                      "along lattice vectors (shape = \"custom\")", sweepable=False),
+            Param("coordinates", kind="choice", default="reduced",
+                  choices=("reduced", "cartesian"),
+                  doc="vertices in multiples of the lattice vectors or in Cartesian "
+                      "coordinates", sweepable=False),
+            Param("size", kind="int", default=12, low=4,
+                  doc="scale of the polygon (cells along a side of a built-in polygon)",
+                  sweepable=False),
+            Param("max_size", kind="int", default=48, low=8,
+                  doc="largest size the polygon may be doubled to until the count is settled",
+                  sweepable=False),
+            Param("energy", default=None,
+                  doc="energy of the modes (static jobs): the window is centred on it, inside "
+                      "a bulk gap; default the centre of the gap at the filling",
+                  units="energy", sweepable=False),
+            _WINDOW,
+            _METHOD),
+    quantities=_polygon_quantities, reason_groups=gap_groups, dims=(2,), driven=None,
+    operators=(),
+)
+def polygon_modes(point: Point, *, shape: str = "triangle", vertices: Any = None,
+                  coordinates: str = "reduced", size: int = 12, max_size: int = 48,
+                  energy: float | None = None, window: float = bd.WINDOW_FRACTION,
+                  method: str = "auto") -> dict[str, Any]:
+    """Corner modes of a polygonal flake: total and the fewest and most on one vertex.
+
+    Counted as ``corner_modes`` (:mod:`sweepcli.physics.boundary.polygons`): chiral charges
+    per corner region when the model (or the drive's frame) has a chiral operator, otherwise
+    pinning at the window centre, which ``energy`` sets for a static job (modes pinned off the
+    gap centre, such as the zero-energy corner modes of the breathing kagome lattice).
+    """
+    missing = _unsliced("polygon_modes", point)
+    if missing is not None:
+        return missing
+    results = polygon_counts(point, dict(shape=shape, vertices=vertices,
+                                         coordinates=coordinates, size=size,
+                                         max_size=max_size, energy=energy, window=window,
+                                         method=method))
+    out: dict[str, Any] = {}
+    for g, r in results.items():
+        pc = r.per_corner
+        out[f"polygon_modes_{g}"] = r.total
+        out[f"polygon_modes_{g}_min"] = None if pc is None else int(pc.min())
+        out[f"polygon_modes_{g}_max"] = None if pc is None else int(pc.max())
+        out.update(_trust("polygon_modes", g, "size", r))
+        out[f"polygon_modes_{g}_edge_gap"] = float("nan") if r.window is None else r.window.gap
+    out["polygon_modes_method"] = _method_code(results)
+    out["reason"] = _reasons(results)
+    return out
+
+
+def polygon_counts(point: Point, options: dict[str, Any]) -> dict[str, bd.ModeCount]:
+    """The counts of ``polygon_modes`` at a point (``per_corner`` in vertex order), with their
+    eigenvectors: ``{"0": ModeCount}`` static, ``{"0", "pi"}`` driven."""
+    driven = point.drive is not None
+    factors = point_factors(point) if driven else None
+    tb0 = factors[0][1] if driven else point.tb
+    poly = point_polygon(tb0, options["shape"], options["vertices"], options["coordinates"])
+    size, fraction = int(options["size"]), options["window"]
+    bd.check_polygon_side(poly, size)
+    if options["energy"] is not None and not driven:
+        wins = {"0": point.memo(("boundary.energy_window", options["energy"], fraction),
+                                lambda: bd.energy_window(point.tb, options["energy"], fraction))}
+    else:
+        wins = dict(point_windows(point, fraction))
+    bulk = dict(wins)
+    xi = {g: math.inf for g in wins}
+    open_gaps = [g for g, w in wins.items() if not w.closed(point.gap_tol)]
+    cuts = samples.polygon_cuts(poly, size)
+    if driven and open_gaps:
+        found = bd.floquet_boundary_gaps(factors, point.drive.period,
+                                         [wins[g].centre for g in open_gaps], size, cuts=cuts)
+    else:
+        found = [bd.static_boundary_gap(point.tb, wins[g].centre, size, cuts=cuts)
+                 for g in open_gaps]
+    for g, (gap, x) in zip(open_gaps, found):
+        xi[g] = x
+        wins[g] = bd.edge_window(wins[g], gap)
+    frame, chiral = _chiral_frame(point)
+    factors = frame or factors
+    w0 = wins["0"]
+    if not driven and not abs(w0.centre) <= 1e-9 * (1.0 + w0.gap):
+        chiral = None  # chiral charges count zero modes only
+    kw = dict(max_size=options["max_size"], chiral=chiral, method=options["method"],
+              gap_tol=point.gap_tol)
+    if driven:
+        results = bd.floquet_polygon_modes(factors, poly, size, wins, xi=xi, **kw)
+    else:
+        results = {"0": bd.polygon_modes(tb0, poly, size, wins["0"], xi=xi["0"], **kw)}
+    for g, r in results.items():
+        if r.reason == Reason.GAP_CLOSED and not bulk[g].closed(point.gap_tol):
+            results[g] = replace(r, reason=Reason.EDGE_GAP_CLOSED)
+    return results
