@@ -184,7 +184,10 @@ def _check_magnitudes(ck: Checker, job: Job, values: Mapping[str, complex], inde
     exprs = [e for e in (d.period, d.omega) if e is not None]
     if d.protocol is not None:
         exprs += d.protocol.expressions()
-    sets = [values] + [{**values, **{k: e(values) for k, e in over}} for over in d.overrides]
+    # As the model is built (see _check_hermitian): a coefficient every step sets takes the
+    # first step's value in the static model.
+    static = tuple((k, e) for k, e in d.overrides[0] if k not in values) if d.always_set else ()
+    sets = [{**values, **{k: e(values) for k, e in over}} for over in [static, *d.overrides]]
     coeffs = ([e for _, e in job.custom.onsite] + [e for _, _, e in job.custom.hoppings]
               if job.custom is not None else [])
     for e, at in [(e, values) for e in exprs] + [(e, v) for e in coeffs for v in sets]:
