@@ -245,7 +245,9 @@ class Results(Grid):
                 return cls._from_file(f)
         except ResultsError:
             raise
-        except (OSError, KeyError, ValueError) as exc:
+        except (OSError, KeyError, ValueError, RuntimeError, TypeError, IndexError,
+                AttributeError, UnicodeDecodeError) as exc:
+            # h5py reports damaged metadata as RuntimeError, a wrong dtype as TypeError.
             raise ResultsError(f"{path}: cannot be read as a sweepcli results file; it may be "
                                f"truncated or corrupt ({exc}).") from None
 
@@ -262,10 +264,23 @@ class Results(Grid):
                                       _text(ds.attrs["long_name"]), _text(ds.attrs["measurement"]),
                                       tuple(_text(ds.attrs.get("ancillary_variables",
                                                                "")).split())))
+        for a in axes:
+            if a.values.ndim != 1 or a.values.dtype.kind != "f" or len(a.values) == 0:
+                raise ValueError(f"axis {a.name!r} is not a list of numbers")
         out = cls(axes, variables, attrs)
+
+        def grid(name: str, kinds: str) -> np.ndarray:
+            ds = f[name]
+            if ds.shape != out.shape or ds.dtype.kind not in kinds:
+                raise ValueError(f"dataset {name!r} is {ds.dtype} of shape {ds.shape}, not "
+                                 f"numbers of the grid's shape {out.shape}")
+            return ds[()]
+
         for v in variables:
-            out.data[v.name] = f[v.name][()]
-        out.done = f["done"][()]
+            out.data[v.name] = grid(v.name, "fiu")
+        out.done = grid("done", "iu")
+        if f["failure"].shape != out.shape or not h5py.check_string_dtype(f["failure"].dtype):
+            raise ValueError(f"dataset 'failure' is not text of the grid's shape {out.shape}")
         out.failure = np.array(f["failure"].asstr()[()], dtype=object).reshape(out.shape)
         for name, group in f.items():
             if isinstance(group, h5py.Group):
