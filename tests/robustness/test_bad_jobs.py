@@ -422,3 +422,12 @@ def test_absurd_custom_coefficients_are_refused_at_load(tmp_path):
     msg = run_bad(tmp_path, driven.replace('coeff = "w"', 'coeff = "10 * w"'))
     assert msg.startswith("JOB: [model.hopping.0] coeff must be an expression of magnitude at "
                           "most 1e+12; got '10 * w'. It evaluates to 1e+13"), msg
+
+
+def test_harmonic_term_param_of_another_type(tmp_path):
+    # A list as [[drive.term]] param ended in "TypeError: unhashable type" (found by fuzzing).
+    driven = GOOD.replace("[measure.gap]", "[measure.quasienergy_gaps]") + (
+        '[drive]\nkind = "harmonic"\nperiod = 1.0\n[[drive.term]]\nparam = [1, "a"]\n'
+        'amplitude = 0.5\n')
+    assert run_bad(tmp_path, driven) == ("JOB: [drive.term.0] param must be a model parameter "
+                                         "(m, t); got [1, 'a'].")
