@@ -55,6 +55,14 @@ def run(ctx: typer.Context,
         verbose: Annotated[bool, typer.Option(
             "--verbose", "-v",
             help="Say what is about to be computed (as `sweepcli -v run`).")] = False,
+        heartbeat: Annotated[float, typer.Option(
+            "--heartbeat", min=0.0,
+            help="Seconds between log lines (points done, rate, ETA) when there is no progress "
+                 "bar (--no-progress or not a terminal); 0: none.")] = 60.0,
+        dask_lost_timeout: Annotated[float, typer.Option(
+            "--dask-lost-timeout", min=0.0,
+            help="Seconds a dask run waits with no worker before it saves the finished points "
+                 "and stops (exit 3).")] = 60.0,
         failed_ok: Annotated[bool, typer.Option(
             "--failed-ok",
             help="Exit 0 when the run finished but some points failed (default: exit 4; the "
@@ -62,14 +70,16 @@ def run(ctx: typer.Context,
         ) -> None:
     """Evaluate every grid point of JOB (or one shard of them) into one HDF5 results file.
 
-    Exit codes: 0 done, 2 bad input, 3 interrupted (resume with --resume), 4 done but some
-    points failed (see `sweepcli show`)."""
+    Exit codes: 0 done, 2 bad input, 3 interrupted (Ctrl-C, SIGTERM, all dask workers lost;
+    resume with --resume), 4 done but some points failed (see `sweepcli show`)."""
+    from ..run.executors import WorkersLost
     from ..run.session import RunSession
 
     session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
                          shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
                          progress=progress and not quiet(ctx), scheduler=scheduler,
-                         dask_cluster=dask_cluster)
+                         dask_cluster=dask_cluster, lost_timeout=dask_lost_timeout,
+                         heartbeat=0.0 if quiet(ctx) else heartbeat)
     if verbose and quiet(ctx):
         typer.echo("error: give --quiet or --verbose, not both.", err=True)
         raise typer.Exit(EXIT_ERROR)
@@ -77,14 +87,21 @@ def run(ctx: typer.Context,
     say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:
         done = session.run(say)
+    except WorkersLost as exc:
+        if ctx.obj is not None and ctx.obj.debug:
+            raise
+        typer.echo(f"interrupted: {exc}", err=True)
+        raise typer.Exit(EXIT_INTERRUPTED) from None
     except SweepError as exc:
         fail(ctx, exc)
         return
     summary, out = done.run, done.output
     failed = f", {summary.failed} failed (see `sweepcli show {out}`)" if summary.failed else ""
     if summary.interrupted:
-        typer.echo(f"interrupted: {summary.done}/{summary.total} points saved in {out}{failed}. "
-                   f"Resume with: {done.resume_command}", err=True)
+        when = f" {summary.reason}" if summary.reason else ""
+        saved = (f"{summary.done}/{summary.total} points saved in {out}{failed}" if done.saved
+                 else f"{out} was not written")
+        typer.echo(f"interrupted{when}: {saved}. Resume with: {done.resume_command}", err=True)
         raise typer.Exit(EXIT_INTERRUPTED)
     if summary.chosen is not None and not quiet(ctx):
         typer.echo(f"boundary measurements: {summary.chosen} cells selected, computed on "

@@ -2,8 +2,9 @@
 handling all commands share.
 
 Exit codes: 0 success; 1 a comparison found differences; 2 bad input or an unreadable file (one
-line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (finished points are
-saved; rerun with ``--resume``); 4 a run finished but some points failed (the results file holds
+line on stderr, ``--debug`` shows the traceback); 3 a run was interrupted (Ctrl-C, SIGTERM, also
+while writing the results, or every dask worker lost; finished points are saved; rerun with
+``--resume``); 4 a run finished but some points failed (the results file holds
 every point, the failed ones missing with their reason; ``run --failed-ok`` exits 0 instead);
 5 ``shards``: some shards of an array job are not done (it prints how to resubmit them).
 """

@@ -213,6 +213,7 @@ def _check_point(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict,
         if not param.admits(real(v)):
             raise ck.fail("params", key, f"an expression whose value is {param.expectation()}",
                           exprs[key].text, f" It evaluates to {real(v):g} at grid point {i}.")
+    _check_magnitudes(ck, job, values, i)
     if job.drive.kind != "static":
         _check_drive(ck, job, values, i, build=i in idx[:DRIVE_BUILDS])
     if i == idx[0]:
@@ -222,6 +223,29 @@ def _check_point(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict,
         _check_samples(ck, job, first)
     if job.custom is not None:
         _check_hermitian(ck, job, values, i)
+
+
+def _check_magnitudes(ck: Checker, job: Job, values: Mapping[str, complex], index: int) -> None:
+    """Drive values and custom model coefficients of magnitude at most ``MAX_MAGNITUDE`` at one
+    grid point (a drive value of 2**70 left every other term of H without a significant digit;
+    1e308 overflowed), each named by the table and key where it was written."""
+    d = job.drive
+    exprs = [e for e in (d.period, d.omega) if e is not None]
+    if d.protocol is not None:
+        exprs += d.protocol.expressions()
+    # As the model is built (see _check_hermitian): a coefficient every step sets takes the
+    # first step's value in the static model.
+    static = tuple((k, e) for k, e in d.overrides[0] if k not in values) if d.always_set else ()
+    sets = [{**values, **{k: e(values) for k, e in over}} for over in [static, *d.overrides]]
+    coeffs = ([e for _, e in job.custom.onsite] + [e for _, _, e in job.custom.hoppings]
+              if job.custom is not None else [])
+    for e, at in [(e, values) for e in exprs] + [(e, v) for e in coeffs for v in sets]:
+        v = e(at)
+        if abs(v) > MAX_MAGNITUDE:
+            raise ck.fail(e.table, e.key, f"an expression of magnitude at most "
+                          f"{MAX_MAGNITUDE:g}", e.text,
+                          f" It evaluates to {abs(v):g} in magnitude at grid point {index}."
+                          + MAGNITUDE_HINT)
 
 
 def _check_hermitian(ck: Checker, job: Job, values: Mapping[str, complex], index: int) -> None:

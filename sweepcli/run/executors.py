@@ -1,13 +1,16 @@
 """Executors by duck typing: anything with ``imap(func, tasks)`` yielding results as they finish.
 
-The runner needs nothing else, so serial, joblib (loky) and, later, dask.distributed are thin
+The runner needs nothing else, so serial, joblib (loky) and dask.distributed are thin
 adapters. Results are stored by grid index, so the order of completion does not matter.
 """
 
 from __future__ import annotations
 
+import time
 from collections.abc import Callable, Iterable, Iterator
 from typing import Any
+
+from ..errors import SweepError
 
 
 class SerialExecutor:
@@ -48,30 +51,78 @@ def make_executor(workers: int):
     return SerialExecutor() if workers == 1 else JoblibExecutor(workers)
 
 
-class DaskExecutor:
-    """dask.distributed: tasks submitted to a client, at most ``2 * workers`` in flight."""
+class WorkersLost(SweepError):
+    """A dask cluster had no worker for longer than the executor's ``lost_timeout``."""
 
-    def __init__(self, client) -> None:
+
+class DaskExecutor:
+    """dask.distributed: tasks submitted to a client, at most two per worker thread in flight.
+
+    The worker threads are counted again at every ``poll`` (a worker that joins, as slurm:N
+    jobs do one by one, raises the limit; one that leaves lowers it). Results are awaited
+    ``poll`` seconds at a time, so Ctrl-C and SIGTERM are seen at once; when no worker has been
+    there for ``lost_timeout`` seconds, :class:`WorkersLost` ends the run (the runner saves the
+    finished points first).
+    """
+
+    def __init__(self, client, *, lost_timeout: float = 60.0, poll: float = 1.0) -> None:
         self.client = client
-        info = client.scheduler_info()
-        self.workers = max(1, sum(w.get("nthreads", 1) for w in info.get("workers", {}).values()))
+        self.lost_timeout = lost_timeout
+        self.poll = poll
+        self.threads = self._threads()
+        self.workers = max(1, self.threads)
+        self.in_flight = 0  # futures submitted and not yet returned (read by tests)
+
+    def _threads(self) -> int:
+        """Worker threads the scheduler has now (0 when it cannot be asked)."""
+        try:
+            return int(sum(self.client.nthreads().values()))
+        except Exception:  # noqa: BLE001 - a scheduler that cannot answer has no usable worker
+            return 0
 
     def imap(self, func: Callable, tasks: Iterable[tuple]) -> Iterator[Any]:
-        from distributed import as_completed
+        from distributed import wait
 
         tasks = iter(tasks)
-        pending = as_completed()
-        for args in tasks:
-            pending.add(self.client.submit(func, *args, pure=False))
-            if pending.count() >= 2 * self.workers:
-                break
-        for future in pending:
-            result = future.result()
-            future.release()
-            nxt = next(tasks, None)
-            if nxt is not None:
-                pending.add(self.client.submit(func, *nxt, pure=False))
-            yield result
+        futures: set = set()
+        exhausted = False
+        seen = counted = time.monotonic()
+        try:
+            while True:
+                while not exhausted and len(futures) < 2 * max(1, self.threads):
+                    args = next(tasks, None)
+                    if args is None:
+                        exhausted = True
+                    else:
+                        futures.add(self.client.submit(func, *args, pure=False))
+                self.in_flight = len(futures)
+                if not futures:
+                    return
+                try:
+                    done, _ = wait(list(futures), timeout=self.poll,
+                                   return_when="FIRST_COMPLETED")
+                except TimeoutError:
+                    done = ()
+                for future in done:
+                    futures.discard(future)
+                    result = future.result()
+                    future.release()
+                    self.in_flight = len(futures)
+                    yield result
+                now = time.monotonic()
+                if now - counted < self.poll and self.threads:
+                    continue
+                counted = now
+                self.threads = self._threads()
+                if self.threads:
+                    seen = now
+                elif now - seen > self.lost_timeout:
+                    raise WorkersLost(f"all dask workers were lost (none for "
+                                      f"{self.lost_timeout:g} s, --dask-lost-timeout)")
+        finally:
+            for future in futures:
+                future.release()
+            self.in_flight = 0
 
 
 def _probe() -> str:
@@ -89,8 +140,6 @@ def connect_dask(address: str | None = None, cluster: str | None = None, *, wait
     Raises a SweepError naming the install extra when dask is missing, and checks that the
     workers can import sweepcli (a scheduler whose workers cannot hangs without an error).
     """
-    from ..errors import SweepError
-
     try:
         from distributed import Client, LocalCluster
     except ImportError:

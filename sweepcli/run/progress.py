@@ -1,12 +1,14 @@
 """Progress of a sweep: a tqdm bar on a terminal, timestamped log lines otherwise.
 
 tqdm writing to a batch log puts every update on one long line, so when stderr is not a
-terminal we print a line with the same figures (done, rate, ETA) every ``interval`` seconds.
+terminal (or with ``--no-progress``) a timer prints a line with the same figures (done, rate,
+ETA) every ``interval`` seconds (``--heartbeat``).
 """
 
 from __future__ import annotations
 
 import sys
+import threading
 import time
 from datetime import datetime
 
@@ -21,12 +23,17 @@ def _duration(seconds: float) -> str:
 class Progress:
     """Counts finished points of ``total``; ``already`` were done before this run started.
 
+    ``bar``: a tqdm bar when ``stream`` is a terminal. Otherwise, and always without ``bar``
+    (``--no-progress``), a heartbeat line (points done, rate, ETA) every ``interval`` seconds
+    from a timer thread, so that a log shows life even while one long task runs; ``interval``
+    0 prints none. Without a terminal, ``bar`` also logs the line of the last point.
+
     ``side = (done, total)`` counts the predicted-transition lines computed beside the points
     (shown after the points; they do not enter the points' rate).
     """
 
-    def __init__(self, total: int, already: int = 0, *, stream=None, interval: float = 30.0,
-                 enabled: bool = True, label: str = "",
+    def __init__(self, total: int, already: int = 0, *, stream=None, interval: float = 60.0,
+                 bar: bool = True, label: str = "",
                  side: tuple[int, int] | None = None) -> None:
         self.total, self.already = total, already
         self.side = list(side) if side is not None else None
@@ -34,19 +41,41 @@ class Progress:
         self.count = already
         self.stream = stream if stream is not None else sys.stderr
         self.interval = interval
-        self.enabled = enabled
-        self.start = self.last = time.monotonic()
+        self.log_end = bar
+        self.start = time.monotonic()
         self.bar = None
-        if enabled and getattr(self.stream, "isatty", lambda: False)():
+        self._stop = threading.Event()
+        self._lock = threading.Lock()
+        self._thread = None
+        if bar and getattr(self.stream, "isatty", lambda: False)():
             from tqdm import tqdm
             self.bar = tqdm(total=total, initial=already, unit="pt", file=self.stream,
                             desc=label or None,
                             dynamic_ncols=True, smoothing=0.1)
             if self.side is not None:
                 self.bar.set_postfix_str(self._side_text(), refresh=False)
+        elif interval > 0 and total > already:
+            self._thread = threading.Thread(target=self._beat, name="sweepcli-heartbeat",
+                                            daemon=True)
+            self._thread.start()
+
+    def _beat(self) -> None:
+        while not self._stop.wait(self.interval):
+            self._write()
+
+    def _write(self) -> None:
+        with self._lock:
+            try:
+                self.stream.write(self.line() + "\n")
+                self.stream.flush()
+            except (OSError, ValueError):  # a closed log: nothing more to say there
+                self._stop.set()
 
     def _side_text(self) -> str:
         return f"predicted lines {self.side[0]}/{self.side[1]}"
+
+    def _finished(self) -> bool:
+        return self.count == self.total and (self.side is None or self.side[0] == self.side[1])
 
     def side_update(self, n: int) -> None:
         """``n`` more prediction lines done."""
@@ -55,23 +84,15 @@ class Progress:
         self.side[0] += n
         if self.bar is not None:
             self.bar.set_postfix_str(self._side_text())
-        else:
-            self._log()
+        elif self.log_end and self._finished():
+            self._write()
 
     def update(self, n: int) -> None:
         self.count += n
         if self.bar is not None:
             self.bar.update(n)
-            return
-        self._log()
-
-    def _log(self) -> None:
-        now = time.monotonic()
-        last = self.count == self.total and (self.side is None or self.side[0] == self.side[1])
-        if self.enabled and (now - self.last >= self.interval or last):
-            self.last = now
-            self.stream.write(self.line() + "\n")
-            self.stream.flush()
+        elif self.log_end and self._finished():
+            self._write()
 
     def line(self) -> str:
         elapsed = time.monotonic() - self.start
@@ -87,5 +108,8 @@ class Progress:
                 f"{rate:.3g} points/s, elapsed {_duration(elapsed)}, ETA {eta_s}")
 
     def close(self) -> None:
+        self._stop.set()
+        if self._thread is not None:
+            self._thread.join()
         if self.bar is not None:
             self.bar.close()

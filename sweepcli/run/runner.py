@@ -25,7 +25,7 @@ from .confirm import (
     reopen_not_requested,
     run_confirmed,
 )
-from .executors import make_executor
+from .executors import WorkersLost, make_executor
 from .predict import Predictions
 from .progress import Progress
 from .refine import base_indices, level_indices
@@ -47,6 +47,7 @@ class RunSummary:
     # completes) and cells where they are computed; None for other jobs.
     chosen: int | None = None
     confirmed: int | None = None
+    reason: str = ""  # how an interrupted run stopped, when not in the sweep loop
 
 
 def pending_indices(results: Results, selection: np.ndarray | None = None) -> np.ndarray:
@@ -95,7 +96,8 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
                     workers: int = 1, chunk_size: int | None = None,
                     checkpoint: Callable[[Results], None] | None = None,
                     checkpoint_every: float = 60.0, progress: bool = True, executor=None,
-                    label: str = "", predictions: Predictions | None = None) -> bool:
+                    label: str = "", heartbeat: float = 60.0,
+                    predictions: Predictions | None = None) -> bool:
     """Evaluate ``groups`` (``(flat indices, measurement names or None for all)``) through the
     executor, passing each record to ``store``; returns whether the run was interrupted.
 
@@ -104,13 +106,16 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
     ``predictions``, so that the workers compute them beside the points.
 
     ``checkpoint(results)`` is called every ``checkpoint_every`` seconds, at the end and on
-    interruption; SIGTERM is turned into the same clean stop as Ctrl-C.
+    interruption; SIGTERM is turned into the same clean stop as Ctrl-C. ``progress`` draws a
+    bar on a terminal; otherwise (or without it) a line is logged every ``heartbeat`` seconds
+    (0: never). Raises :class:`WorkersLost` (after the checkpoint) when a dask cluster has had no
+    worker for its ``lost_timeout``.
     """
     executor = executor or make_executor(workers)
     n_todo = sum(len(g) for g, _ in groups)
     size = chunk_size or default_chunk_size(n_todo, executor.workers)
     side = predictions.pending() if predictions is not None else []
-    bar = Progress(total, already, enabled=progress, label=label,
+    bar = Progress(total, already, bar=progress, interval=heartbeat, label=label,
                    side=(predictions.total - len(side), predictions.total) if side else None)
     interrupted = False
     last = time.monotonic()
@@ -123,7 +128,7 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         signal.signal(signal.SIGTERM, on_term)
     except ValueError:  # not the main thread: leave signals alone
         previous = None
-    died = None
+    died = lost = None
     try:
         point_tasks = [("points", job, c, only) for todo, only in groups
                        for c in chunks(todo, size)]
@@ -142,8 +147,11 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
                 last = time.monotonic()
     except KeyboardInterrupt:
         interrupted = True
+    except WorkersLost as exc:
+        lost = exc
     except Exception as exc:  # noqa: BLE001 - e.g. a worker process was killed
-        if type(exc).__name__ != "TerminatedWorkerError":
+        # loky's TerminatedWorkerError; dask's KilledWorker (a task that killed 3 workers).
+        if type(exc).__name__ not in ("TerminatedWorkerError", "KilledWorker"):
             raise
         died = exc
     finally:
@@ -152,6 +160,9 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
             signal.signal(signal.SIGTERM, previous)
         if checkpoint is not None:
             checkpoint(results)
+    if lost is not None:
+        raise WorkersLost(f"{lost}; {results.n_done} finished points are saved; rerun with "
+                          "--resume to continue.")
     if died is not None:
         raise WorkerDied(f"a worker process died ({died}); {results.n_done} finished points are "
                          "saved; rerun with --resume to continue.")
@@ -161,7 +172,8 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
 def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int | None = None,
               checkpoint: Callable[[Results], None] | None = None, checkpoint_every: float = 60.0,
               progress: bool = True, selection: np.ndarray | None = None,
-              executor=None, predictions: Predictions | None = None) -> RunSummary:
+              executor=None, heartbeat: float = 60.0,
+              predictions: Predictions | None = None) -> RunSummary:
     """Evaluate every pending point of ``job`` into ``results`` (see :func:`evaluate_groups`)."""
     start = time.monotonic()
     todo = pending_indices(results, selection)
@@ -170,7 +182,7 @@ def run_sweep(job: Job, results: Results, *, workers: int = 1, chunk_size: int |
         job, results, [(todo, None)], results.record, total=total, already=total - len(todo),
         workers=workers, chunk_size=chunk_size, checkpoint=checkpoint,
         checkpoint_every=checkpoint_every, progress=progress, executor=executor,
-        predictions=predictions)
+        heartbeat=heartbeat, predictions=predictions)
     sel_done = results.done.ravel() if selection is None else results.done.ravel()[selection]
     failed = results.failure.ravel() if selection is None else results.failure.ravel()[selection]
     return RunSummary(done=int(sel_done.sum()), total=total,

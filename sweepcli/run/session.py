@@ -12,11 +12,14 @@ from __future__ import annotations
 
 import fcntl
 import os
+import signal
 import sys
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
+
+import numpy as np
 
 from ..errors import SweepError, shown
 from ..jobfile import Job, job_from_results, load_job, output_path_problem
@@ -36,6 +39,7 @@ class SessionSummary:
     run: RunSummary
     output: Path
     resume_command: str  # the command that continues an interrupted run
+    saved: bool = True  # whether the output file was written (not when the first write failed)
 
 
 @dataclass
@@ -61,6 +65,8 @@ class RunSession:
     progress: bool = True
     scheduler: str | None = None
     dask_cluster: str | None = None
+    lost_timeout: float = 60.0
+    heartbeat: float = 60.0
     argv: list[str] = field(default_factory=lambda: list(sys.argv))
 
     def run(self, say: Callable[[str], None] | None = None) -> SessionSummary:
@@ -98,35 +104,58 @@ class RunSession:
     def _run_locked(self, job: Job, part: Shard | None, out: Path,
                     say: Callable[[str], None] | None) -> SessionSummary:
         results = self._open(job, part, out)
-        client = cluster = executor = None
-        try:
-            if self.scheduler or self.dask_cluster:
-                from .executors import DaskExecutor, connect_dask
+        selection = part.indices(job.size) if part else None
+        saved = {}  # counts of the last file written: what an interruption leaves on disk
 
-                client, cluster = connect_dask(self.scheduler, self.dask_cluster)
-                executor = DaskExecutor(client)
-            out.parent.mkdir(parents=True, exist_ok=True)
-            results.write(out)
-            if say is not None:
-                todo = results.size - results.n_done
-                say(f"{job.path}: {job.title}; {results.n_done} of {results.size} points done, "
-                    f"{todo} to go" + (f" (shard {part.label()})" if part else "")
-                    + f"; {executor.workers if executor else self.workers} worker(s); "
-                    f"measurements: {', '.join(n for n, _ in job.measurements)}"
-                    + (f" ({', '.join(job.confirm.measurements)} on selected cells only)"
-                       if job.confirm else "") + f"; -> {out}")
-            # Predicted transitions (whole grids only) are tasks beside the points.
-            predictions = Predictions(job) if job.predict is not None and part is None else None
-            summary = run_job(job, results, workers=self.workers, chunk_size=self.chunk_size,
-                              checkpoint=lambda r: r.write(out),
-                              checkpoint_every=self.checkpoint_every, progress=self.progress,
-                              executor=executor, predictions=predictions,
-                              selection=part.indices(job.size) if part else None)
-            if not summary.interrupted:
-                if predictions is not None:
-                    results.tables["transitions"] = predictions.table()
-                results.attrs["finished"] = now()
-                results.write(out)
+        def write(r: Results) -> None:
+            r.write(out)
+            own = r.done.ravel() if selection is None else r.done.ravel()[selection]
+            fail = r.failure.ravel() if selection is None else r.failure.ravel()[selection]
+            saved.update(done=int(own.sum()), failed=int(np.count_nonzero(fail != "")))
+
+        client = cluster = executor = None
+        summary = None
+        try:
+            with _sigterm_as_interrupt():
+                # The file first, so that an interruption from here on (dask still starting,
+                # Ctrl-C, SIGTERM, lost workers, the final write) leaves one to resume.
+                out.parent.mkdir(parents=True, exist_ok=True)
+                write(results)
+                if self.scheduler or self.dask_cluster:
+                    from .executors import DaskExecutor, connect_dask
+
+                    client, cluster = connect_dask(self.scheduler, self.dask_cluster)
+                    executor = DaskExecutor(client, lost_timeout=self.lost_timeout)
+                if say is not None:
+                    todo = results.size - results.n_done
+                    say(f"{job.path}: {job.title}; {results.n_done} of {results.size} points "
+                        f"done, {todo} to go" + (f" (shard {part.label()})" if part else "")
+                        + f"; {executor.workers if executor else self.workers} worker(s); "
+                        f"measurements: {', '.join(n for n, _ in job.measurements)}"
+                        + (f" ({', '.join(job.confirm.measurements)} on selected cells only)"
+                           if job.confirm else "") + f"; -> {out}")
+                # Predicted transitions (whole grids only) are tasks beside the points.
+                predictions = (Predictions(job) if job.predict is not None and part is None
+                               else None)
+                summary = run_job(job, results, workers=self.workers,
+                                  chunk_size=self.chunk_size, checkpoint=write,
+                                  checkpoint_every=self.checkpoint_every,
+                                  progress=self.progress, heartbeat=self.heartbeat,
+                                  executor=executor, predictions=predictions,
+                                  selection=selection)
+                if not summary.interrupted:
+                    if predictions is not None:
+                        results.tables["transitions"] = predictions.table()
+                    results.attrs["finished"] = now()
+                    write(results)
+        except KeyboardInterrupt:
+            # Ctrl-C or SIGTERM outside the sweep loop (dask starting, a checkpoint or the
+            # final write): the file on disk is the last complete one written.
+            total = results.size if selection is None else len(selection)
+            summary = RunSummary(done=saved.get("done", 0), total=total,
+                                 failed=saved.get("failed", 0), interrupted=True,
+                                 seconds=0.0 if summary is None else summary.seconds,
+                                 reason="" if summary is None else "while writing the results")
         finally:
             if client is not None:
                 client.close()
@@ -134,7 +163,7 @@ class RunSession:
                 cluster.close()
         again = " ".join(["sweepcli run", str(self.job_file), "-o", str(out), "--resume"]
                          + (["--shard", part.label()] if part else []))
-        return SessionSummary(summary, out, again)
+        return SessionSummary(summary, out, again, saved=bool(saved))
 
     def _open(self, job: Job, part: Shard | None, out: Path) -> Results:
         """The results to continue (``resume`` and the file exists) or a fresh one."""
@@ -160,6 +189,25 @@ class RunSession:
         if part is not None:
             results.attrs["shard"] = part.label()
         return results
+
+
+@contextmanager
+def _sigterm_as_interrupt() -> Iterator[None]:
+    """SIGTERM raises KeyboardInterrupt (as Ctrl-C does) while this block runs in the main
+    thread: the run stops cleanly, saves what it has and exits 3, and its worker pools shut
+    down (the default action killed the process at once and leaked joblib's folder)."""
+    def on_term(signum, frame):
+        raise KeyboardInterrupt
+
+    try:
+        previous = signal.signal(signal.SIGTERM, on_term)
+    except ValueError:  # not the main thread: leave signals alone
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 @contextmanager

@@ -137,19 +137,26 @@ class Results(Grid):
 
     # ----------------------------------------------------------------- files
     def write(self, path: str | Path) -> None:
-        """Write a complete file to ``path.tmp``, fsync it and rename it over ``path``."""
+        """Write a complete file to ``path.tmp``, fsync it and rename it over ``path``.
+
+        The HDF5 image is built in memory first and written with plain ``os.write``: HDF5 meets
+        a full disk deep in its own cache (a segmentation fault at exit was seen), a plain
+        write fails with one clean ``OSError``. Whatever stops the write (that error, Ctrl-C or
+        SIGTERM) removes ``path.tmp`` and leaves ``path`` as it was.
+        """
         path = Path(path)
         tmp = path.with_name(path.name + ".tmp")
         try:
-            with h5py.File(tmp, "w") as f:
-                self._fill(f)
-            with open(tmp, "rb") as fh:
-                os.fsync(fh.fileno())
+            image = self.image()
+            _write_file(tmp, image)
             os.replace(tmp, path)
         except OSError as exc:
             tmp.unlink(missing_ok=True)
             raise ResultsError(
                 f"{path}: cannot write the results file ({exc.strerror or exc}).") from None
+        except BaseException:
+            tmp.unlink(missing_ok=True)
+            raise
         try:
             dir_fd = os.open(path.parent if str(path.parent) else ".", os.O_RDONLY)
             try:
@@ -158,6 +165,14 @@ class Results(Grid):
                 os.close(dir_fd)
         except OSError:
             pass  # directory fsync is best effort (not supported on every file system)
+
+    def image(self) -> bytes:
+        """The bytes of the HDF5 file :meth:`write` writes (built in memory, no file touched)."""
+        with h5py.File(f"sweepcli-image-{id(self)}", "w", driver="core",
+                       backing_store=False) as f:
+            self._fill(f)
+            f.flush()
+            return f.id.get_file_image()
 
     def _fill(self, f: h5py.File) -> None:
         for key, value in self.attrs.items():
@@ -230,7 +245,9 @@ class Results(Grid):
                 return cls._from_file(f)
         except ResultsError:
             raise
-        except (OSError, KeyError, ValueError) as exc:
+        except (OSError, KeyError, ValueError, RuntimeError, TypeError, IndexError,
+                AttributeError, UnicodeDecodeError) as exc:
+            # h5py reports damaged metadata as RuntimeError, a wrong dtype as TypeError.
             raise ResultsError(f"{path}: cannot be read as a sweepcli results file; it may be "
                                f"truncated or corrupt ({exc}).") from None
 
@@ -247,10 +264,23 @@ class Results(Grid):
                                       _text(ds.attrs["long_name"]), _text(ds.attrs["measurement"]),
                                       tuple(_text(ds.attrs.get("ancillary_variables",
                                                                "")).split())))
+        for a in axes:
+            if a.values.ndim != 1 or a.values.dtype.kind != "f" or len(a.values) == 0:
+                raise ValueError(f"axis {a.name!r} is not a list of numbers")
         out = cls(axes, variables, attrs)
+
+        def grid(name: str, kinds: str) -> np.ndarray:
+            ds = f[name]
+            if ds.shape != out.shape or ds.dtype.kind not in kinds:
+                raise ValueError(f"dataset {name!r} is {ds.dtype} of shape {ds.shape}, not "
+                                 f"numbers of the grid's shape {out.shape}")
+            return ds[()]
+
         for v in variables:
-            out.data[v.name] = f[v.name][()]
-        out.done = f["done"][()]
+            out.data[v.name] = grid(v.name, "fiu")
+        out.done = grid("done", "iu")
+        if f["failure"].shape != out.shape or not h5py.check_string_dtype(f["failure"].dtype):
+            raise ValueError(f"dataset 'failure' is not text of the grid's shape {out.shape}")
         out.failure = np.array(f["failure"].asstr()[()], dtype=object).reshape(out.shape)
         for name, group in f.items():
             if isinstance(group, h5py.Group):
@@ -273,3 +303,15 @@ def _text(value: object) -> str:
     if isinstance(value, bytes):
         return value.decode("utf-8")
     return str(value)
+
+
+def _write_file(path: Path, data: bytes) -> None:
+    """Write ``data`` to a new file ``path`` and fsync it (an ``OSError`` on a full disk)."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    try:
+        view = memoryview(data)
+        while view:
+            view = view[os.write(fd, view):]
+        os.fsync(fd)
+    finally:
+        os.close(fd)

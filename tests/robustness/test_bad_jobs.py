@@ -393,3 +393,41 @@ def test_output_option_with_nul_is_refused(tmp_path):
     with pytest.raises(SweepError, match="It contains a NUL character.$"):
         RunSession(job, output=tmp_path / "o\x00.h5", progress=False).run()
     assert list(tmp_path.iterdir()) == [job]
+
+
+DRIVEN = GOOD.replace("[measure.gap]", "[measure.quasienergy_gaps]") + (
+    '[drive]\nkind = "steps"\nperiod = 1.0\n[[drive.step]]\nspan = 0.5\nset = { m = "VALUE" }\n'
+    '[[drive.step]]\nspan = 0.5\n')
+
+
+@pytest.mark.parametrize("value", ["2**70", "1e308", "-2**70*m", "1e13*(m + 2)"])
+def test_absurd_drive_values_are_refused_at_load(tmp_path, value):
+    # A drive value of 2**70 ran, every point failed (or kept no significant digit of the
+    # other terms) and the run exited 0.
+    msg = run_bad(tmp_path, DRIVEN.replace("VALUE", value))
+    assert msg.startswith(f"JOB: [drive.step.0.set] m must be an expression of magnitude at most "
+                          f"1e+12; got '{value}'. It evaluates to "), msg
+    assert msg.endswith("Larger values overflow or leave the other terms no significant digits.")
+
+
+def test_absurd_custom_coefficients_are_refused_at_load(tmp_path):
+    hermitian = CUSTOM.replace('coeff = "1j*v"', 'coeff = "0"')
+    msg = run_bad(tmp_path, hermitian.replace('coeff = "w"', 'coeff = "w * 2**70"'))
+    assert msg.startswith("JOB: [model.hopping.0] coeff must be an expression of magnitude at "
+                          "most 1e+12; got 'w * 2**70'. It evaluates to 1.18059e+21"), msg
+    # A coefficient is also checked with the values a drive step sets.
+    driven = (hermitian.replace("[measure.gap]", "[measure.quasienergy_gaps]")
+              + '[drive]\nkind = "steps"\nperiod = 1.0\n[[drive.step]]\nspan = 0.5\n'
+                'set = { w = 1e12 }\n[[drive.step]]\nspan = 0.5\n')
+    msg = run_bad(tmp_path, driven.replace('coeff = "w"', 'coeff = "10 * w"'))
+    assert msg.startswith("JOB: [model.hopping.0] coeff must be an expression of magnitude at "
+                          "most 1e+12; got '10 * w'. It evaluates to 1e+13"), msg
+
+
+def test_harmonic_term_param_of_another_type(tmp_path):
+    # A list as [[drive.term]] param ended in "TypeError: unhashable type" (found by fuzzing).
+    driven = GOOD.replace("[measure.gap]", "[measure.quasienergy_gaps]") + (
+        '[drive]\nkind = "harmonic"\nperiod = 1.0\n[[drive.term]]\nparam = [1, "a"]\n'
+        'amplitude = 0.5\n')
+    assert run_bad(tmp_path, driven) == ("JOB: [drive.term.0] param must be a model parameter "
+                                         "(m, t); got [1, 'a'].")

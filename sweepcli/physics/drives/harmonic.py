@@ -108,7 +108,7 @@ def parse_harmonic(t: Mapping, r) -> HarmonicSpec:
         table = f"drive.term.{i}"
         r.only(table, term, ["param", "amplitude", "harmonic", "phase"])
         param = term.get("param")
-        if param not in r.model_params:
+        if not isinstance(param, str) or param not in r.model_params:
             raise r.fail(table, "param", "a model parameter (" + ", ".join(sorted(r.model_params))
                          + ")", param, r.suggest(str(param), r.model_params))
         n = r.number(table, "harmonic", term.get("harmonic", 1),
