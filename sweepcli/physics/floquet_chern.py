@@ -6,8 +6,9 @@ Conventions
 * Floquet bands are grouped *between the gaps*: the "upper" group has ``eps`` in ``(0, pi/T)``,
   the "lower" group ``(-pi/T, 0)``; when both gaps are open the size of each group is the same
   at every k and each group is a smooth vector bundle.
-* Chern numbers use :func:`sweepcli.physics.chern.fhs_chern` (sign: the lower band of
-  ``d.sigma`` has the degree of ``d_hat``).
+* Chern numbers are the proven FHS sums of :func:`sweepcli.physics.certify.certified_chern`
+  (sign of :func:`sweepcli.physics.chern.fhs_chern`: the lower band of ``d.sigma`` has the
+  degree of ``d_hat``).
 
 Published method
 ----------------
@@ -18,25 +19,25 @@ evolution; ``C_band = W(gap above) - W(gap below)``; the anomalous five-step dri
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..schema import Reason
-from .chern import fhs_chern
+from .certify import certified_chern, hermitian_norm, hopping_bounds
+from .chern import START_CAP, WORK
 from .drives.base import Drive
-from .drives.evolution import evolve, hermitian_exponential
+from .drives.evolution import Slicing, evolve, floquet_evolution, hermitian_exponential
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
     FLUX_TOL,
     GROWTH,
     gap_rule_kmesh,
-    mesh_sequence,
 )
-from .lattice import kmesh
-from .quasienergy import FloquetGaps, FloquetMesh, dagger, floquet_mesh, quasienergies
+from .lattice import TightBinding, kmesh
+from .quasienergy import FloquetGaps, dagger, quasienergies
 
 #: Largest accepted distance of the raw Rudner winding integral from an integer.
 RESIDUE_TOL = 0.05
@@ -80,44 +81,109 @@ class FloquetChern:
     reason: Reason
 
 
+def drive_slope_bounds(factors: Sequence[tuple[float, TightBinding]]
+                       ) -> Callable[[np.ndarray], np.ndarray]:
+    """``slope(k)``: a bound on ``||dU/dk_u||`` at reduced momenta ``k`` ``(..., 2)`` for every
+    unit direction ``u``, ``sum_f d_f sqrt(||dH_f/dk_1||^2 + ||dH_f/dk_2||^2)`` over the
+    factors ``(d_f, H_f)`` of ``U = U_F ... U_1`` (Duhamel: ``||d e^{-i d H}|| <= d ||dH||``);
+    the factors' hoppings are stacked so that the sum is one batched contraction per chunk."""
+    keys = sorted(set().union(*(tb.hoppings for _, tb in factors)))
+    durations = np.array([d for d, _ in factors], float)
+    if not keys:
+        return lambda k: np.zeros(np.shape(k)[:-1])
+    n = factors[0][1].norb
+    zero = np.zeros((n, n), complex)
+    disp = np.array(keys, float).reshape(len(keys), -1)
+    hops = np.array([[tb.hoppings.get(r, zero) for r in keys] for _, tb in factors], complex)
+    # Chunks of factors keep the (points, factors, n, n) derivatives near 2**21 entries.
+    chunk_entries = 2 ** 21
+
+    def slope(k: np.ndarray) -> np.ndarray:
+        k = np.asarray(k, float)
+        phase = np.exp(1j * (k @ disp.T))
+        points = int(np.prod(k.shape[:-1], dtype=int))
+        step = max(1, chunk_entries // max(points * n * n, 1))
+        total = np.zeros(k.shape[:-1])
+        for lo in range(0, len(factors), step):
+            s2 = 0.0
+            for i in range(2):
+                d = np.einsum("...m,fmij->...fij", 1j * disp[:, i] * phase, hops[lo:lo + step])
+                s2 = s2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
+            total = total + np.sqrt(s2) @ durations[lo:lo + step]
+        return total
+    return slope
+
+
+def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
+                     ) -> tuple[Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
+                                float]:
+    """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for one Floquet band
+    group of a 2D drive, and its ``lip2``.
+
+    ``data(k)`` returns the group's eigenvectors (the ``m`` lowest quasienergies, or the
+    others if ``upper``), the width ``min_lower sin(|eps| T) + min_upper sin(|eps| T)`` of the
+    strip along the real axis between the eigenvalues of the two groups (0 where the lower
+    group does not hold ``m`` bands), and the slope of :func:`drive_slope_bounds`;
+    ``lip2 = sum_f d_f L2_f`` bounds the slope's own Lipschitz constant
+    (:func:`~sweepcli.physics.certify.hopping_bounds`)."""
+    slices = None if drive.exact or slicing is None else slicing.slices
+    factors = list(drive.factors(slices=slices))
+    slope = drive_slope_bounds(factors)
+    lip2 = float(sum(d * hopping_bounds(tb.hoppings)[1] for d, tb in factors))
+    T = drive.period
+
+    def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        u = floquet_evolution(drive, k, slicing=slicing).u
+        eps, v = quasienergies(u, T)
+        width = np.sin(np.abs(eps) * T)
+        low = eps < 0
+        sep = np.min(np.where(low, width, np.inf), axis=-1) + \
+            np.min(np.where(low, np.inf, width), axis=-1)
+        sep = np.where(np.sum(low, axis=-1) == m, sep, 0.0)
+        return (v[..., m:] if upper else v[..., :m]), sep, slope(k)
+    return data, lip2
+
+
 def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
                   kmesh_n: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
-                  flux_tol: float = FLUX_TOL,
-                  mesh_of: Callable[[int], FloquetMesh] | None = None) -> FloquetChern:
-    """Chern numbers of both Floquet band groups of a 2D drive, with a convergence policy.
+                  flux_tol: float = FLUX_TOL, slicing: Slicing | None = None) -> FloquetChern:
+    """Chern numbers of both Floquet band groups of a 2D drive, proven on an adaptive mesh.
 
-    Both gaps must be open (``>= gap_tol``). The first mesh is
-    ``max(kmesh_n, gap_rule_kmesh(min(gap_0, gap_pi)))``; the answer is accepted when two
-    successive meshes (growth 1.5) have the largest plaquette flux below ``flux_tol`` and agree,
-    as for static bands (:mod:`sweepcli.physics.chern`).
+    Both gaps must be open (``>= gap_tol``). The smaller group's Chern number is computed as
+    the static one is (:func:`~sweepcli.physics.chern.chern_number`): a base mesh of
+    ``max(kmesh_n, min(gap_rule_kmesh(min(gap_0, gap_pi)), START_CAP))`` points per direction
+    (raised by 1.5 while more than half its plaquettes fail, up to ``max_kmesh``), every
+    plaquette whose bound does not prove it subdivided
+    (:func:`~sweepcli.physics.certify.certified_chern` with the unitary constant ``pi / 2``;
+    separation and slopes from :func:`floquet_subspace`: the local strip width between the two
+    groups' eigenvalues at the corners and ``sum_f d_f ||dH_f/dk||`` of the drive's factors),
+    up to ``WORK * max_kmesh**2`` points, else ``NOT_CONVERGED``. The other group's number is
+    its negative (the two groups span every band, whose bundle is trivial). Proven and
+    assumed: :mod:`sweepcli.physics.certify`; the operator is that of the time slicing
+    ``slicing`` (default: the one the gap search used, ``gaps.slices``).
     """
+    if not gaps.converged:
+        return FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
     if not (gaps.gap_0 >= gap_tol and gaps.gap_pi >= gap_tol):
         return FloquetChern(None, None, None, math.nan, Reason.GAP_CLOSED)
-    mesh_of = mesh_of or (lambda n: floquet_mesh(drive, n, 2))
-    start = max(kmesh_n, gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)))
-    prev = None
-    last_n, last_flux = None, math.nan
-    for n in mesh_sequence(min(start, max_kmesh), max_kmesh, GROWTH):
-        mesh = mesh_of(n)
-        if not mesh.converged:
-            return FloquetChern(None, None, n, math.nan, Reason.NOT_CONVERGED)
-        groups = band_groups(mesh.eps, mesh.vectors)
-        if groups is None:
-            return FloquetChern(None, None, n, math.nan, Reason.GAP_CLOSED)
-        values, flux = [], 0.0
-        for g in groups:
-            if g.shape[-1] == 0:
-                values.append(0)
-                continue
-            c, f = fhs_chern(g)
-            values.append(c)
-            flux = max(flux, f)
-        last_n, last_flux = n, flux
-        ok = flux < flux_tol
-        if ok and prev is not None and prev == values:
-            return FloquetChern(values[1], values[0], n, flux, Reason.OK)
-        prev = values if ok else None
-    return FloquetChern(None, None, last_n, last_flux, Reason.NOT_CONVERGED)
+    if slicing is None and not drive.exact:
+        slicing = Slicing(gaps.slices, 0.0, gaps.converged)
+    n = min(max(kmesh_n, min(gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)), START_CAP)),
+            max_kmesh)
+    # The size of the lower group, from the quasienergies at the gap's minimum.
+    u = floquet_evolution(drive, np.zeros((1, 2)), slicing=slicing).u
+    m = int(np.sum(quasienergies(u, drive.period)[0][0] < 0))
+    norb = drive.norb
+    if m in (0, norb):
+        return FloquetChern(0, 0, None, 0.0, Reason.OK)
+    upper = norb - m < m
+    data, lip2 = floquet_subspace(drive, slicing, m, upper)
+    c, flux, _, n = certified_chern(data, n, min(m, norb - m), lip2, flux_tol=flux_tol,
+                                    budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
+                                    growth=GROWTH, sylvester=math.pi / 2)
+    if c is None:
+        return FloquetChern(None, None, n, flux, Reason.NOT_CONVERGED)
+    return FloquetChern(c if upper else -c, -c if upper else c, n, flux, Reason.OK)
 
 
 def _spectral_derivative(x: np.ndarray, axis: int) -> np.ndarray:
@@ -233,13 +299,27 @@ class RudnerWinding:
 
 
 def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
-                   kmesh_n: int = 16, max_kmesh: int = 128, residue_tol: float = RESIDUE_TOL
-                   ) -> RudnerWinding:
+                   kmesh_n: int = 16, max_kmesh: int = 128, residue_tol: float = RESIDUE_TOL,
+                   chern: FloquetChern | None = None) -> RudnerWinding:
     """``W_0`` and ``W_pi`` of a 2D drive (see :func:`rudner_integral`), raised until settled.
 
-    Levels ``RUDNER_LEVELS`` with k-mesh ``>= kmesh_n`` and ``<= max_kmesh`` are tried in turn;
-    a value is accepted when two successive levels round to the same integer and the last is
-    within ``residue_tol`` of it.
+    Levels ``RUDNER_LEVELS`` with k-mesh ``>= kmesh_n`` and ``<= max_kmesh`` (every one of them:
+    a single level may settle the value) are tried in turn. When both gaps are open the
+    windings' difference is a Floquet band's Chern number, ``W_pi - W_0 = C_upper``
+    (Rudner et al. 2013), which :func:`floquet_chern` proves (``chern``, computed when not
+    given): a level is accepted when both raw integrals are within ``residue_tol`` of integers
+    whose difference is that proven number; a proven difference that no level matches leaves
+    both windings missing (``NOT_CONVERGED``). Where the Chern number could not be proven within
+    its budget (the a-priori bound cannot see cancellations between the steps, e.g. the flat
+    ``U(k)`` of the anomalous five-step drive) or one gap is closed, there is no such check,
+    and a winding is accepted when two successive levels round to the same integer within
+    ``residue_tol``.
+
+    Proven and assumed: the difference ``W_pi - W_0`` of a pair stored with a proven Chern
+    number is proven (the bound of :mod:`sweepcli.physics.certify`); the common part of both
+    windings, and every winding stored without a proven Chern number, rests on the quadrature
+    of :func:`rudner_integral` (spectral in k and t, its distance from an integer the measure
+    of convergence), for which no a-priori bound is computed.
     """
     if not gaps.converged:
         return RudnerWinding(None, None, math.nan, math.nan, math.nan, None,
@@ -250,6 +330,13 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
                              Reason.GAP_CLOSED, Reason.GAP_CLOSED)
     # The slice count at which the mesh evolution converged (sliced drives).
     slices = None if drive.exact else gaps.slices
+    difference = None
+    if all(open_):
+        if chern is None:
+            chern = floquet_chern(drive, gaps, gap_tol=gap_tol,
+                                  slicing=None if drive.exact else
+                                  Slicing(gaps.slices, 0.0, gaps.converged))
+        difference = chern.upper
     levels = [lv for lv in RUDNER_LEVELS if kmesh_n <= lv[0] <= max_kmesh] or \
         [(max(kmesh_n, 4), RUDNER_LEVELS[0][1])]
     prev = None
@@ -261,11 +348,15 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
         n_used = n
         rounded = tuple(int(round(r)) for r in raw)
         res = [abs(r - i) for r, i in zip(raw, rounded)]
-        if prev is not None:
+        if difference is not None:
+            ok = res[0] < residue_tol and res[1] < residue_tol and \
+                rounded[1] - rounded[0] == difference
+            settled = [ok, ok]
+        elif prev is not None:
             settled = [open_[g] and prev[g] == rounded[g] and res[g] < residue_tol
                        for g in (0, 1)]
-            if all(settled[g] or not open_[g] for g in (0, 1)):
-                break
+        if all(settled[g] or not open_[g] for g in (0, 1)):
+            break
         prev = rounded
     vals = [int(round(raw[g])) if (open_[g] and settled[g]) else None for g in (0, 1)]
     residues = [abs(raw[g] - round(raw[g])) for g in (0, 1) if open_[g]]

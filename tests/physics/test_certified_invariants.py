@@ -17,11 +17,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from sweepcli.physics import floquet_chern as fc
+from sweepcli.physics import quasienergy as qe
 from sweepcli.physics.chern import chern_number
 from sweepcli.physics.chiral_frames import chiral_windings
 from sweepcli.physics.chiral_winding import winding_number
 from sweepcli.physics.drives.steps import StepDrive
-from sweepcli.physics.lattice import assemble, fourier_term, pauli
+from sweepcli.physics.lattice import assemble, fourier_term, kmesh, pauli
 from sweepcli.schema import Reason
 
 CHIRAL = np.diag([1.0, -1.0]).astype(complex)
@@ -130,3 +132,44 @@ def test_random_square_chains_never_a_wrong_integer(c, shift):
     d = chiral_windings(StepDrive(T, ((T, tb),)), CHIRAL)
     assert d.nu_0 == ref or d.nu_0 is None
     assert d.nu_pi in (0, None)
+
+
+def trivially_driven(tb):
+    # One step of length T with T ||H|| < pi: U = exp(-i H T), so the Floquet band group in
+    # (-pi/T, 0) is the static lower band (quasienergy = energy) and the groups' Chern numbers
+    # are the static ones; the 0-gap Rudner winding is the Chern number of the bands below 0.
+    norm = float(np.max(np.abs(np.linalg.eigvalsh(tb.bloch(kmesh(16, 2))))))
+    T = 0.5 / norm
+    return StepDrive(T, ((T, tb),))
+
+
+@pytest.mark.parametrize("a, b, m", [(0.2, 30.0, -0.05), (0.5, 40.0, 0.01), (1.0, 20.0, -0.02)])
+def test_driven_pocket_is_proven_or_missing(a, b, m):
+    d = trivially_driven(pocket(a, b, m))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    ref = trim_count(b, m)
+    assert (c.reason == Reason.OK and (c.lower, c.upper) == (ref, -ref)) or (
+        c.reason == Reason.NOT_CONVERGED and c.lower is None)
+    w = fc.rudner_winding(d, g, chern=c)
+    assert w.w_0 in (ref, None) and w.w_pi in (0, None)
+
+
+def test_driven_pocket_below_the_mesh_scale():
+    # The 24 x 24 base mesh puts the whole flux of the pocket inside one plaquette.
+    d = trivially_driven(pocket(0.2, 30.0, -0.05))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    assert c.reason == Reason.OK and (c.lower, c.upper) == (-1, 1)
+
+
+@settings(max_examples=12, deadline=None)
+@given(a=st.floats(0.2, 1.0), b=st.floats(1.0, 30.0), m=st.floats(5e-3, 0.3),
+       sign=st.sampled_from([-1.0, 1.0]))
+def test_random_driven_pockets_never_a_wrong_integer(a, b, m, sign):
+    d = trivially_driven(pocket(a, b, sign * m))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    ref = trim_count(b, sign * m)
+    assert (c.lower, c.upper) == (ref, -ref) or (
+        c.lower is None and c.reason == Reason.NOT_CONVERGED)
