@@ -14,8 +14,10 @@ that separates the eigenvalues of the two Floquet band groups (quasienergies in 
 above it, ``(0, pi/T)`` below); the smallest singular value ``sigma_min(q)`` of a chiral
 block ``q``) and the *slope*
 ``g_c``, a bound on ``||d X / d k_u||`` at ``k_c`` for every unit direction ``u``; and a
-constant ``lip2`` with ``||d g / d k|| <= lip2`` (the second derivative, static models), or
-``g_c`` a bound for every k and ``lip2 = 0`` (drives). Within ``r`` of ``k_c``:
+constant ``lip2`` with ``||d^2 X / dk_u dk_w|| <= lip2`` for all unit ``u``, ``w`` and every k
+(static models: from the hoppings; drives: ``g_c`` from the exact ``dU/dk`` at ``k_c`` and
+``lip2`` from the steps, :func:`sweepcli.physics.floquet_chern.drive_curvature_bound`), or
+``g_c`` a bound for every k and ``lip2 = 0``. Within ``r`` of ``k_c``:
 ``||X(k) - X(k_c)|| <= eps_c = g_c r + lip2 r^2 / 2`` and the slope is at most
 ``g_c + lip2 r``; by Weyl's inequality (Hermitian), the Bauer-Fike theorem (normal) or the
 singular-value form of Weyl's inequality (blocks) the separation at ``k`` is at least
@@ -139,8 +141,8 @@ HOT_SHARE = 0.5
 
 def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
                     n: int, m: int, lip2: float, *, flux_tol: float, budget: int,
-                    max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0
-                    ) -> tuple[int | None, float, int, int]:
+                    max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
+                    sep_max: float | None = None) -> tuple[int | None, float, int, int]:
     """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
 
     Parameters
@@ -156,6 +158,10 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
     max_n, growth : while more than :data:`HOT_SHARE` of the base plaquettes fail, the base
         mesh grows by ``growth`` up to ``max_n`` (default ``n``).
     sylvester : constant of :func:`cell_lambda` (``pi / 2`` for the eigenspaces of a unitary).
+    sep_max : an upper bound on the separation at every k (2 for the strip of a unitary), if
+        known: no cell of side ``h`` with ``sylvester h lip2 h / sqrt 2 > lambda_max sep_max``
+        can pass the bound whatever its corners hold, so the base mesh starts at least that
+        fine (at most ``max_n``).
 
     Returns
     -------
@@ -167,6 +173,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
 
     lam_max = lambda_max(m)
     max_n = n if max_n is None else max_n
+    if sep_max is not None and lip2 > 0:
+        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / (sylvester * lip2))
+        n = min(max(n, int(math.ceil(2 * np.pi / h_min))), max_n)
     used = 0
 
     def wrap(x: np.ndarray) -> np.ndarray:

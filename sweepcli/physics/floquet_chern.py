@@ -69,7 +69,7 @@ class FloquetChern:
         Chern numbers of the bands with quasienergy in ``(0, pi/T)`` and ``(-pi/T, 0)``
         (sign of :func:`sweepcli.physics.chern.fhs_chern`); ``None`` if missing. A group
         with no bands has Chern number 0.
-    kmesh : mesh used last, or None.
+    kmesh : base mesh of the proven adaptive mesh (points per direction), or None.
     max_flux : largest plaquette flux on that mesh (rad), nan if missing.
     reason : Reason.
     """
@@ -81,37 +81,136 @@ class FloquetChern:
     reason: Reason
 
 
-def drive_slope_bounds(factors: Sequence[tuple[float, TightBinding]]
-                       ) -> Callable[[np.ndarray], np.ndarray]:
-    """``slope(k)``: a bound on ``||dU/dk_u||`` at reduced momenta ``k`` ``(..., 2)`` for every
-    unit direction ``u``, ``sum_f d_f sqrt(||dH_f/dk_1||^2 + ||dH_f/dk_2||^2)`` over the
-    factors ``(d_f, H_f)`` of ``U = U_F ... U_1`` (Duhamel: ``||d e^{-i d H}|| <= d ||dH||``);
-    the factors' hoppings are stacked so that the sum is one batched contraction per chunk."""
-    keys = sorted(set().union(*(tb.hoppings for _, tb in factors)))
-    durations = np.array([d for d, _ in factors], float)
-    if not keys:
-        return lambda k: np.zeros(np.shape(k)[:-1])
-    n = factors[0][1].norb
-    zero = np.zeros((n, n), complex)
-    disp = np.array(keys, float).reshape(len(keys), -1)
-    hops = np.array([[tb.hoppings.get(r, zero) for r in keys] for _, tb in factors], complex)
-    # Chunks of factors keep the (points, factors, n, n) derivatives near 2**21 entries.
-    chunk_entries = 2 ** 21
+def drive_jet(factors: Sequence[tuple[float, TightBinding]]
+              ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]:
+    """``jet(k)``: the product ``U = U_F ... U_1`` of the factors ``U_f = exp(-i d_f H_f(k))``
+    and its exact derivatives ``(dU/dk_1, dU/dk_2)`` at reduced momenta ``k`` ``(..., 2)``.
 
-    def slope(k: np.ndarray) -> np.ndarray:
+    Returns ``(U, dU)`` of shapes ``(..., n, n)`` and ``(..., 2, n, n)``. In the eigenbasis of
+    ``H_f = V diag(E) V^+`` the derivative of one factor is the divided difference
+    ``(V^+ dU_f V)_ab = (V^+ dH_f V)_ab (e^{-i E_a d} - e^{-i E_b d}) / (E_a - E_b)``, written
+    ``-i d e^{-i (E_a + E_b) d / 2} sinc((E_a - E_b) d / 2)`` so that it tends to the limit
+    ``-i d e^{-i E_a d}`` smoothly at ``E_a = E_b``; the product rule
+    ``dU <- dU_f U + U_f dU`` runs along with the product. A factor without hoppings has
+    ``dU_f = 0``.
+    """
+    n = factors[0][1].norb
+    mm = _matmul2 if n == 2 else np.matmul
+
+    def jet(k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         k = np.asarray(k, float)
-        phase = np.exp(1j * (k @ disp.T))
-        points = int(np.prod(k.shape[:-1], dtype=int))
-        step = max(1, chunk_entries // max(points * n * n, 1))
-        total = np.zeros(k.shape[:-1])
-        for lo in range(0, len(factors), step):
-            s2 = 0.0
-            for i in range(2):
-                d = np.einsum("...m,fmij->...fij", 1j * disp[:, i] * phase, hops[lo:lo + step])
-                s2 = s2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
-            total = total + np.sqrt(s2) @ durations[lo:lo + step]
-        return total
-    return slope
+        shape = k.shape[:-1]
+        u = np.broadcast_to(np.eye(n, dtype=complex), shape + (n, n)).copy()
+        du = np.zeros(shape + (2, n, n), complex)
+        # Step drives repeat a few TightBinding objects: their Bloch matrices are shared.
+        seen: dict[int, tuple[TightBinding, np.ndarray, np.ndarray | None]] = {}
+        for d, tb in factors:
+            hit = seen.get(id(tb))
+            if hit is None or hit[0] is not tb:
+                dh = np.stack([tb.bloch_derivative(k, i) for i in range(2)], axis=-3) \
+                    if tb.hoppings else None
+                hit = (tb, tb.bloch(k), dh)
+                seen[id(tb)] = hit
+            _, h, dh = hit
+            uf, duf = (_factor_jet2 if n == 2 else _factor_jet)(h, dh, d)
+            if duf is None:
+                du = mm(uf[..., None, :, :], du)
+            else:
+                du = mm(duf, u[..., None, :, :]) + mm(uf[..., None, :, :], du)
+            u = mm(uf, u)
+        return u, du
+    return jet
+
+
+def _matmul2(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``a @ b`` for stacks of 2x2 matrices, entry by entry (several times faster than
+    ``numpy.matmul`` on large stacks of small matrices)."""
+    a, b = np.broadcast_arrays(a, b)
+    out = np.empty(a.shape, np.result_type(a, b))
+    for i in range(2):
+        for j in range(2):
+            out[..., i, j] = a[..., i, 0] * b[..., 0, j] + a[..., i, 1] * b[..., 1, j]
+    return out
+
+
+def _factor_jet(h: np.ndarray, dh: np.ndarray | None, d: float
+                ) -> tuple[np.ndarray, np.ndarray | None]:
+    """``exp(-i d h)`` and its derivatives along ``dh`` ``(..., 2, n, n)``, from the
+    eigen-decomposition of ``h`` (divided differences, :func:`drive_jet`)."""
+    e, v = np.linalg.eigh(h)
+    vh = dagger(v)
+    uf = (v * np.exp(-1j * d * e)[..., None, :]) @ vh
+    if dh is None:
+        return uf, None
+    dd = vh[..., None, :, :] @ dh @ v[..., None, :, :]
+    diff = (e[..., :, None] - e[..., None, :]) * (d / 2)
+    mean = (e[..., :, None] + e[..., None, :]) * (d / 2)
+    phi = (-1j * d) * np.exp(-1j * mean) * np.sinc(diff / np.pi)
+    return uf, v[..., None, :, :] @ (dd * phi[..., None, :, :]) @ vh[..., None, :, :]
+
+
+def _factor_jet2(h: np.ndarray, dh: np.ndarray | None, d: float
+                 ) -> tuple[np.ndarray, np.ndarray | None]:
+    """:func:`_factor_jet` for 2x2 ``h`` in closed form: with ``h = h0 + A``, ``A^2 = r^2``,
+    ``exp(-i d h) = e^{-i h0 d} (cos(r d) - i s A)``, ``s = sin(r d) / r``, and along
+    ``dh = dh0 + dA`` (``r dr = tr(A dA) / 2 =: q``):
+    ``d exp = -i d dh0 exp + e^{-i h0 d} (-d s q - i s' q A - i s dA)`` with
+    ``s' = d (cos(r d) - sin(r d) / (r d)) / r^2`` (its series ``-d^3 (1/3 - x^2/30)``,
+    ``x = r d``, near ``r = 0``)."""
+    h0 = (h[..., 0, 0].real + h[..., 1, 1].real) / 2
+    a00 = h[..., 0, 0].real - h0
+    a01 = h[..., 0, 1]
+    r = np.sqrt(a00 ** 2 + np.abs(a01) ** 2)
+    x = r * d
+    c = np.cos(x)
+    s = d * np.sinc(x / np.pi)
+    ph = np.exp(-1j * h0 * d)
+    uf = np.empty(h.shape, complex)
+    uf[..., 0, 0] = ph * (c - 1j * s * a00)
+    uf[..., 1, 1] = ph * (c + 1j * s * a00)
+    uf[..., 0, 1] = ph * (-1j * s) * a01
+    uf[..., 1, 0] = ph * (-1j * s) * np.conj(a01)
+    if dh is None:
+        return uf, None
+    small = np.abs(x) < 1e-2
+    xs = np.where(small, 1.0, x)
+    sp = np.where(small, -d ** 3 * (1 / 3 - x * x / 30),
+                  d ** 3 * (np.cos(xs) - np.sin(xs) / xs) / (xs * xs))
+    dh0 = (dh[..., 0, 0].real + dh[..., 1, 1].real) / 2
+    da00 = dh[..., 0, 0].real - dh0
+    da01 = dh[..., 0, 1]
+    q = a00[..., None] * da00 + np.real(np.conj(a01)[..., None] * da01)
+    c1, s1, ph1, a00_, a01_ = (z[..., None] for z in (c, s, ph, a00, a01))
+    lead = -1j * d * dh0
+    scal = ph1 * (-d * s1 * q)
+    sa = ph1 * (-1j) * sp[..., None] * q
+    ss = ph1 * (-1j) * s1
+    duf = np.empty(dh.shape, complex)
+    ufe = uf[..., None, :, :]
+    duf[..., 0, 0] = lead * ufe[..., 0, 0] + scal + sa * a00_ + ss * da00
+    duf[..., 1, 1] = lead * ufe[..., 1, 1] + scal - sa * a00_ - ss * da00
+    duf[..., 0, 1] = lead * ufe[..., 0, 1] + sa * a01_ + ss * da01
+    duf[..., 1, 0] = lead * ufe[..., 1, 0] + sa * np.conj(a01_) + ss * np.conj(da01)
+    return uf, duf
+
+
+def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]]) -> float:
+    """A bound on ``||d^2 U / dk_u dk_w||`` for all unit directions ``u``, ``w`` and every k:
+    ``(sum_f d_f L1_f)^2 + sum_f d_f L2_f`` with ``(L1_f, L2_f)`` the hopping bounds of
+    :func:`~sweepcli.physics.certify.hopping_bounds` of factor ``f``.
+
+    Proof: by Duhamel's formula ``||dU_f|| <= d_f L1_f =: a_f`` and ``||d^2 U_f|| <= a_f^2 +
+    d_f L2_f`` (the second derivative of ``exp(-i d H)`` is two nested Duhamel integrals of
+    ``dH`` and one of ``d^2 H``, the first two with weights ``int (d - s) ds + int s ds = d^2``);
+    the product rule for ``U_F ... U_1`` then gives ``sum_f (a_f^2 + d_f L2_f) + 2 sum_{f > g}
+    a_f a_g``.
+    """
+    a = b = 0.0
+    for d, tb in factors:
+        l1, l2 = hopping_bounds(tb.hoppings)
+        a += d * l1
+        b += d * l2
+    return a * a + b
 
 
 def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
@@ -123,24 +222,29 @@ def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
     ``data(k)`` returns the group's eigenvectors (the ``m`` lowest quasienergies, or the
     others if ``upper``), the width ``min_lower sin(|eps| T) + min_upper sin(|eps| T)`` of the
     strip along the real axis between the eigenvalues of the two groups (0 where the lower
-    group does not hold ``m`` bands), and the slope of :func:`drive_slope_bounds`;
-    ``lip2 = sum_f d_f L2_f`` bounds the slope's own Lipschitz constant
-    (:func:`~sweepcli.physics.certify.hopping_bounds`)."""
+    group does not hold ``m`` bands), and the slope ``sqrt(||dU/dk_1||^2 + ||dU/dk_2||^2)``
+    from the exact derivatives of :func:`drive_jet` (a bound on ``||dU/dk_u||`` for every unit
+    ``u``; ``||dU|| = ||U^+ dU||``, a Hermitian norm up to the factor ``i``);
+    ``lip2 = drive_curvature_bound(factors)`` bounds the second derivatives, hence the change
+    of ``||dU/dk_u||`` per unit of ``k``."""
     slices = None if drive.exact or slicing is None else slicing.slices
     factors = list(drive.factors(slices=slices))
-    slope = drive_slope_bounds(factors)
-    lip2 = float(sum(d * hopping_bounds(tb.hoppings)[1] for d, tb in factors))
+    jet = drive_jet(factors)
+    lip2 = drive_curvature_bound(factors)
     T = drive.period
 
     def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        u = floquet_evolution(drive, k, slicing=slicing).u
+        u, du = jet(k)
         eps, v = quasienergies(u, T)
         width = np.sin(np.abs(eps) * T)
         low = eps < 0
         sep = np.min(np.where(low, width, np.inf), axis=-1) + \
             np.min(np.where(low, np.inf, width), axis=-1)
         sep = np.where(np.sum(low, axis=-1) == m, sep, 0.0)
-        return (v[..., m:] if upper else v[..., :m]), sep, slope(k)
+        a = 1j * (dagger(u)[..., None, :, :] @ du)
+        a = (a + dagger(a)) / 2
+        slope = np.sqrt(np.sum(hermitian_norm(a) ** 2, axis=-1))
+        return (v[..., m:] if upper else v[..., :m]), sep, slope
     return data, lip2
 
 
@@ -156,11 +260,21 @@ def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     plaquette whose bound does not prove it subdivided
     (:func:`~sweepcli.physics.certify.certified_chern` with the unitary constant ``pi / 2``;
     separation and slopes from :func:`floquet_subspace`: the local strip width between the two
-    groups' eigenvalues at the corners and ``sum_f d_f ||dH_f/dk||`` of the drive's factors),
-    up to ``WORK * max_kmesh**2`` points, else ``NOT_CONVERGED``. The other group's number is
-    its negative (the two groups span every band, whose bundle is trivial). Proven and
-    assumed: :mod:`sweepcli.physics.certify`; the operator is that of the time slicing
-    ``slicing`` (default: the one the gap search used, ``gaps.slices``).
+    groups' eigenvalues and the exact ``||dU/dk||`` at the corners, the second-derivative
+    bound :func:`drive_curvature_bound` of the drive's factors), up to
+    ``WORK * max_kmesh**2`` points, else ``NOT_CONVERGED``; the base mesh starts no coarser
+    than that bound alone allows (``sep_max = 2``). The other group's number is its negative
+    (the two groups span every band, whose bundle is trivial). ``kmesh`` of the result is the
+    base mesh.
+
+    Proven: the stored number is the Chern number of the group of the operator ``U(k)`` that
+    the factors define (the cell bound of :mod:`sweepcli.physics.certify`, with ``||U(k) -
+    U(k_c)|| <= g_c r + lip2 r^2 / 2`` and ``||dU/dk_u(k)|| <= g_c + lip2 r`` within ``r`` of a
+    corner ``k_c``, ``g_c`` exact at ``k_c`` and ``lip2`` the proven bound of
+    :func:`drive_curvature_bound`). Assumed: the eigen-decompositions and derivatives at the
+    mesh points are exact to rounding (``U^+ dU`` is taken as anti-Hermitian), and the
+    operator is that of the time slicing ``slicing`` (default: the one the gap search used,
+    ``gaps.slices``); the slicing error is not part of the bound.
     """
     if not gaps.converged:
         return FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
@@ -180,7 +294,7 @@ def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     data, lip2 = floquet_subspace(drive, slicing, m, upper)
     c, flux, _, n = certified_chern(data, n, min(m, norb - m), lip2, flux_tol=flux_tol,
                                     budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
-                                    growth=GROWTH, sylvester=math.pi / 2)
+                                    growth=GROWTH, sylvester=math.pi / 2, sep_max=2.0)
     if c is None:
         return FloquetChern(None, None, n, flux, Reason.NOT_CONVERGED)
     return FloquetChern(c if upper else -c, -c if upper else c, n, flux, Reason.OK)
@@ -310,8 +424,7 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     given): a level is accepted when both raw integrals are within ``residue_tol`` of integers
     whose difference is that proven number; a proven difference that no level matches leaves
     both windings missing (``NOT_CONVERGED``). Where the Chern number could not be proven within
-    its budget (the a-priori bound cannot see cancellations between the steps, e.g. the flat
-    ``U(k)`` of the anomalous five-step drive) or one gap is closed, there is no such check,
+    its budget or one gap is closed, there is no such check,
     and a winding is accepted when two successive levels round to the same integer within
     ``residue_tol``.
 
