@@ -173,3 +173,68 @@ def test_random_driven_pockets_never_a_wrong_integer(a, b, m, sign):
     ref = trim_count(b, sign * m)
     assert (c.lower, c.upper) == (ref, -ref) or (
         c.lower is None and c.reason == Reason.NOT_CONVERGED)
+
+
+def random_step_drive(seed: int, norb: int) -> StepDrive:
+    rng = np.random.default_rng(seed)
+
+    def part():
+        def herm():
+            a = rng.normal(size=(norb, norb)) + 1j * rng.normal(size=(norb, norb))
+            return (a + a.conj().T) / 2
+        hops = {(1, 0): rng.normal(size=(norb, norb)) + 1j * rng.normal(size=(norb, norb)),
+                (1, 1): 0.5 * (rng.normal(size=(norb, norb))
+                               + 1j * rng.normal(size=(norb, norb)))}
+        return assemble(np.eye(2), np.zeros((norb, 2)), herm(),
+                        [fourier_term(r, t) for r, t in hops.items()])
+    return StepDrive(1.3, ((0.5, part()), (0.3, part()), (0.5, part())))
+
+
+@pytest.mark.parametrize("seed, norb", [(0, 2), (1, 2), (2, 3)])
+def test_drive_jet_against_expm_differences(seed, norb):
+    # Reference: scipy.linalg.expm products of the steps, differentiated by central
+    # differences; the second-derivative bound must dominate their second differences.
+    import scipy.linalg as sl
+
+    d = random_step_drive(seed, norb)
+    factors = d.factors()
+
+    def product(k):
+        u = np.eye(norb, dtype=complex)
+        for dur, tb in factors:
+            u = sl.expm(-1j * dur * tb.bloch(k)) @ u
+        return u
+
+    k = np.array([[0.37, -1.2], [2.5, 0.8]])
+    u, du = fc.drive_jet(factors)(k)
+    h = 1e-5
+    bound = fc.drive_curvature_bound(factors)
+    for p in range(2):
+        np.testing.assert_allclose(u[p], product(k[p]), atol=1e-12)
+        for i in range(2):
+            e = np.zeros(2)
+            e[i] = h
+            fd = (product(k[p] + e) - product(k[p] - e)) / (2 * h)
+            np.testing.assert_allclose(du[p, i], fd, atol=1e-7)
+            h2 = 1e-3
+            e[i] = h2
+            second = (product(k[p] + e) - 2 * product(k[p]) + product(k[p] - e)) / h2 ** 2
+            assert np.linalg.norm(second, 2) <= bound
+
+
+def test_two_band_closed_form_jet_matches_eigenbasis_form_at_degeneracy():
+    # The closed form of a 2x2 step against the divided differences of numpy.linalg.eigh, at
+    # exact, nearly exact and generic degeneracies of H.
+    rng = np.random.default_rng(3)
+    for scale in (0.0, 1e-9, 1e-3, 1.0):
+        a = rng.normal(size=(5, 2, 2)) + 1j * rng.normal(size=(5, 2, 2))
+        hm = (a + np.conj(np.swapaxes(a, -1, -2))) / 2
+        hm[..., 0, 1] *= scale
+        hm[..., 1, 0] *= scale
+        hm[..., 1, 1] = hm[..., 0, 0] + scale * hm[..., 1, 1]
+        b = rng.normal(size=(5, 2, 2, 2)) + 1j * rng.normal(size=(5, 2, 2, 2))
+        dh = b + np.conj(np.swapaxes(b, -1, -2))
+        u1, d1 = fc._factor_jet(hm, dh, 0.7)
+        u2, d2 = fc._factor_jet2(hm, dh, 0.7)
+        np.testing.assert_allclose(u2, u1, atol=1e-13)
+        np.testing.assert_allclose(d2, d1, atol=1e-12)
