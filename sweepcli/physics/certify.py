@@ -119,12 +119,21 @@ def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
 
     ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side; ``c = sylvester`` the
     constant of the Sylvester-equation bound (1 for a Hermitian ``X``, ``pi / 2`` for a unitary
-    one). ``inf`` where the separation bound is not positive.
+    one). ``lip2`` may also be a sequence of ``K`` constants, one per slope bound given along
+    the axis before the corners of ``slope`` ``(..., K, 4)``: each bound is valid, so the
+    smallest is used. ``inf`` where the separation bound is not positive.
     """
     r = h / math.sqrt(2)
-    eps = slope * r + 0.5 * lip2 * r * r
+    lip2 = np.asarray(lip2, float)
+    if lip2.ndim:
+        # Several bounds (slope ``(..., K, 4)``, ``lip2`` ``(K,)``), each proven: the smallest
+        # distance bound at each corner and the smallest slope bound over the cell.
+        eps = np.min(slope * r + 0.5 * lip2[:, None] * r * r, axis=-2)
+        g = np.min(np.max(slope, axis=-1) + lip2 * r, axis=-1)
+    else:
+        eps = slope * r + 0.5 * lip2 * r * r
+        g = np.max(slope, axis=-1) + lip2 * r
     lo = np.min(sep - 2 * eps, axis=-1)
-    g = np.max(slope, axis=-1) + lip2 * r
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(lo > 0, sylvester * h * g / np.where(lo > 0, lo, 1.0), np.inf)
 
@@ -140,7 +149,8 @@ HOT_SHARE = 0.5
 
 
 def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
-                    n: int, m: int, lip2: float, *, flux_tol: float, budget: int,
+                    n: int, m: int, lip2: float | tuple[float, ...], *, flux_tol: float,
+                    budget: int,
                     max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
                     sep_max: float | None = None) -> tuple[int | None, float, int, int]:
     """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
@@ -152,7 +162,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         (module docstring).
     n : points per direction of the first periodic base mesh.
     m : rank of the subspace (sets :func:`lambda_max`).
-    lip2 : Lipschitz constant of the slope (0 when the slope is a global bound).
+    lip2 : Lipschitz constant of the slope (0 when the slope is a global bound), or a
+        sequence of them when ``data`` returns several slope bounds ``(..., K)``
+        (:func:`cell_lambda`).
     flux_tol : a cell whose plaquette phase is at or above this is subdivided too.
     budget : most points evaluated in all (base meshes included).
     max_n, growth : while more than :data:`HOT_SHARE` of the base plaquettes fail, the base
@@ -173,8 +185,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
 
     lam_max = lambda_max(m)
     max_n = n if max_n is None else max_n
-    if sep_max is not None and lip2 > 0:
-        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / (sylvester * lip2))
+    lip2_min = float(np.min(lip2))
+    if sep_max is not None and lip2_min > 0:
+        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / (sylvester * lip2_min))
         n = min(max(n, int(math.ceil(2 * np.pi / h_min))), max_n)
     used = 0
 

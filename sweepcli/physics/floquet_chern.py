@@ -82,12 +82,15 @@ class FloquetChern:
 
 
 def drive_jet(factors: Sequence[tuple[float, TightBinding]]
-              ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]:
+              ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]]:
     """``jet(k)``: the product ``U = U_F ... U_1`` of the factors ``U_f = exp(-i d_f H_f(k))``
     and its exact derivatives ``(dU/dk_1, dU/dk_2)`` at reduced momenta ``k`` ``(..., 2)``.
 
-    Returns ``(U, dU)`` of shapes ``(..., n, n)`` and ``(..., 2, n, n)``. In the eigenbasis of
-    ``H_f = V diag(E) V^+`` the derivative of one factor is the divided difference
+    Returns ``(U, dU, steps)`` of shapes ``(..., n, n)``, ``(..., 2, n, n)`` and ``(...)``,
+    ``steps = sum_f d_f sqrt(||dH_f/dk_1||^2 + ||dH_f/dk_2||^2)`` (Duhamel: a second bound on
+    ``||dU/dk_u||``, which changes by at most ``sum_f d_f L2_f`` per unit of ``k``; tighter than
+    the exact slope's bound where the factors share ``dH/dk``, e.g. a modulated mass). In the
+    eigenbasis of ``H_f = V diag(E) V^+`` the derivative of one factor is the divided difference
     ``(V^+ dU_f V)_ab = (V^+ dH_f V)_ab (e^{-i E_a d} - e^{-i E_b d}) / (E_a - E_b)``, written
     ``-i d e^{-i (E_a + E_b) d / 2} sinc((E_a - E_b) d / 2)`` so that it tends to the limit
     ``-i d e^{-i E_a d}`` smoothly at ``E_a = E_b``; the product rule
@@ -102,6 +105,7 @@ def drive_jet(factors: Sequence[tuple[float, TightBinding]]
         shape = k.shape[:-1]
         u = np.broadcast_to(np.eye(n, dtype=complex), shape + (n, n)).copy()
         du = np.zeros(shape + (2, n, n), complex)
+        steps = np.zeros(shape)
         # Step drives repeat a few TightBinding objects: their Bloch matrices are shared.
         seen: dict[int, tuple[TightBinding, np.ndarray, np.ndarray | None]] = {}
         for d, tb in factors:
@@ -112,13 +116,15 @@ def drive_jet(factors: Sequence[tuple[float, TightBinding]]
                 hit = (tb, tb.bloch(k), dh)
                 seen[id(tb)] = hit
             _, h, dh = hit
+            if dh is not None:
+                steps = steps + d * np.sqrt(np.sum(hermitian_norm(dh) ** 2, axis=-1))
             uf, duf = (_factor_jet2 if n == 2 else _factor_jet)(h, dh, d)
             if duf is None:
                 du = mm(uf[..., None, :, :], du)
             else:
                 du = mm(duf, u[..., None, :, :]) + mm(uf[..., None, :, :], du)
             u = mm(uf, u)
-        return u, du
+        return u, du, steps
     return jet
 
 
@@ -215,7 +221,7 @@ def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]]) -> floa
 
 def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
                      ) -> tuple[Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
-                                float]:
+                                tuple[float, float]]:
     """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for one Floquet band
     group of a 2D drive, and its ``lip2``.
 
@@ -224,17 +230,20 @@ def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
     strip along the real axis between the eigenvalues of the two groups (0 where the lower
     group does not hold ``m`` bands), and the slope ``sqrt(||dU/dk_1||^2 + ||dU/dk_2||^2)``
     from the exact derivatives of :func:`drive_jet` (a bound on ``||dU/dk_u||`` for every unit
-    ``u``; ``||dU|| = ||U^+ dU||``, a Hermitian norm up to the factor ``i``);
-    ``lip2 = drive_curvature_bound(factors)`` bounds the second derivatives, hence the change
-    of ``||dU/dk_u||`` per unit of ``k``."""
+    ``u``; ``||dU|| = ||U^+ dU||``, a Hermitian norm up to the factor ``i``) beside the
+    factors' ``steps`` bound (:func:`drive_jet`), shape ``(..., 2)``; ``lip2`` holds their
+    Lipschitz constants, ``drive_curvature_bound(factors)`` (the second derivatives) and
+    ``sum_f d_f L2_f``. Each bound is proven; a cell uses the smaller
+    (:func:`~sweepcli.physics.certify.cell_lambda`)."""
     slices = None if drive.exact or slicing is None else slicing.slices
     factors = list(drive.factors(slices=slices))
     jet = drive_jet(factors)
-    lip2 = drive_curvature_bound(factors)
+    lip2 = (drive_curvature_bound(factors),
+            float(sum(d * hopping_bounds(tb.hoppings)[1] for d, tb in factors)))
     T = drive.period
 
     def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        u, du = jet(k)
+        u, du, steps = jet(k)
         eps, v = quasienergies(u, T)
         width = np.sin(np.abs(eps) * T)
         low = eps < 0
@@ -243,7 +252,7 @@ def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
         sep = np.where(np.sum(low, axis=-1) == m, sep, 0.0)
         a = 1j * (dagger(u)[..., None, :, :] @ du)
         a = (a + dagger(a)) / 2
-        slope = np.sqrt(np.sum(hermitian_norm(a) ** 2, axis=-1))
+        slope = np.stack([np.sqrt(np.sum(hermitian_norm(a) ** 2, axis=-1)), steps], axis=-1)
         return (v[..., m:] if upper else v[..., :m]), sep, slope
     return data, lip2
 

@@ -9,13 +9,13 @@ windings), :mod:`sweepcli.physics.chiral_winding` (1D windings of chiral chains)
 
 Chern numbers (static and Floquet) and the chiral windings are proven on adaptive meshes
 (:mod:`sweepcli.physics.certify`): a first mesh (for Chern numbers set by the gap,
-:func:`gap_rule_kmesh`, at least ``CHERN_KMESH``), and every plaquette or step whose bound (from the local gap and the
-Lipschitz constants of ``H(k)`` or ``U(k)``) does not prove the integer is subdivided, within a
-budget of points set by ``max_kmesh``; where the budget runs out the value is missing with
-:attr:`Reason.NOT_CONVERGED`. The walk of uniform meshes (:func:`mesh_sequence`,
-:func:`walk_meshes`: accept when two successive meshes are below the tolerance and agree) is
-the policy of :mod:`sweepcli.physics.spin_chern`, which has no such bound. A gap below
-``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
+:func:`gap_rule_kmesh`, at least ``CHERN_KMESH``), and every plaquette or step whose bound
+(from the local gap and the Lipschitz constants of ``H(k)`` or ``U(k)``) does not prove the
+integer is subdivided, within a budget of points set by ``max_kmesh``; where the budget runs
+out the value is missing with :attr:`Reason.NOT_CONVERGED`. The walk of uniform meshes
+(:func:`mesh_sequence`, :func:`walk_meshes`: accept when two successive meshes are below the
+tolerance and agree) is the policy of :mod:`sweepcli.physics.spin_chern`, which has no such
+bound. A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
 """
 
 from __future__ import annotations
