@@ -25,9 +25,9 @@ from sweepcli.jobfile.load import load_job  # noqa: E402
 from sweepcli.physics.measurements import MEASUREMENTS  # noqa: E402
 
 JOBS = ("quickstart", "honeycomb-flux", "chain-ends", "chiral-chain", "harmonic-chern",
-        "anomalous-five-step", "driven-chain")
+        "anomalous-five-step", "driven-chain", "bhz-spin")
 INVARIANTS = ("chern", "winding", "floquet_chern", "chiral_windings", "rudner_winding",
-              "line_winding")
+              "line_winding", "spin_chern")
 GAPS = ("gap", "quasienergy_gaps")
 
 

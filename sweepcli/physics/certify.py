@@ -8,12 +8,16 @@ constants that follow from the hoppings alone, the way
 :func:`~sweepcli.physics.spectrum.velocity_bound` bounds the band velocity.
 
 Inputs of a bound at each mesh point ``k_c``: the *separation* ``sep_c`` (the direct gap
-``E_nocc - E_nocc-1`` of a Hermitian ``X = H``; ``2 min_j |sin(eps_j T)|`` of a unitary
-``X = U``, the width of the strip about the real axis that separates the two Floquet band
-groups; the smallest singular value ``sigma_min(q)`` of a chiral block ``q``) and the *slope*
+``E_nocc - E_nocc-1`` of a Hermitian ``X = H``; ``min_lower sin(|eps_j| T) +
+min_upper sin(|eps_j| T)`` of a unitary ``X = U``, the width of the strip along the real axis
+that separates the eigenvalues of the two Floquet band groups (quasienergies in ``(-pi/T, 0)``
+above it, ``(0, pi/T)`` below); the smallest singular value ``sigma_min(q)`` of a chiral
+block ``q``) and the *slope*
 ``g_c``, a bound on ``||d X / d k_u||`` at ``k_c`` for every unit direction ``u``; and a
-constant ``lip2`` with ``||d g / d k|| <= lip2`` (the second derivative, static models), or
-``g_c`` a bound for every k and ``lip2 = 0`` (drives). Within ``r`` of ``k_c``:
+constant ``lip2`` with ``||d^2 X / dk_u dk_w|| <= lip2`` for all unit ``u``, ``w`` and every k
+(static models: from the hoppings; drives: ``g_c`` from the exact ``dU/dk`` at ``k_c`` and
+``lip2`` from the steps, :func:`sweepcli.physics.floquet_chern.drive_curvature_bound`), or
+``g_c`` a bound for every k and ``lip2 = 0``. Within ``r`` of ``k_c``:
 ``||X(k) - X(k_c)|| <= eps_c = g_c r + lip2 r^2 / 2`` and the slope is at most
 ``g_c + lip2 r``; by Weyl's inequality (Hermitian), the Bauer-Fike theorem (normal) or the
 singular-value form of Weyl's inequality (blocks) the separation at ``k`` is at least
@@ -23,11 +27,12 @@ Chern numbers (:func:`cell_lambda`, :func:`certified_chern`)
 -------------------------------------------------------------
 For a cell of side ``h`` let ``G`` bound the slope and ``D`` the separation over the closed
 cell (from its corners as above, every point being within ``h / sqrt 2`` of one), and
-``lambda = h G / D``. Proven: the occupied projector has ``||dP/dk_u|| <= G / D`` (the
-off-diagonal block ``Q dP P`` solves a Sylvester equation with spectra separated by ``D``,
-constant 1 for Hermitian ``X``; ``pi/2`` for a unitary, Bhatia, Davis and McIntosh 1983,
-which is folded into the slope), so every point of the cell has ``||P(k) - P(k_a)|| <= rho =
-sqrt 2 lambda`` from a corner ``k_a``. In the smooth gauge ``V(k) = P V_a (V_a^+ P V_a)^-1/2``
+``lambda = c h G / D``. Proven: the occupied projector has ``||dP/dk_u|| <= c G / D`` (the
+off-diagonal block ``Q dP P`` solves a Sylvester equation with spectra separated by ``D``;
+``c = 1`` for Hermitian ``X``, ``c = pi/2`` for a unitary whose two spectral sets lie on
+either side of a strip, Bhatia, Davis and McIntosh 1983: the ``sylvester`` argument), so every
+point of the cell has ``||P(k) - P(k_a)|| <= rho = sqrt 2 lambda`` from a corner ``k_a``. In
+the smooth gauge ``V(k) = P V_a (V_a^+ P V_a)^-1/2``
 of the cell, the link phase of a boundary segment of length ``l`` is at most
 ``m arcsin(y)``, ``y = (l / h) lambda / (1 - rho^2)`` (``m`` occupied bands; the eigenvalues of
 ``1 + M^-1/2 V_a^+ P (P' - P) V_a M^-1/2`` lie within ``y`` of 1), and ``|A| <= m rho ||dP|| /
@@ -108,18 +113,29 @@ def lambda_max(m: int) -> float:
     return LAMBDA_SAFETY * (-1 + math.sqrt(1 + 8 * s * s)) / (4 * s)
 
 
-def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float) -> np.ndarray:
-    """Bound ``lambda = h G / D`` of square cells from their corners (module docstring).
+def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
+                sylvester: float = 1.0) -> np.ndarray:
+    """Bound ``lambda = c h G / D`` of square cells from their corners (module docstring).
 
-    ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side. ``inf`` where the
-    separation bound is not positive.
+    ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side; ``c = sylvester`` the
+    constant of the Sylvester-equation bound (1 for a Hermitian ``X``, ``pi / 2`` for a unitary
+    one). ``lip2`` may also be a sequence of ``K`` constants, one per slope bound given along
+    the axis before the corners of ``slope`` ``(..., K, 4)``: each bound is valid, so the
+    smallest is used. ``inf`` where the separation bound is not positive.
     """
     r = h / math.sqrt(2)
-    eps = slope * r + 0.5 * lip2 * r * r
+    lip2 = np.asarray(lip2, float)
+    if lip2.ndim:
+        # Several bounds (slope ``(..., K, 4)``, ``lip2`` ``(K,)``), each proven: the smallest
+        # distance bound at each corner and the smallest slope bound over the cell.
+        eps = np.min(slope * r + 0.5 * lip2[:, None] * r * r, axis=-2)
+        g = np.min(np.max(slope, axis=-1) + lip2 * r, axis=-1)
+    else:
+        eps = slope * r + 0.5 * lip2 * r * r
+        g = np.max(slope, axis=-1) + lip2 * r
     lo = np.min(sep - 2 * eps, axis=-1)
-    g = np.max(slope, axis=-1) + lip2 * r
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(lo > 0, h * g / np.where(lo > 0, lo, 1.0), np.inf)
+        return np.where(lo > 0, sylvester * h * g / np.where(lo > 0, lo, 1.0), np.inf)
 
 
 def _corners(x: np.ndarray) -> np.ndarray:
@@ -133,9 +149,10 @@ HOT_SHARE = 0.5
 
 
 def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
-                    n: int, m: int, lip2: float, *, flux_tol: float, budget: int,
-                    max_n: int | None = None, growth: float = 1.5
-                    ) -> tuple[int | None, float, int, int]:
+                    n: int, m: int, lip2: float | tuple[float, ...], *, flux_tol: float,
+                    budget: int,
+                    max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
+                    sep_max: float | None = None) -> tuple[int | None, float, int, int]:
     """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
 
     Parameters
@@ -145,11 +162,18 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         (module docstring).
     n : points per direction of the first periodic base mesh.
     m : rank of the subspace (sets :func:`lambda_max`).
-    lip2 : Lipschitz constant of the slope (0 when the slope is a global bound).
+    lip2 : Lipschitz constant of the slope (0 when the slope is a global bound), or a
+        sequence of them when ``data`` returns several slope bounds ``(..., K)``
+        (:func:`cell_lambda`).
     flux_tol : a cell whose plaquette phase is at or above this is subdivided too.
     budget : most points evaluated in all (base meshes included).
     max_n, growth : while more than :data:`HOT_SHARE` of the base plaquettes fail, the base
         mesh grows by ``growth`` up to ``max_n`` (default ``n``).
+    sylvester : constant of :func:`cell_lambda` (``pi / 2`` for the eigenspaces of a unitary).
+    sep_max : an upper bound on the separation at every k (2 for the strip of a unitary), if
+        known: no cell of side ``h`` with ``sylvester h lip2 h / sqrt 2 > lambda_max sep_max``
+        can pass the bound whatever its corners hold, so the base mesh starts at least that
+        fine (at most ``max_n``).
 
     Returns
     -------
@@ -161,6 +185,10 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
 
     lam_max = lambda_max(m)
     max_n = n if max_n is None else max_n
+    lip2_min = float(np.min(lip2))
+    if sep_max is not None and lip2_min > 0:
+        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / (sylvester * lip2_min))
+        n = min(max(n, int(math.ceil(2 * np.pi / h_min))), max_n)
     used = 0
 
     def wrap(x: np.ndarray) -> np.ndarray:
@@ -172,7 +200,8 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         used += n * n
         f = fhs_plaquette_phases(v)
         h = 2 * np.pi / n
-        lam = cell_lambda(_corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0], h, lip2)
+        lam = cell_lambda(_corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0], h, lip2,
+                          sylvester)
         hot = (lam > lam_max) | (np.abs(f) >= flux_tol)
         if hot.mean() <= HOT_SHARE or n >= max_n:
             break
@@ -204,7 +233,7 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         gv, gsep, gslope = grids
         sub, edges = subdivided_plaquette_phases(gv)
         h /= 2
-        lam = cell_lambda(_corners(gsep), _corners(gslope), h, lip2)
+        lam = cell_lambda(_corners(gsep), _corners(gslope), h, lip2, sylvester)
         hot = (lam > lam_max) | (np.abs(sub) >= flux_tol)
         total += float(sub[~hot].sum() + edges.sum())
         max_flux = max(max_flux, float(np.max(np.abs(sub[~hot]), initial=0.0)))

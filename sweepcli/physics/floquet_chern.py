@@ -6,8 +6,9 @@ Conventions
 * Floquet bands are grouped *between the gaps*: the "upper" group has ``eps`` in ``(0, pi/T)``,
   the "lower" group ``(-pi/T, 0)``; when both gaps are open the size of each group is the same
   at every k and each group is a smooth vector bundle.
-* Chern numbers use :func:`sweepcli.physics.chern.fhs_chern` (sign: the lower band of
-  ``d.sigma`` has the degree of ``d_hat``).
+* Chern numbers are the proven FHS sums of :func:`sweepcli.physics.certify.certified_chern`
+  (sign of :func:`sweepcli.physics.chern.fhs_chern`: the lower band of ``d.sigma`` has the
+  degree of ``d_hat``).
 
 Published method
 ----------------
@@ -18,25 +19,25 @@ evolution; ``C_band = W(gap above) - W(gap below)``; the anomalous five-step dri
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..schema import Reason
-from .chern import fhs_chern
+from .certify import certified_chern, hermitian_norm, hopping_bounds
+from .chern import START_CAP, WORK
 from .drives.base import Drive
-from .drives.evolution import evolve, hermitian_exponential
+from .drives.evolution import Slicing, evolve, floquet_evolution, hermitian_exponential
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
     FLUX_TOL,
     GROWTH,
     gap_rule_kmesh,
-    mesh_sequence,
 )
-from .lattice import kmesh
-from .quasienergy import FloquetGaps, FloquetMesh, dagger, floquet_mesh, quasienergies
+from .lattice import TightBinding, kmesh
+from .quasienergy import FloquetGaps, dagger, quasienergies
 
 #: Largest accepted distance of the raw Rudner winding integral from an integer.
 RESIDUE_TOL = 0.05
@@ -68,7 +69,7 @@ class FloquetChern:
         Chern numbers of the bands with quasienergy in ``(0, pi/T)`` and ``(-pi/T, 0)``
         (sign of :func:`sweepcli.physics.chern.fhs_chern`); ``None`` if missing. A group
         with no bands has Chern number 0.
-    kmesh : mesh used last, or None.
+    kmesh : base mesh of the proven adaptive mesh (points per direction), or None.
     max_flux : largest plaquette flux on that mesh (rad), nan if missing.
     reason : Reason.
     """
@@ -80,44 +81,232 @@ class FloquetChern:
     reason: Reason
 
 
+def drive_jet(factors: Sequence[tuple[float, TightBinding]]
+              ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """``jet(k)``: the product ``U = U_F ... U_1`` of the factors ``U_f = exp(-i d_f H_f(k))``
+    and its exact derivatives ``(dU/dk_1, dU/dk_2)`` at reduced momenta ``k`` ``(..., 2)``.
+
+    Returns ``(U, dU, steps)`` of shapes ``(..., n, n)``, ``(..., 2, n, n)`` and ``(...)``,
+    ``steps = sum_f d_f sqrt(||dH_f/dk_1||^2 + ||dH_f/dk_2||^2)`` (Duhamel: a second bound on
+    ``||dU/dk_u||``, which changes by at most ``sum_f d_f L2_f`` per unit of ``k``; tighter than
+    the exact slope's bound where the factors share ``dH/dk``, e.g. a modulated mass). In the
+    eigenbasis of ``H_f = V diag(E) V^+`` the derivative of one factor is the divided difference
+    ``(V^+ dU_f V)_ab = (V^+ dH_f V)_ab (e^{-i E_a d} - e^{-i E_b d}) / (E_a - E_b)``, written
+    ``-i d e^{-i (E_a + E_b) d / 2} sinc((E_a - E_b) d / 2)`` so that it tends to the limit
+    ``-i d e^{-i E_a d}`` smoothly at ``E_a = E_b``; the product rule
+    ``dU <- dU_f U + U_f dU`` runs along with the product. A factor without hoppings has
+    ``dU_f = 0``.
+    """
+    n = factors[0][1].norb
+    mm = _matmul2 if n == 2 else np.matmul
+
+    def jet(k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        k = np.asarray(k, float)
+        shape = k.shape[:-1]
+        u = np.broadcast_to(np.eye(n, dtype=complex), shape + (n, n)).copy()
+        du = np.zeros(shape + (2, n, n), complex)
+        steps = np.zeros(shape)
+        # Step drives repeat a few TightBinding objects: their Bloch matrices are shared.
+        seen: dict[int, tuple[TightBinding, np.ndarray, np.ndarray | None]] = {}
+        for d, tb in factors:
+            hit = seen.get(id(tb))
+            if hit is None or hit[0] is not tb:
+                dh = np.stack([tb.bloch_derivative(k, i) for i in range(2)], axis=-3) \
+                    if tb.hoppings else None
+                hit = (tb, tb.bloch(k), dh)
+                seen[id(tb)] = hit
+            _, h, dh = hit
+            if dh is not None:
+                steps = steps + d * np.sqrt(np.sum(hermitian_norm(dh) ** 2, axis=-1))
+            uf, duf = (_factor_jet2 if n == 2 else _factor_jet)(h, dh, d)
+            if duf is None:
+                du = mm(uf[..., None, :, :], du)
+            else:
+                du = mm(duf, u[..., None, :, :]) + mm(uf[..., None, :, :], du)
+            u = mm(uf, u)
+        return u, du, steps
+    return jet
+
+
+def _matmul2(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``a @ b`` for stacks of 2x2 matrices, entry by entry (several times faster than
+    ``numpy.matmul`` on large stacks of small matrices)."""
+    a, b = np.broadcast_arrays(a, b)
+    out = np.empty(a.shape, np.result_type(a, b))
+    for i in range(2):
+        for j in range(2):
+            out[..., i, j] = a[..., i, 0] * b[..., 0, j] + a[..., i, 1] * b[..., 1, j]
+    return out
+
+
+def _factor_jet(h: np.ndarray, dh: np.ndarray | None, d: float
+                ) -> tuple[np.ndarray, np.ndarray | None]:
+    """``exp(-i d h)`` and its derivatives along ``dh`` ``(..., 2, n, n)``, from the
+    eigen-decomposition of ``h`` (divided differences, :func:`drive_jet`)."""
+    e, v = np.linalg.eigh(h)
+    vh = dagger(v)
+    uf = (v * np.exp(-1j * d * e)[..., None, :]) @ vh
+    if dh is None:
+        return uf, None
+    dd = vh[..., None, :, :] @ dh @ v[..., None, :, :]
+    diff = (e[..., :, None] - e[..., None, :]) * (d / 2)
+    mean = (e[..., :, None] + e[..., None, :]) * (d / 2)
+    phi = (-1j * d) * np.exp(-1j * mean) * np.sinc(diff / np.pi)
+    return uf, v[..., None, :, :] @ (dd * phi[..., None, :, :]) @ vh[..., None, :, :]
+
+
+def _factor_jet2(h: np.ndarray, dh: np.ndarray | None, d: float
+                 ) -> tuple[np.ndarray, np.ndarray | None]:
+    """:func:`_factor_jet` for 2x2 ``h`` in closed form: with ``h = h0 + A``, ``A^2 = r^2``,
+    ``exp(-i d h) = e^{-i h0 d} (cos(r d) - i s A)``, ``s = sin(r d) / r``, and along
+    ``dh = dh0 + dA`` (``r dr = tr(A dA) / 2 =: q``):
+    ``d exp = -i d dh0 exp + e^{-i h0 d} (-d s q - i s' q A - i s dA)`` with
+    ``s' = d (cos(r d) - sin(r d) / (r d)) / r^2`` (its series ``-d^3 (1/3 - x^2/30)``,
+    ``x = r d``, near ``r = 0``)."""
+    h0 = (h[..., 0, 0].real + h[..., 1, 1].real) / 2
+    a00 = h[..., 0, 0].real - h0
+    a01 = h[..., 0, 1]
+    r = np.sqrt(a00 ** 2 + np.abs(a01) ** 2)
+    x = r * d
+    c = np.cos(x)
+    s = d * np.sinc(x / np.pi)
+    ph = np.exp(-1j * h0 * d)
+    uf = np.empty(h.shape, complex)
+    uf[..., 0, 0] = ph * (c - 1j * s * a00)
+    uf[..., 1, 1] = ph * (c + 1j * s * a00)
+    uf[..., 0, 1] = ph * (-1j * s) * a01
+    uf[..., 1, 0] = ph * (-1j * s) * np.conj(a01)
+    if dh is None:
+        return uf, None
+    small = np.abs(x) < 1e-2
+    xs = np.where(small, 1.0, x)
+    sp = np.where(small, -d ** 3 * (1 / 3 - x * x / 30),
+                  d ** 3 * (np.cos(xs) - np.sin(xs) / xs) / (xs * xs))
+    dh0 = (dh[..., 0, 0].real + dh[..., 1, 1].real) / 2
+    da00 = dh[..., 0, 0].real - dh0
+    da01 = dh[..., 0, 1]
+    q = a00[..., None] * da00 + np.real(np.conj(a01)[..., None] * da01)
+    c1, s1, ph1, a00_, a01_ = (z[..., None] for z in (c, s, ph, a00, a01))
+    lead = -1j * d * dh0
+    scal = ph1 * (-d * s1 * q)
+    sa = ph1 * (-1j) * sp[..., None] * q
+    ss = ph1 * (-1j) * s1
+    duf = np.empty(dh.shape, complex)
+    ufe = uf[..., None, :, :]
+    duf[..., 0, 0] = lead * ufe[..., 0, 0] + scal + sa * a00_ + ss * da00
+    duf[..., 1, 1] = lead * ufe[..., 1, 1] + scal - sa * a00_ - ss * da00
+    duf[..., 0, 1] = lead * ufe[..., 0, 1] + sa * a01_ + ss * da01
+    duf[..., 1, 0] = lead * ufe[..., 1, 0] + sa * np.conj(a01_) + ss * np.conj(da01)
+    return uf, duf
+
+
+def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]]) -> float:
+    """A bound on ``||d^2 U / dk_u dk_w||`` for all unit directions ``u``, ``w`` and every k:
+    ``(sum_f d_f L1_f)^2 + sum_f d_f L2_f`` with ``(L1_f, L2_f)`` the hopping bounds of
+    :func:`~sweepcli.physics.certify.hopping_bounds` of factor ``f``.
+
+    Proof: by Duhamel's formula ``||dU_f|| <= d_f L1_f =: a_f`` and ``||d^2 U_f|| <= a_f^2 +
+    d_f L2_f`` (the second derivative of ``exp(-i d H)`` is two nested Duhamel integrals of
+    ``dH`` and one of ``d^2 H``, the first two with weights ``int (d - s) ds + int s ds = d^2``);
+    the product rule for ``U_F ... U_1`` then gives ``sum_f (a_f^2 + d_f L2_f) + 2 sum_{f > g}
+    a_f a_g``.
+    """
+    a = b = 0.0
+    for d, tb in factors:
+        l1, l2 = hopping_bounds(tb.hoppings)
+        a += d * l1
+        b += d * l2
+    return a * a + b
+
+
+def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
+                     ) -> tuple[Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
+                                tuple[float, float]]:
+    """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for one Floquet band
+    group of a 2D drive, and its ``lip2``.
+
+    ``data(k)`` returns the group's eigenvectors (the ``m`` lowest quasienergies, or the
+    others if ``upper``), the width ``min_lower sin(|eps| T) + min_upper sin(|eps| T)`` of the
+    strip along the real axis between the eigenvalues of the two groups (0 where the lower
+    group does not hold ``m`` bands), and the slope ``sqrt(||dU/dk_1||^2 + ||dU/dk_2||^2)``
+    from the exact derivatives of :func:`drive_jet` (a bound on ``||dU/dk_u||`` for every unit
+    ``u``; ``||dU|| = ||U^+ dU||``, a Hermitian norm up to the factor ``i``) beside the
+    factors' ``steps`` bound (:func:`drive_jet`), shape ``(..., 2)``; ``lip2`` holds their
+    Lipschitz constants, ``drive_curvature_bound(factors)`` (the second derivatives) and
+    ``sum_f d_f L2_f``. Each bound is proven; a cell uses the smaller
+    (:func:`~sweepcli.physics.certify.cell_lambda`)."""
+    slices = None if drive.exact or slicing is None else slicing.slices
+    factors = list(drive.factors(slices=slices))
+    jet = drive_jet(factors)
+    lip2 = (drive_curvature_bound(factors),
+            float(sum(d * hopping_bounds(tb.hoppings)[1] for d, tb in factors)))
+    T = drive.period
+
+    def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        u, du, steps = jet(k)
+        eps, v = quasienergies(u, T)
+        width = np.sin(np.abs(eps) * T)
+        low = eps < 0
+        sep = np.min(np.where(low, width, np.inf), axis=-1) + \
+            np.min(np.where(low, np.inf, width), axis=-1)
+        sep = np.where(np.sum(low, axis=-1) == m, sep, 0.0)
+        a = 1j * (dagger(u)[..., None, :, :] @ du)
+        a = (a + dagger(a)) / 2
+        slope = np.stack([np.sqrt(np.sum(hermitian_norm(a) ** 2, axis=-1)), steps], axis=-1)
+        return (v[..., m:] if upper else v[..., :m]), sep, slope
+    return data, lip2
+
+
 def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
                   kmesh_n: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
-                  flux_tol: float = FLUX_TOL,
-                  mesh_of: Callable[[int], FloquetMesh] | None = None) -> FloquetChern:
-    """Chern numbers of both Floquet band groups of a 2D drive, with a convergence policy.
+                  flux_tol: float = FLUX_TOL, slicing: Slicing | None = None) -> FloquetChern:
+    """Chern numbers of both Floquet band groups of a 2D drive, proven on an adaptive mesh.
 
-    Both gaps must be open (``>= gap_tol``). The first mesh is
-    ``max(kmesh_n, gap_rule_kmesh(min(gap_0, gap_pi)))``; the answer is accepted when two
-    successive meshes (growth 1.5) have the largest plaquette flux below ``flux_tol`` and agree,
-    as for static bands (:mod:`sweepcli.physics.chern`).
+    Both gaps must be open (``>= gap_tol``). The smaller group's Chern number is computed as
+    the static one is (:func:`~sweepcli.physics.chern.chern_number`): a base mesh of
+    ``max(kmesh_n, min(gap_rule_kmesh(min(gap_0, gap_pi)), START_CAP))`` points per direction
+    (raised by 1.5 while more than half its plaquettes fail, up to ``max_kmesh``), every
+    plaquette whose bound does not prove it subdivided
+    (:func:`~sweepcli.physics.certify.certified_chern` with the unitary constant ``pi / 2``;
+    separation and slopes from :func:`floquet_subspace`: the local strip width between the two
+    groups' eigenvalues and the exact ``||dU/dk||`` at the corners, the second-derivative
+    bound :func:`drive_curvature_bound` of the drive's factors), up to
+    ``WORK * max_kmesh**2`` points, else ``NOT_CONVERGED``; the base mesh starts no coarser
+    than that bound alone allows (``sep_max = 2``). The other group's number is its negative
+    (the two groups span every band, whose bundle is trivial). ``kmesh`` of the result is the
+    base mesh.
+
+    Proven: the stored number is the Chern number of the group of the operator ``U(k)`` that
+    the factors define (the cell bound of :mod:`sweepcli.physics.certify`, with ``||U(k) -
+    U(k_c)|| <= g_c r + lip2 r^2 / 2`` and ``||dU/dk_u(k)|| <= g_c + lip2 r`` within ``r`` of a
+    corner ``k_c``, ``g_c`` exact at ``k_c`` and ``lip2`` the proven bound of
+    :func:`drive_curvature_bound`). Assumed: the eigen-decompositions and derivatives at the
+    mesh points are exact to rounding (``U^+ dU`` is taken as anti-Hermitian), and the
+    operator is that of the time slicing ``slicing`` (default: the one the gap search used,
+    ``gaps.slices``); the slicing error is not part of the bound.
     """
+    if not gaps.converged:
+        return FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
     if not (gaps.gap_0 >= gap_tol and gaps.gap_pi >= gap_tol):
         return FloquetChern(None, None, None, math.nan, Reason.GAP_CLOSED)
-    mesh_of = mesh_of or (lambda n: floquet_mesh(drive, n, 2))
-    start = max(kmesh_n, gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)))
-    prev = None
-    last_n, last_flux = None, math.nan
-    for n in mesh_sequence(min(start, max_kmesh), max_kmesh, GROWTH):
-        mesh = mesh_of(n)
-        if not mesh.converged:
-            return FloquetChern(None, None, n, math.nan, Reason.NOT_CONVERGED)
-        groups = band_groups(mesh.eps, mesh.vectors)
-        if groups is None:
-            return FloquetChern(None, None, n, math.nan, Reason.GAP_CLOSED)
-        values, flux = [], 0.0
-        for g in groups:
-            if g.shape[-1] == 0:
-                values.append(0)
-                continue
-            c, f = fhs_chern(g)
-            values.append(c)
-            flux = max(flux, f)
-        last_n, last_flux = n, flux
-        ok = flux < flux_tol
-        if ok and prev is not None and prev == values:
-            return FloquetChern(values[1], values[0], n, flux, Reason.OK)
-        prev = values if ok else None
-    return FloquetChern(None, None, last_n, last_flux, Reason.NOT_CONVERGED)
+    if slicing is None and not drive.exact:
+        slicing = Slicing(gaps.slices, 0.0, gaps.converged)
+    n = min(max(kmesh_n, min(gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)), START_CAP)),
+            max_kmesh)
+    # The size of the lower group, from the quasienergies at the gap's minimum.
+    u = floquet_evolution(drive, np.zeros((1, 2)), slicing=slicing).u
+    m = int(np.sum(quasienergies(u, drive.period)[0][0] < 0))
+    norb = drive.norb
+    if m in (0, norb):
+        return FloquetChern(0, 0, None, 0.0, Reason.OK)
+    upper = norb - m < m
+    data, lip2 = floquet_subspace(drive, slicing, m, upper)
+    c, flux, _, n = certified_chern(data, n, min(m, norb - m), lip2, flux_tol=flux_tol,
+                                    budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
+                                    growth=GROWTH, sylvester=math.pi / 2, sep_max=2.0)
+    if c is None:
+        return FloquetChern(None, None, n, flux, Reason.NOT_CONVERGED)
+    return FloquetChern(c if upper else -c, -c if upper else c, n, flux, Reason.OK)
 
 
 def _spectral_derivative(x: np.ndarray, axis: int) -> np.ndarray:
@@ -233,13 +422,26 @@ class RudnerWinding:
 
 
 def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
-                   kmesh_n: int = 16, max_kmesh: int = 128, residue_tol: float = RESIDUE_TOL
-                   ) -> RudnerWinding:
+                   kmesh_n: int = 16, max_kmesh: int = 128, residue_tol: float = RESIDUE_TOL,
+                   chern: FloquetChern | None = None) -> RudnerWinding:
     """``W_0`` and ``W_pi`` of a 2D drive (see :func:`rudner_integral`), raised until settled.
 
-    Levels ``RUDNER_LEVELS`` with k-mesh ``>= kmesh_n`` and ``<= max_kmesh`` are tried in turn;
-    a value is accepted when two successive levels round to the same integer and the last is
-    within ``residue_tol`` of it.
+    Levels ``RUDNER_LEVELS`` with k-mesh ``>= kmesh_n`` and ``<= max_kmesh`` (every one of them:
+    a single level may settle the value) are tried in turn. When both gaps are open the
+    windings' difference is a Floquet band's Chern number, ``W_pi - W_0 = C_upper``
+    (Rudner et al. 2013), which :func:`floquet_chern` proves (``chern``, computed when not
+    given): a level is accepted when both raw integrals are within ``residue_tol`` of integers
+    whose difference is that proven number; a proven difference that no level matches leaves
+    both windings missing (``NOT_CONVERGED``). Where the Chern number could not be proven within
+    its budget or one gap is closed, there is no such check,
+    and a winding is accepted when two successive levels round to the same integer within
+    ``residue_tol``.
+
+    Proven and assumed: the difference ``W_pi - W_0`` of a pair stored with a proven Chern
+    number is proven (the bound of :mod:`sweepcli.physics.certify`); the common part of both
+    windings, and every winding stored without a proven Chern number, rests on the quadrature
+    of :func:`rudner_integral` (spectral in k and t, its distance from an integer the measure
+    of convergence), for which no a-priori bound is computed.
     """
     if not gaps.converged:
         return RudnerWinding(None, None, math.nan, math.nan, math.nan, None,
@@ -250,6 +452,13 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
                              Reason.GAP_CLOSED, Reason.GAP_CLOSED)
     # The slice count at which the mesh evolution converged (sliced drives).
     slices = None if drive.exact else gaps.slices
+    difference = None
+    if all(open_):
+        if chern is None:
+            chern = floquet_chern(drive, gaps, gap_tol=gap_tol,
+                                  slicing=None if drive.exact else
+                                  Slicing(gaps.slices, 0.0, gaps.converged))
+        difference = chern.upper
     levels = [lv for lv in RUDNER_LEVELS if kmesh_n <= lv[0] <= max_kmesh] or \
         [(max(kmesh_n, 4), RUDNER_LEVELS[0][1])]
     prev = None
@@ -261,11 +470,15 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
         n_used = n
         rounded = tuple(int(round(r)) for r in raw)
         res = [abs(r - i) for r, i in zip(raw, rounded)]
-        if prev is not None:
+        if difference is not None:
+            ok = res[0] < residue_tol and res[1] < residue_tol and \
+                rounded[1] - rounded[0] == difference
+            settled = [ok, ok]
+        elif prev is not None:
             settled = [open_[g] and prev[g] == rounded[g] and res[g] < residue_tol
                        for g in (0, 1)]
-            if all(settled[g] or not open_[g] for g in (0, 1)):
-                break
+        if all(settled[g] or not open_[g] for g in (0, 1)):
+            break
         prev = rounded
     vals = [int(round(raw[g])) if (open_[g] and settled[g]) else None for g in (0, 1)]
     residues = [abs(raw[g] - round(raw[g])) for g in (0, 1) if open_[g]]

@@ -1,13 +1,21 @@
 """What the invariant modules share: tolerances and default meshes, the record of an integer
-invariant, the mesh walk of their convergence policy, and a batched determinant.
+invariant, the mesh walk of the convergence policy that some of them still use, and a batched
+determinant.
 
 The invariants themselves are in :mod:`sweepcli.physics.chern` (Fukui-Hatsugai-Suzuki Chern
-numbers), :mod:`sweepcli.physics.chiral_winding` (1D windings of chiral chains) and
-:mod:`sweepcli.physics.spin_chern` (Prodan's projected-spin Chern number). Each driver walks up
-a sequence of meshes (:func:`mesh_sequence`) from a first mesh set by the gap
-(:func:`gap_rule_kmesh`) and accepts an answer when two successive meshes are below the
-tolerance and agree (:func:`walk_meshes`); otherwise the result is missing with
-:attr:`Reason.NOT_CONVERGED`. A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
+numbers), :mod:`sweepcli.physics.floquet_chern` (Chern numbers of Floquet bands and Rudner
+windings), :mod:`sweepcli.physics.chiral_winding` (1D windings of chiral chains) and
+:mod:`sweepcli.physics.spin_chern` (Prodan's projected-spin Chern number).
+
+Chern numbers (static and Floquet) and the chiral windings are proven on adaptive meshes
+(:mod:`sweepcli.physics.certify`): a first mesh (for Chern numbers set by the gap,
+:func:`gap_rule_kmesh`, at least ``CHERN_KMESH``), and every plaquette or step whose bound
+(from the local gap and the Lipschitz constants of ``H(k)`` or ``U(k)``) does not prove the
+integer is subdivided, within a budget of points set by ``max_kmesh``; where the budget runs
+out the value is missing with :attr:`Reason.NOT_CONVERGED`. The walk of uniform meshes
+(:func:`mesh_sequence`, :func:`walk_meshes`: accept when two successive meshes are below the
+tolerance and agree) is the policy of :mod:`sweepcli.physics.spin_chern`, which has no such
+bound. A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
 """
 
 from __future__ import annotations

@@ -14,12 +14,15 @@ configured options (static bands and 1D walks are cheap enough to be timed on th
 meshes themselves):
 
 * ``gap``, ``quasienergy_gaps``: one mesh of ``kmesh^d`` (polishing is in ``a``);
-* ``chern``, ``spin_chern``, ``floquet_chern``: two meshes, ``N`` and ``1.5 N`` with ``N`` the
-  larger of ``kmesh`` and the gap rule for the probed gap (the convergence policy accepts on the
-  second mesh when the first is already fine enough);
+* ``chern``, ``spin_chern``: two meshes, ``N`` and ``1.5 N`` with ``N`` the larger of
+  ``kmesh`` and the gap rule for the probed gap (the proven mesh of ``chern`` often stops on
+  the first; the walk of ``spin_chern`` accepts on the second when the first is fine enough);
+* ``floquet_chern``: its proven adaptive mesh (:func:`~sweepcli.physics.certify.certified_chern`)
+  run as configured at the probe, since its work depends on the local gaps and slopes;
 * ``winding``, ``chiral_windings``, ``line_winding`` (1D or a line): ``kmesh`` and ``2 kmesh``;
 * ``rudner_winding``: its first two levels at or above ``kmesh``, each probed with its own
-  number of time nodes;
+  number of time nodes (one level settles it when it matches the proven Chern number, which
+  ``floquet_chern`` computes);
 * open samples (``end_modes``, ``edge_modes``, ``corner_modes``): evaluated as configured at
   each probed point, averaged, until the probes so far took ``SAMPLE_PROBE_SECONDS`` (the cost
   depends on how far a count doubles its sample, which varies across the grid); peak memory is
@@ -200,7 +203,7 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
     """Estimated seconds of measurement ``name`` at a typical point (module docstring)."""
     from ..physics import floquet_chern as fc
     from ..physics import quasienergy as qe
-    from ..physics.chern import chern_number, fhs_chern
+    from ..physics.chern import chern_number
     from ..physics.invariant_base import GAP_KMESH, GROWTH, gap_rule_kmesh
     from ..physics.measurements import MEASUREMENTS
     from ..physics.spectrum import band_gap
@@ -234,11 +237,15 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
             memo["gaps"] = qe.floquet_gaps(drive, mesh)
         return _scaled(gaps, dim, [kmesh]) if dim == 2 else _at_meshes(gaps, [kmesh])
     if name == "floquet_chern":
-        def chern(n: int) -> object:
-            mesh = qe.floquet_mesh(drive, n, dim)
-            groups = fc.band_groups(mesh.eps, mesh.vectors)
-            return [fhs_chern(g) for g in groups or () if g.shape[-1]]
-        return _scaled(chern, dim, two)
+        # The proven adaptive mesh: its work depends on the local gaps and slopes at the point,
+        # so it is timed as configured (on the probe's gaps).
+        g = memo.get("gaps") or qe.floquet_gaps(drive, qe.floquet_mesh(drive, PROBE_MESH[1],
+                                                                         dim))
+        memo["gaps"] = g
+        return _seconds(lambda: fc.floquet_chern(drive, g, gap_tol=point.gap_tol,
+                                                 kmesh_n=opts["kmesh"],
+                                                 max_kmesh=opts["max_kmesh"],
+                                                 flux_tol=opts["flux_tol"]))
     if name == "rudner_winding":
         slices = None
         if not drive.exact:

@@ -17,11 +17,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from sweepcli.physics import floquet_chern as fc
+from sweepcli.physics import quasienergy as qe
 from sweepcli.physics.chern import chern_number
 from sweepcli.physics.chiral_frames import chiral_windings
 from sweepcli.physics.chiral_winding import winding_number
 from sweepcli.physics.drives.steps import StepDrive
-from sweepcli.physics.lattice import assemble, fourier_term, pauli
+from sweepcli.physics.lattice import assemble, fourier_term, kmesh, pauli
 from sweepcli.schema import Reason
 
 CHIRAL = np.diag([1.0, -1.0]).astype(complex)
@@ -130,3 +132,109 @@ def test_random_square_chains_never_a_wrong_integer(c, shift):
     d = chiral_windings(StepDrive(T, ((T, tb),)), CHIRAL)
     assert d.nu_0 == ref or d.nu_0 is None
     assert d.nu_pi in (0, None)
+
+
+def trivially_driven(tb):
+    # One step of length T with T ||H|| < pi: U = exp(-i H T), so the Floquet band group in
+    # (-pi/T, 0) is the static lower band (quasienergy = energy) and the groups' Chern numbers
+    # are the static ones; the 0-gap Rudner winding is the Chern number of the bands below 0.
+    norm = float(np.max(np.abs(np.linalg.eigvalsh(tb.bloch(kmesh(16, 2))))))
+    T = 0.5 / norm
+    return StepDrive(T, ((T, tb),))
+
+
+@pytest.mark.parametrize("a, b, m", [(0.2, 30.0, -0.05), (0.5, 40.0, 0.01), (1.0, 20.0, -0.02)])
+def test_driven_pocket_is_proven_or_missing(a, b, m):
+    d = trivially_driven(pocket(a, b, m))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    ref = trim_count(b, m)
+    assert (c.reason == Reason.OK and (c.lower, c.upper) == (ref, -ref)) or (
+        c.reason == Reason.NOT_CONVERGED and c.lower is None)
+    w = fc.rudner_winding(d, g, chern=c)
+    assert w.w_0 in (ref, None) and w.w_pi in (0, None)
+
+
+def test_driven_pocket_below_the_mesh_scale():
+    # The 24 x 24 base mesh puts the whole flux of the pocket inside one plaquette.
+    d = trivially_driven(pocket(0.2, 30.0, -0.05))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    assert c.reason == Reason.OK and (c.lower, c.upper) == (-1, 1)
+
+
+@settings(max_examples=12, deadline=None)
+@given(a=st.floats(0.2, 1.0), b=st.floats(1.0, 30.0), m=st.floats(5e-3, 0.3),
+       sign=st.sampled_from([-1.0, 1.0]))
+def test_random_driven_pockets_never_a_wrong_integer(a, b, m, sign):
+    d = trivially_driven(pocket(a, b, sign * m))
+    g = qe.floquet_gaps(d, qe.floquet_mesh(d, 24, 2))
+    c = fc.floquet_chern(d, g)
+    ref = trim_count(b, sign * m)
+    assert (c.lower, c.upper) == (ref, -ref) or (
+        c.lower is None and c.reason == Reason.NOT_CONVERGED)
+
+
+def random_step_drive(seed: int, norb: int) -> StepDrive:
+    rng = np.random.default_rng(seed)
+
+    def part():
+        def herm():
+            a = rng.normal(size=(norb, norb)) + 1j * rng.normal(size=(norb, norb))
+            return (a + a.conj().T) / 2
+        hops = {(1, 0): rng.normal(size=(norb, norb)) + 1j * rng.normal(size=(norb, norb)),
+                (1, 1): 0.5 * (rng.normal(size=(norb, norb))
+                               + 1j * rng.normal(size=(norb, norb)))}
+        return assemble(np.eye(2), np.zeros((norb, 2)), herm(),
+                        [fourier_term(r, t) for r, t in hops.items()])
+    return StepDrive(1.3, ((0.5, part()), (0.3, part()), (0.5, part())))
+
+
+@pytest.mark.parametrize("seed, norb", [(0, 2), (1, 2), (2, 3)])
+def test_drive_jet_against_expm_differences(seed, norb):
+    # Reference: scipy.linalg.expm products of the steps, differentiated by central
+    # differences; the second-derivative bound must dominate their second differences.
+    import scipy.linalg as sl
+
+    d = random_step_drive(seed, norb)
+    factors = d.factors()
+
+    def product(k):
+        u = np.eye(norb, dtype=complex)
+        for dur, tb in factors:
+            u = sl.expm(-1j * dur * tb.bloch(k)) @ u
+        return u
+
+    k = np.array([[0.37, -1.2], [2.5, 0.8]])
+    u, du, _ = fc.drive_jet(factors)(k)
+    h = 1e-5
+    bound = fc.drive_curvature_bound(factors)
+    for p in range(2):
+        np.testing.assert_allclose(u[p], product(k[p]), atol=1e-12)
+        for i in range(2):
+            e = np.zeros(2)
+            e[i] = h
+            fd = (product(k[p] + e) - product(k[p] - e)) / (2 * h)
+            np.testing.assert_allclose(du[p, i], fd, atol=1e-7)
+            h2 = 1e-3
+            e[i] = h2
+            second = (product(k[p] + e) - 2 * product(k[p]) + product(k[p] - e)) / h2 ** 2
+            assert np.linalg.norm(second, 2) <= bound
+
+
+def test_two_band_closed_form_jet_matches_eigenbasis_form_at_degeneracy():
+    # The closed form of a 2x2 step against the divided differences of numpy.linalg.eigh, at
+    # exact, nearly exact and generic degeneracies of H.
+    rng = np.random.default_rng(3)
+    for scale in (0.0, 1e-9, 1e-3, 1.0):
+        a = rng.normal(size=(5, 2, 2)) + 1j * rng.normal(size=(5, 2, 2))
+        hm = (a + np.conj(np.swapaxes(a, -1, -2))) / 2
+        hm[..., 0, 1] *= scale
+        hm[..., 1, 0] *= scale
+        hm[..., 1, 1] = hm[..., 0, 0] + scale * hm[..., 1, 1]
+        b = rng.normal(size=(5, 2, 2, 2)) + 1j * rng.normal(size=(5, 2, 2, 2))
+        dh = b + np.conj(np.swapaxes(b, -1, -2))
+        u1, d1 = fc._factor_jet(hm, dh, 0.7)
+        u2, d2 = fc._factor_jet2(hm, dh, 0.7)
+        np.testing.assert_allclose(u2, u1, atol=1e-13)
+        np.testing.assert_allclose(d2, d1, atol=1e-12)

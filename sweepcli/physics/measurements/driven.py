@@ -143,6 +143,18 @@ def quasienergy_gaps(point: Point, *, kmesh: int = GAP_KMESH, refine: bool = Tru
     return out
 
 
+def point_floquet_chern(point: Point, kmesh: int = CHERN_KMESH,
+                        max_kmesh: int = CHERN_MAX_KMESH, flux_tol: float = FLUX_TOL
+                        ) -> fc.FloquetChern:
+    """The proven Floquet Chern numbers (:func:`~sweepcli.physics.floquet_chern.floquet_chern`),
+    memoised: ``rudner_winding`` checks its windings' difference against them."""
+    return point.memo(("floquet_chern", kmesh, max_kmesh, flux_tol),
+                      lambda: fc.floquet_chern(point.drive, point_gaps(point),
+                                               gap_tol=point.gap_tol, kmesh_n=kmesh,
+                                               max_kmesh=max_kmesh, flux_tol=flux_tol,
+                                               slicing=point_slicing(point)))
+
+
 @MEASUREMENTS.register(
     "floquet_chern",
     description="Chern numbers of the Floquet bands grouped between the 0 and pi gaps",
@@ -178,9 +190,7 @@ def floquet_chern(point: Point, *, kmesh: int = CHERN_KMESH,
     """
     _need_drive(point)
     g = point_gaps(point)
-    r = fc.floquet_chern(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
-                         max_kmesh=max_kmesh, flux_tol=flux_tol,
-                         mesh_of=lambda n: point_mesh(point, n))
+    r = point_floquet_chern(point, kmesh, max_kmesh, flux_tol)
     if not g.converged:
         r = fc.FloquetChern(None, None, None, math.nan, Reason.NOT_CONVERGED)
     return {"floquet_chern_upper": r.upper, "floquet_chern_lower": r.lower,
@@ -215,12 +225,15 @@ def rudner_winding(point: Point, *, kmesh: int = 16, max_kmesh: int = 128,
 
     A winding is missing when its gap is closed (``GAP_CLOSED`` in that gap's reason; the other
     one is still given) or when the integral does not settle within ``residue_tol``
-    (``NOT_CONVERGED``).
+    (``NOT_CONVERGED``); with both gaps open, also when ``w_pi - w_0`` does not equal the
+    proven ``floquet_chern_upper`` (default options) or that could not be proven.
     """
     _need_drive(point)
     g = point_gaps(point)
+    both = g.converged and g.gap_0 >= point.gap_tol and g.gap_pi >= point.gap_tol
     r = fc.rudner_winding(point.drive, g, gap_tol=point.gap_tol, kmesh_n=kmesh,
-                          max_kmesh=max_kmesh, residue_tol=residue_tol)
+                          max_kmesh=max_kmesh, residue_tol=residue_tol,
+                          chern=point_floquet_chern(point) if both else None)
     out = {"w_0": r.w_0, "w_pi": r.w_pi, "w_residue": r.residue, "w_kmesh": r.kmesh,
            "reason": {"0": r.reason_0, "pi": r.reason_pi}}
     return _close_gaps(out, bulk_closed(point), {"0": ("w_0",), "pi": ("w_pi",)})
