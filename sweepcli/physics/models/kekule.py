@@ -53,7 +53,8 @@ def kekule_honeycomb(*, t0: float, t1: float = 1.0, mu: float = 0.0) -> TightBin
 
     Facts (checked in tests/physics/test_rotation.py by diagonalisation): for ``t0 = t1`` it is
     graphene, whose two Dirac points fold onto Gamma of the enlarged cell; at half filling
-    (three bands) the gap is closed there only for ``|t0| = |t1|``. The six-fold rotation about
+    (three bands) the gap at Gamma is ``2 |t1 - t0|``, and for ``t0, t1 > 0`` the gap closes
+    only at ``t0 = t1``. The six-fold rotation about
     the hexagon centre (``rotations[6]``) and the chiral sublattice operator (``mu = 0``) are
     symmetries for every parameter set. For ``t1 > t0 > 0`` the filled bands are centred on the
     bonds between hexagons (the obstructed phase: at ``t0 = 0`` each such bond holds one
