@@ -30,6 +30,7 @@ class Reason(IntEnum):
     NO_CHIRAL_FRAME = 8  # the drive has no chiral-symmetric time frame: chiral invariants undefined
     NOT_REQUESTED = 9  # a [confirm] job did not select this cell for its boundary measurements
     NOT_QUANTISED = 10  # a value a symmetry quantises (q_xy: 0 or 1/2) is not near an allowed one
+    NO_SYMMETRY = 11  # the point lacks the symmetry the quantity needs (no C_n rotation, ...)
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -55,6 +56,9 @@ class TightBinding:
     hoppings : mapping from integer displacement ``R`` (tuple of length d) to ``(n, n)`` complex
     operators : named ``(n, n)`` matrices acting on one cell (``"chiral"``, ``"spin"``, ...) that
         measurements may use; absent when the model has no such symmetry.
+    rotations : rotation order ``n`` -> the model's ``C_n`` rotation, a
+        :class:`sweepcli.physics.rotation.Rotation` (orbital matrix and cell map); absent when
+        the parameters break it. Not carried to samples, ribbons or drives.
     """
 
     lattice_vectors: np.ndarray
@@ -62,6 +66,7 @@ class TightBinding:
     onsite: np.ndarray
     hoppings: Mapping[tuple[int, ...], np.ndarray]
     operators: Mapping[str, np.ndarray] = field(default_factory=dict)
+    rotations: Mapping[int, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         a = np.atleast_2d(np.asarray(self.lattice_vectors, dtype=float))
@@ -83,6 +88,7 @@ class TightBinding:
         object.__setattr__(self, "onsite", onsite)
         object.__setattr__(self, "hoppings", _merge_opposite(hops))
         object.__setattr__(self, "operators", ops)
+        object.__setattr__(self, "rotations", dict(self.rotations))
 
     @property
     def dim(self) -> int:
@@ -146,13 +152,15 @@ def fourier_term(displacement: tuple[int, ...], cos: np.ndarray | None = None,
     return tuple(displacement), 0.5 * (c - 1j * s)
 
 
-def assemble(lattice_vectors, orbital_positions, onsite, terms, operators=None) -> TightBinding:
+def assemble(lattice_vectors, orbital_positions, onsite, terms, operators=None,
+             rotations=None) -> TightBinding:
     """Build a :class:`TightBinding` from an iterable of ``(R, T_R)`` terms, summing repeats."""
     hops: dict[tuple[int, ...], np.ndarray] = {}
     for r, t in terms:
         r = tuple(int(x) for x in r)
         hops[r] = hops.get(r, 0) + np.asarray(t, complex)
-    return TightBinding(lattice_vectors, orbital_positions, onsite, hops, operators or {})
+    return TightBinding(lattice_vectors, orbital_positions, onsite, hops, operators or {},
+                        rotations or {})
 
 
 def kmesh(n: int | tuple[int, ...], dim: int) -> np.ndarray:

@@ -40,6 +40,7 @@ SAMPLES = {
     "bipartite_square": dict(j1=0.3, j2=0.7, j3=1.1, j4=0.5, delta=0.2),
     "graphene_field": dict(t=1.1, M=0.2, ax=0.3, ay=-0.45),
     "breathing_kagome": dict(ta=0.3, tb=1.2, mu=0.15),
+    "kekule_honeycomb": dict(t0=0.6, t1=1.1, mu=0.2),
 }
 
 
@@ -154,7 +155,17 @@ def table_breathing_kagome(ta, tb, mu):
     return rows, 3
 
 
-TABLES = {"breathing_kagome": table_breathing_kagome,
+def table_kekule_honeycomb(t0, t1, mu):
+    # Hexagon of six sites m = 0..5 (site m towards the neighbouring hexagon in direction
+    # 60 m degrees): -t0 between m and m + 1 of one hexagon, -t1 from m to m + 3 of the
+    # hexagon in direction m: a_1, a_2, a_2 - a_1 for m = 0, 1, 2.
+    rows = [((0, 0), i, i, mu) for i in range(6)]
+    rows += [((0, 0), m, (m + 1) % 6, -t0) for m in range(6)]
+    rows += [((1, 0), 0, 3, -t1), ((0, 1), 1, 4, -t1), ((-1, 1), 2, 5, -t1)]
+    return rows, 6
+
+
+TABLES = {"breathing_kagome": table_breathing_kagome, "kekule_honeycomb": table_kekule_honeycomb,
           "graphene_field": table_graphene_field, "bipartite_square": table_bipartite_square,
           "qwz": table_qwz, "ssh": table_ssh, "kitaev": table_kitaev, "haldane": table_haldane,
           "bhz": table_bhz, "bhz_corner": table_bhz_corner, "bbh": table_bbh}
@@ -233,6 +244,16 @@ def formula(name, p, k):
         bc = -(ta + tb * np.exp(1j * (k[0] - k[1])))
         return p["mu"] * np.eye(3) + np.array([[0, ab, ac], [np.conj(ab), 0, bc],
                                                [np.conj(ac), np.conj(bc), 0]])
+    if name == "kekule_honeycomb":
+        # Ring of six sites with -t0, and -t1 e^{i k.d_m} from site m to site m + 3, d_m the
+        # direction of the neighbouring hexagon (a_1, a_2, a_2 - a_1 for m = 0, 1, 2).
+        h = p["mu"] * np.eye(6, dtype=complex)
+        for m in range(6):
+            h[m, (m + 1) % 6] = h[(m + 1) % 6, m] = -p["t0"]
+        for m, kd in enumerate((k[0], k[1], k[1] - k[0])):
+            h[m, m + 3] = -p["t1"] * np.exp(1j * kd)
+            h[m + 3, m] = np.conj(h[m, m + 3])
+        return h
     raise KeyError(name)
 
 
@@ -301,6 +322,8 @@ def test_expected_operators():
     assert ops["bbh"] == set()  # delta != 0 in the sample breaks the chiral symmetry
     assert set(MODELS["bbh"].func(gamma=0.4).operators) == {"chiral"}
     assert ops["breathing_kagome"] == set()  # three sublattices: no chiral operator
+    assert ops["kekule_honeycomb"] == set()  # mu != 0 in the sample breaks the sublattice one
+    assert set(MODELS["kekule_honeycomb"].func(t0=0.6).operators) == {"chiral"}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -336,6 +359,14 @@ def test_bonds_join_neighbouring_sites(name):
     p = dict(SAMPLES[name], **({"delta": 0.0} if name == "bbh" else {}))
     for _, length in bond_lengths(name, p):
         assert np.isclose(length, 0.5)
+
+
+def test_kekule_bonds_all_one_third():
+    # Honeycomb of nearest-neighbour distance 1/3 (Kekule cell sqrt 3 x sqrt 3 larger): every
+    # intra- and inter-hexagon bond has that length.
+    name = "kekule_honeycomb"
+    lengths = [length for _, length in bond_lengths(name, SAMPLES[name])]
+    assert len(lengths) == 9 and np.allclose(lengths, 1 / 3)
 
 
 def test_bbh_pi_flux_per_plaquette():

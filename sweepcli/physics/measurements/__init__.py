@@ -90,4 +90,4 @@ def split_reason(name: str, reason: Reason | Mapping[str, Reason], dim: int,
 
 
 # Importing the modules fills the registry.
-from . import boundary, driven, static, wilson  # noqa: E402,F401
+from . import boundary, driven, rotation, static, wilson  # noqa: E402,F401

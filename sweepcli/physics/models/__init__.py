@@ -18,4 +18,4 @@ SQUARE = np.eye(2)
 CHAIN = np.eye(1)
 
 # Importing the modules fills the registry.
-from . import bhz, chains, driven, kagome, two_band  # noqa: E402,F401
+from . import bhz, chains, driven, kagome, kekule, two_band  # noqa: E402,F401

@@ -13,6 +13,7 @@ import numpy as np
 
 from ..lattice import TightBinding, assemble, fourier_term, pauli
 from ..registry import Param
+from ..rotation import site_rotation
 from . import MODELS, SQUARE
 
 _AT_ORIGIN = np.zeros((4, 2))
@@ -185,10 +186,23 @@ def bbh(*, gamma: float, lam: float = 1.0, delta: float = 0.0) -> TightBinding:
     ``|gamma/lam| < 1``, trivial for ``|gamma/lam| > 1``. ``delta`` splits the corner modes
     and breaks the chiral symmetry ``Gamma0``, which is registered (as ``"chiral"``) only when
     ``delta == 0``.
+
+    Rotation (``rotations[4]``, only for ``delta == 0``, which ``delta`` breaks): the
+    counter-clockwise four-fold rotation about the cell centre (1/2, 1/2) takes orbital 0 to
+    2 to 1 to 3 to 0, with the sign -1 on the image of orbital 2 (the gauge of the pi flux;
+    found by testing the signs against ``H(k') = D H(k) D^dagger``). Because of the pi flux
+    through the rotation centre its fourth power is -1, so the spinless rotation indicators
+    of Benalcazar, Li and Hughes (PRB 99, 245151 (2019)) are taken with the rotation times
+    ``exp(i pi/4)`` and their corner-charge formula is not applied (it needs ``C_4^4 = +1``;
+    :mod:`sweepcli.physics.rotation`): a flake's corner charge is 1/2 in the quadrupole phase
+    (tests/physics/test_rotation.py), while the spinless formula would give 1/4.
     """
     g0, g1, g2, g3, g4 = bbh_gammas()
     terms = [fourier_term((1, 0), cos=lam * g4, sin=lam * g3),
              fourier_term((0, 1), cos=lam * g2, sin=lam * g1)]
     ops = {"chiral": g0} if delta == 0 else {}
-    return assemble(SQUARE, [[0.75, 0.75], [0.25, 0.25], [0.25, 0.75], [0.75, 0.25]],
-                    gamma * (g4 + g2) + delta * g0, terms, operators=ops)
+    sites = [[0.75, 0.75], [0.25, 0.25], [0.25, 0.75], [0.75, 0.25]]
+    rots = {4: site_rotation(SQUARE, sites, 4, (0.5, 0.5), phases=(1, 1, -1, 1))} \
+        if delta == 0 else {}
+    return assemble(SQUARE, sites, gamma * (g4 + g2) + delta * g0, terms, operators=ops,
+                    rotations=rots)

@@ -6,6 +6,7 @@ import numpy as np
 
 from ..lattice import TightBinding, assemble
 from ..registry import Param
+from ..rotation import site_rotation
 from . import MODELS
 
 #: Triangular Bravais lattice, ``a_2`` = ``a_1`` rotated by 60 degrees (lattice constant 1).
@@ -54,6 +55,13 @@ def breathing_kagome(*, ta: float, tb: float = 1.0, mu: float = 0.0) -> TightBin
     (no two-sublattice chiral symmetry exists on three sublattices), so corner counts are by
     pinning, in a window centred on the energy of the modes (``energy = 0`` in
     ``[measure.polygon_modes]``).
+
+    Rotation (``rotations[3]``): the three-fold rotation about the centre of the upward
+    triangle (reduced (1/6, 1/6)) takes A to B to C, with no cell shifts; a symmetry for every
+    parameter set. Its indicator gives the corner charge 1/3 at filling one (one band) for
+    ``-1 < t_a / t_b < 1/2`` and 0 for ``t_a / t_b > 2`` (:mod:`sweepcli.physics.rotation`;
+    the 1/3 is BLH 2019's, from memory, and checked against flakes in
+    tests/physics/test_rotation.py).
     """
     j = np.ones((3, 3)) - np.eye(3)
     onsite = mu * np.eye(3) - ta * j
@@ -64,4 +72,5 @@ def breathing_kagome(*, ta: float, tb: float = 1.0, mu: float = 0.0) -> TightBin
         t = np.zeros((3, 3))
         t[i, k] = -tb
         terms.append((r, t))
-    return assemble(TRIANGULAR, KAGOME_SITES, onsite, terms)
+    rot = site_rotation(TRIANGULAR, KAGOME_SITES, 3, (1.0 / 6.0, 1.0 / 6.0))
+    return assemble(TRIANGULAR, KAGOME_SITES, onsite, terms, rotations={3: rot})
