@@ -26,6 +26,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.collections import QuadMesh  # noqa: E402
 
 DEMOS = sorted(p.name for p in JOBS.glob("*.toml"))
+#: Float variables quantised to multiples of 1/2: a spin Chern number, a quadrupole moment q_xy.
+HALF_INTEGER = ("spin_chern", "quadrupole")
 
 
 def tiny_job(name: str, num: int = 4):
@@ -58,7 +60,7 @@ def fill(job, values, *, done_fraction=1.0, gap_closed=()):
             data = np.resize(np.asarray(values, np.int32), n)
             data[list(gap_closed)] = FILL_INT
             r.data[name] = np.where(done, data, FILL_INT).reshape(r.shape)
-        elif name == "spin_chern":
+        elif name in HALF_INTEGER:
             r.data[name] = np.where(done, np.resize(np.asarray(values, float) / 2, n),
                                     np.nan).reshape(r.shape)
         else:
@@ -136,7 +138,7 @@ def test_default_map_of_each_demo_ties_colours_to_values(name):
         ca, cb = marker_colours(fa), marker_colours(fb)
     else:
         ca, cb = cell_colours(fa, a, var), cell_colours(fb, b, var)
-    scale = 0.5 if var == "spin_chern" else 1.0
+    scale = 0.5 if var in HALF_INTEGER else 1.0
     assert set(ca) == {scale * v for v in (-1, 0, 1)}
     assert set(cb) == {scale * v for v in (2, 0, 1, -2, 3)}
     for colours in list(ca.values()) + list(cb.values()):
