@@ -22,7 +22,9 @@ def test_ci_runs_the_readme_test_command():
 
 
 def test_readme_job_files_validate(tmp_path):
-    example, custom = [b for b in blocks("toml") if "[model]" in b]
+    models = [b for b in blocks("toml") if "[model]" in b]
+    example = next(b for b in models if "[job]" in b)
+    custom = next(b for b in models if 'name = "custom"' in b)
     job = tmp_path / "example.toml"
     job.write_text(example)
     result = CliRunner().invoke(app, ["check", str(job)])

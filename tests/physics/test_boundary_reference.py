@@ -208,6 +208,8 @@ def floquet_dist(parts, period, centre):
 def check_gap(got, ref):
     gap, xi = got
     assert gap == pytest.approx(ref[0], rel=1e-9, abs=1e-12)
+    if ref[0] < 1e-12:
+        return  # a gapless edge (rounding-level gap): its decay length is undefined, and unused
     if math.isinf(ref[1]):
         assert math.isinf(xi)
     else:
