@@ -374,6 +374,7 @@ def _polygon(point, options: dict[str, Any], gap: str, factors, windows) -> dict
                 density=density, corner_weight=corner_weight,
                 reasons={g: s.reason.name.lower() for g, s in states.items()},
                 full=full, tb=tb, region=region, positions=sites,
+                count_windows={g: s.window for g, s in states.items() if s.window is not None},
                 vertices=size * poly.vertices,
                 corner_outlines=_corner_outlines(poly, size, region))
 
@@ -475,6 +476,8 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
     else:
         raw = (_polygon(point, options, gap, factors, windows) if kind == "polygon"
                else _box(point, kind, options, gap, factors, windows))
+        # A polygon's window may be centred on its ``energy``, not on the gap at the filling.
+        windows = {**windows, **raw.get("count_windows", {})}
         at_gap = raw["window_at"].get(gap, np.zeros(0, int))
         modes = at_gap[raw["kinds"][gap] == 2] if gap in raw["kinds"] else at_gap
         drawing = SampleDrawing(kind, raw["shape"], gap, index, params, options, raw["levels"],
