@@ -117,7 +117,8 @@ def sample(ctx: typer.Context,
                     "value, named in the line printed).")] = None,
            kind: Annotated[str | None, typer.Option(
                "--kind",
-               help="flake, chain or ribbon (default: the job's boundary measurement, else what "
+               help="flake, polygon, chain or ribbon (default: the job's boundary measurement, "
+                    "else what "
                     "its invariants predict: ribbon for Chern-type, flake for line windings, chain "
                     "in 1D).")] = None,
            size: Annotated[int | None, typer.Option(

@@ -9,6 +9,8 @@ or :func:`~sweepcli.physics.boundary.ribbon_modes` (ribbons), and
 densities, ribbon bands with their low-edge weight). :mod:`sweepcli.report.sample_plot` draws
 the result:
 
+* a polygon (``polygon_modes``): the same, with the in-gap density on every site of the
+  polygonal flake, its outline, vertices and corner regions;
 * a chain or flake: the spectrum (energy, or quasienergy for a drive) against state index with
   the in-gap window(s) and the states counted as end/corner modes, and the density
   ``sum |psi|^2`` of the in-gap states of the chosen gap summed per cell, on the sample;
@@ -36,9 +38,9 @@ from ..store import FILL_INT, Results
 from .map_data import axis_index
 
 #: Sample kind -> (boundary measurement whose options it takes, option holding its size).
-KINDS = {"flake": ("corner_modes", "size"), "chain": ("end_modes", "cells"),
-         "ribbon": ("edge_modes", "width")}
-KIND_DIM = {"flake": 2, "chain": 1, "ribbon": 2}
+KINDS = {"flake": ("corner_modes", "size"), "polygon": ("polygon_modes", "size"),
+         "chain": ("end_modes", "cells"), "ribbon": ("edge_modes", "width")}
+KIND_DIM = {"flake": 2, "polygon": 2, "chain": 1, "ribbon": 2}
 #: Largest samples (orbitals) whose whole spectrum is drawn (dense; ~2 s on one core); beyond,
 #: only the levels inside the windows are drawn.
 FULL_SPECTRUM_MAX = 2500
@@ -56,8 +58,9 @@ class SampleDrawing:
 
     Attributes
     ----------
-    kind : ``"flake"``, ``"chain"`` or ``"ribbon"``; shape : cells (``(L, L)``, ``(L,)`` or
-        ``(W,)`` across a ribbon); gap : the chosen gap, ``"0"`` or ``"pi"``.
+    kind : ``"flake"``, ``"polygon"``, ``"chain"`` or ``"ribbon"``; shape : cells (``(L, L)``,
+        ``(L,)``, ``(W,)`` across a ribbon, ``(size,)`` of a polygon); gap : the chosen gap,
+        ``"0"`` or ``"pi"``.
     index : grid index (one entry per axis) of the point; params : its swept values.
     options : the sample options used (size, max size, window, method, ...).
     levels : chain/flake: ``(n,)`` levels drawn, ascending (energy; quasienergy in
@@ -67,15 +70,23 @@ class SampleDrawing:
     mode_indices : those of them counted as end/corner modes (ribbon: those on the low edge,
         low-half weight > 1/2).
     counts : gap -> counts found: ``{"total", "00", "10", "01", "11"}`` (flake), ``{"total",
-        "left", "right"}`` (chain), ``{"chiral"}`` (ribbon); ``None`` where missing.
+        "left", "right"}`` (chain), ``{"total", "v0", "v1", ...}`` (polygon, per vertex),
+        ``{"chiral"}`` (ribbon); ``None`` where missing.
     stored : the same counts as stored in the file at this point, when the job measured this
-        sample with these options (else empty).
+        sample with these options (else empty; a polygon's are ``{"total", "min", "max"}``).
     stored_reasons : gap -> the reason stored in the file for that gap's count (read through
         the count's ``ancillary_variables`` link, e.g. ``corner_modes_pi_reason``), beside
         ``stored``.
     density : chain/flake: ``shape`` array, ``sum |psi|^2`` of the chosen gap's in-window
-        states per cell (sums to their number); ``None`` for a ribbon.
-    corner_weight : chain/flake: ``(2**d,)`` density inside each corner (end) region.
+        states per cell (sums to their number); polygon: ``(m,)`` the same per site (orbitals
+        at one position summed); ``None`` for a ribbon.
+    corner_weight : chain/flake: ``(2**d,)`` density inside each corner (end) region; polygon:
+        ``(n,)`` inside each vertex's corner region.
+    positions : polygon: ``(m, 2)`` Cartesian positions of its sites.
+    vertices : polygon: ``(n, 2)`` Cartesian vertices (counter-clockwise) at the size drawn.
+    corner_outlines : polygon: ``(n, 4, 2)`` the parallelogram at each vertex within
+        ``region`` rows of cells of both sides that meet there (the corner regions, which the
+        nearest-vertex partition cuts further on a small polygon).
     reasons : gap -> reason name of missing counts (``"ok"`` otherwise).
     full_spectrum : whether ``levels`` is the whole spectrum.
     region : chain/flake: radius in cells of the end (corner) regions the count settled on.
@@ -98,6 +109,9 @@ class SampleDrawing:
     reasons: dict[str, str] = field(default_factory=dict)
     full_spectrum: bool = True
     region: int = 0
+    positions: np.ndarray | None = None
+    vertices: np.ndarray | None = None
+    corner_outlines: np.ndarray | None = None
     chosen: str = ""  # why this sample kind, when it was not asked for
     defaulted: tuple[str, ...] = ()  # axes of more than one value that --at did not name
 
@@ -137,14 +151,14 @@ CORNER_INVARIANTS = ("line_winding",)
 def default_kind(job) -> tuple[str, str]:
     """The sample to draw for ``job`` when none is asked for, and why (one phrase).
 
-    The job's boundary measurement: ``corner_modes`` -> flake, ``edge_modes`` -> ribbon,
-    ``end_modes`` -> chain (in that order). Without one, what its invariants predict: a chain
-    in 1D, a flake for symmetry-resolved line windings (corner modes), else a ribbon (chiral
-    edge modes of Chern, spin Chern, Floquet Chern numbers and the Rudner winding, and the
-    edge states of any other 2D job).
+    The job's boundary measurement: ``corner_modes`` -> flake, ``polygon_modes`` -> polygon,
+    ``edge_modes`` -> ribbon, ``end_modes`` -> chain (in that order). Without one, what its
+    invariants predict: a chain in 1D, a flake for symmetry-resolved line windings (corner
+    modes), else a ribbon (chiral edge modes of Chern, spin Chern, Floquet Chern numbers and
+    the Rudner winding, and the edge states of any other 2D job).
     """
     measured = [m for m, _ in job.measurements]
-    for k in ("flake", "ribbon", "chain"):
+    for k in ("flake", "polygon", "ribbon", "chain"):
         if KINDS[k][0] in measured:
             return k, f"the job measures {KINDS[k][0]}"
     if job.dim == 1:
@@ -194,6 +208,9 @@ def _stored(results: Results, kind: str, index: tuple[int, ...], driven: bool
     for g in GAPS[: 2 if driven else 1]:
         if kind == "flake":
             names = {"total": f"corner_modes_{g}"} | {c: f"corner_modes_{g}_{c}" for c in _CORNERS}
+        elif kind == "polygon":
+            names = {"total": f"polygon_modes_{g}", "min": f"polygon_modes_{g}_min",
+                     "max": f"polygon_modes_{g}_max"}
         elif kind == "chain":
             names = {"total": f"end_modes_{g}", "left": f"end_modes_{g}_left",
                      "right": f"end_modes_{g}_right"}
@@ -215,7 +232,8 @@ def _stored_reasons(results: Results, kind: str, index: tuple[int, ...], driven:
     reason link; ``<measurement>_reason`` in files written before per-gap reasons)."""
     out = {}
     for g in GAPS[: 2 if driven else 1]:
-        var = {"flake": f"corner_modes_{g}", "chain": f"end_modes_{g}"}.get(
+        var = {"flake": f"corner_modes_{g}", "chain": f"end_modes_{g}",
+               "polygon": f"polygon_modes_{g}"}.get(
             kind, f"chiral_edge_modes_{g}")
         if var not in results.variables or not results.done[index]:
             continue
@@ -296,6 +314,88 @@ def _box(point, kind: str, options: dict[str, Any], gap: str, factors, windows) 
                 full=full, tb=tb, region=region)
 
 
+def _polygon(point, options: dict[str, Any], gap: str, factors, windows) -> dict:
+    """A polygon's sample solved again by the measurement's own
+    :func:`~sweepcli.physics.measurements.boundary.polygon_counts`, with the pieces a picture
+    needs (the keys of :func:`_box`, and ``positions``, ``vertices``, ``corner_outlines``)."""
+    from ..physics import boundary as bd
+    from ..physics import quasienergy as qe
+    from ..physics import samples
+    from ..physics.drives.evolution import evolve
+    from ..physics.measurements import boundary as mb
+
+    driven = factors is not None
+    tb = factors[0][1] if driven else point.tb
+    try:
+        poly = mb.point_polygon(tb, options["shape"], options["vertices"],
+                                options["coordinates"])
+        states = mb.polygon_counts(point, options)
+    except ValueError as exc:
+        raise SweepError(f"cannot build the polygon: {exc}.") from None
+    chosen = states[gap]
+    shape = chosen.shape or (int(options["size"]),)
+    size = int(shape[0])
+    region = chosen.region
+    period = windows["0"].period
+    _, _, pos = samples.polygon_sites(tb, poly, size)
+    n = pos.shape[0]
+    absolute = {g: (s.levels + s.window.centre if not driven else
+                    qe.wrap_quasienergy(s.levels + s.window.centre, period))
+                for g, s in states.items() if s.shape == shape}
+    full = n <= (FULL_SPECTRUM_MAX_DRIVEN if driven else FULL_SPECTRUM_MAX)
+    if full and driven:
+        u = evolve([(float(t), samples.polygon_hamiltonian(f, poly, size).toarray())
+                    for t, f in factors])
+        levels = qe.quasienergy_values(u, period)
+    elif full:
+        levels = np.linalg.eigvalsh(samples.polygon_hamiltonian(tb, poly, size).toarray())
+    else:
+        levels = np.sort(np.concatenate(list(absolute.values()) or [np.zeros(0)]))
+    vectors = chosen.vectors
+    if vectors is None or vectors.shape[0] != n:
+        vectors = np.zeros((n, 0), complex)
+    weight = np.sum(np.abs(vectors) ** 2, axis=1)
+    regions = bd.polygon_regions(poly, pos, size)
+    inside = regions.cdist < region
+    corner_weight = np.bincount(regions.corner[inside], weights=weight[inside],
+                                minlength=poly.n)
+    # Orbitals at one position (several per site) are one site of the picture.
+    sites, which = np.unique(np.round(pos, 9), axis=0, return_inverse=True)
+    density = np.bincount(which.ravel(), weights=weight, minlength=len(sites))
+    counts = {}
+    for g, s in states.items():
+        pc = s.per_corner
+        counts[g] = {"total": s.total} | {f"v{j}": None if pc is None else int(pc[j])
+                                          for j in range(poly.n)}
+    return dict(shape=shape, levels=levels,
+                window_at={g: _match(levels, absolute[g], period) for g in absolute},
+                kinds={g: states[g].kinds for g in absolute},
+                relative={g: states[g].levels for g in absolute}, counts=counts,
+                density=density, corner_weight=corner_weight,
+                reasons={g: s.reason.name.lower() for g, s in states.items()},
+                full=full, tb=tb, region=region, positions=sites,
+                count_windows={g: s.window for g, s in states.items() if s.window is not None},
+                vertices=size * poly.vertices,
+                corner_outlines=_corner_outlines(poly, size, region))
+
+
+def _corner_outlines(poly, size: int, region: int) -> np.ndarray:
+    """``(n, 4, 2)``: at each vertex the parallelogram of the points within ``region`` rows of
+    both sides meeting there (rows of the sides' spacing)."""
+    v = size * poly.vertices
+    spacing = poly.row_spacing()
+    out = np.zeros((poly.n, 4, 2))
+    for j in range(poly.n):
+        ahead = v[(j + 1) % poly.n] - v[j]
+        back = v[j - 1] - v[j]
+        ahead, back = ahead / np.linalg.norm(ahead), back / np.linalg.norm(back)
+        sine = abs(ahead[0] * back[1] - ahead[1] * back[0])
+        p1 = v[j] + ahead * region * spacing[j - 1] / sine  # side j - 1 ends at vertex j
+        p3 = v[j] + back * region * spacing[j] / sine
+        out[j] = [v[j], p1, p1 + p3 - v[j], p3]
+    return out
+
+
 def _ribbon(point, options: dict[str, Any], gap: str, factors, windows) -> dict:
     from ..physics import boundary as bd
     from ..physics import inspect as ins
@@ -374,13 +474,19 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
         drawing = SampleDrawing(kind, raw["shape"], gap, index, params, options, bands.levels,
                                 win, modes, raw["counts"], reasons=raw["reasons"])
     else:
-        raw = _box(point, kind, options, gap, factors, windows)
-        at_gap = raw["window_at"][gap]
+        raw = (_polygon(point, options, gap, factors, windows) if kind == "polygon"
+               else _box(point, kind, options, gap, factors, windows))
+        # A polygon's window may be centred on its ``energy``, not on the gap at the filling.
+        windows = {**windows, **raw.get("count_windows", {})}
+        at_gap = raw["window_at"].get(gap, np.zeros(0, int))
+        modes = at_gap[raw["kinds"][gap] == 2] if gap in raw["kinds"] else at_gap
         drawing = SampleDrawing(kind, raw["shape"], gap, index, params, options, raw["levels"],
-                                np.sort(at_gap), np.sort(at_gap[raw["kinds"][gap] == 2]),
+                                np.sort(at_gap), np.sort(modes),
                                 raw["counts"], density=raw["density"],
                                 corner_weight=raw["corner_weight"], reasons=raw["reasons"],
-                                full_spectrum=raw["full"], region=raw["region"])
+                                full_spectrum=raw["full"], region=raw["region"],
+                                positions=raw.get("positions"), vertices=raw.get("vertices"),
+                                corner_outlines=raw.get("corner_outlines"))
     drawing = replace(drawing, chosen=chosen, defaulted=tuple(
         a.name for a in job.axes if a.name not in (at or {}) and len(a.values) > 1))
     if as_measured:
@@ -395,7 +501,10 @@ def inspect_point(results: Results, *, at: dict[str, float] | None = None,
 # ----------------------------------------------------------------------------------------------
 
 def sample_name(kind: str, shape: tuple[int, ...]) -> str:
-    """``"flake of 16 x 16 cells"``, ``"ribbon 12 cells wide"``, ...: the sample in words."""
+    """``"flake of 16 x 16 cells"``, ``"ribbon 12 cells wide"``, ``"polygon of size 12"``, ...:
+    the sample in words."""
+    if kind == "polygon":
+        return f"polygon of size {shape[0]}"
     if kind == "ribbon":
         return f"ribbon {shape[0]} cells wide"
     return f"{kind} of {' x '.join(map(str, shape))} cells"
@@ -409,6 +518,6 @@ def count_text(kind: str, counts: dict, reason: str) -> str:
                 else f"missing ({reason.replace('_', ' ')})")
     if counts["total"] is None:
         return f"missing ({reason.replace('_', ' ')})"
-    noun = "corner" if kind == "flake" else "end"
+    noun = "end" if kind == "chain" else "corner"
     parts = ", ".join(f"{k} {v}" for k, v in counts.items() if k != "total")
     return f"{counts['total']} {noun} mode(s) ({parts})"

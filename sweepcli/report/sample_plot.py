@@ -6,6 +6,9 @@ sample solved again by the physics core); this module only draws them with matpl
 * a chain or flake: the spectrum (energy, or quasienergy for a drive) against state index with
   the in-gap window(s) shaded and the states counted as end/corner modes highlighted, and the
   density ``sum |psi|^2`` of the in-gap states of the chosen gap summed per cell, on the sample;
+* a polygon: the same spectrum, and the density of the in-gap states on every site of the
+  polygonal flake, with its outline, its vertices (each with its count and the weight in its
+  corner region) and the corner regions dashed;
 * a ribbon: the bands (quasienergy bands) against the momentum along the edge, each state
   coloured by its weight on the low edge.
 """
@@ -43,6 +46,10 @@ def _title(job, drawing: SampleDrawing, options: dict) -> str:
     if drawing.kind == "ribbon":
         lines.append(f"{sample_name(drawing.kind, drawing.shape)}, open along "
                      f"a{options['open_axis'] + 1}")
+    elif drawing.kind == "polygon":
+        lines.append(f"{options['shape']} {sample_name(drawing.kind, drawing.shape)}, corner "
+                     f"regions {drawing.region} row(s) of cells from both sides at a vertex, "
+                     f"window {options['window']:g} x half the gap")
     else:
         n_reg = drawing.region
         reg = f"{n_reg} x {n_reg}" if drawing.kind == "flake" else f"{n_reg}"
@@ -96,7 +103,7 @@ def _draw_spectrum(ax, raw: dict, d: SampleDrawing) -> None:
     handles = _shade_windows(ax, raw["windows"], driven, d.gap)
     ax.plot(x, levels, ".", ms=2.5, color=LEVEL_COLOUR, zorder=2)
     handles.append(Line2D([], [], ls="", marker=".", color=LEVEL_COLOUR, label="levels"))
-    noun = "corner" if d.kind == "flake" else "end"
+    noun = "end" if d.kind == "chain" else "corner"
     shown_kinds = set()
     for g, idx in raw["window_at"].items():
         kinds = raw["kinds"][g]
@@ -203,6 +210,58 @@ def _draw_flake_density(fig, ax, raw: dict, d: SampleDrawing) -> None:
                  f"{r} x {r} cells)", fontsize=9)
 
 
+def _draw_polygon_density(fig, ax, raw: dict, d: SampleDrawing) -> None:
+    from matplotlib.patches import Polygon
+
+    pos, dens, verts = d.positions, d.density, d.vertices
+    top = float(dens.max()) if dens.size and dens.max() > 0 else 1.0
+    lo, hi = verts.min(axis=0), verts.max(axis=0)
+    extent = float(np.max(hi - lo))
+    # Marker area from the area per site, so a small and a large flake look alike.
+    area = _area(verts)
+    per_site = area / max(len(pos), 1)
+    pts = (ax.get_window_extent().width / (1.5 * extent)) ** 2 * per_site
+    base = float(np.clip(0.6 * pts, 1.0, 60.0))
+    ax.add_patch(Polygon(verts, closed=True, fc="0.97", ec="none", zorder=0))
+    order = np.argsort(dens, kind="stable")  # heavy sites on top
+    sc = ax.scatter(pos[order, 0], pos[order, 1], c=dens[order], cmap="magma_r", vmin=0,
+                    vmax=top, s=base * (0.35 + 2.5 * dens[order] / top), lw=0.4,
+                    edgecolors="0.6", zorder=2)
+    for box in d.corner_outlines:
+        ax.add_patch(Polygon(box, closed=True, fill=False, ec="tab:green", lw=1.0, ls="--",
+                             zorder=3))
+    ax.add_patch(Polygon(verts, closed=True, fill=False, ec="tab:blue", lw=1.4, zorder=3))
+    ax.plot(verts[:, 0], verts[:, 1], "o", ms=6, mfc="tab:blue", mec="k", mew=0.5, zorder=4)
+    centre = verts.mean(axis=0)
+    counts = d.counts[d.gap]
+    for j, v in enumerate(verts):
+        out = (v - centre) / np.linalg.norm(v - centre)
+        n = counts[f"v{j}"]
+        txt = f"v{j}: {_or_dash(n)} mode(s)\nweight {d.corner_weight[j]:.2f}"
+        at = v + 0.06 * extent * out
+        ax.annotate(txt, at, fontsize=7, ha="left" if out[0] > 0.3 else
+                    ("right" if out[0] < -0.3 else "center"),
+                    va="bottom" if out[1] > 0.3 else ("top" if out[1] < -0.3 else "center"),
+                    annotation_clip=False, zorder=5,
+                    bbox=dict(fc="w", ec="0.7", lw=0.5, alpha=0.85, pad=1.5))
+    pad = 0.22 * (hi - lo).max()
+    ax.set_xlim(lo[0] - pad, hi[0] + pad)
+    ax.set_ylim(lo[1] - pad, hi[1] + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x [lattice constant]")
+    ax.set_ylabel("y [lattice constant]")
+    m = len(d.window_indices)
+    fig.colorbar(sc, ax=ax, shrink=0.85,
+                 label=f"Σ |ψ|² per site of the {m} in-window state(s) at {_gap_label(d.gap)}")
+    ax.set_title(f"where the in-gap states at {_gap_label(d.gap)} sit (blue: the polygon and its "
+                 f"vertices; dashed: corner regions, {d.region} row(s))", fontsize=9)
+
+
+def _area(verts: np.ndarray) -> float:
+    x, y = verts[:, 0], verts[:, 1]
+    return 0.5 * abs(float(np.sum(x * np.roll(y, -1) - y * np.roll(x, -1))))
+
+
 def _or_dash(n: int | None) -> str:
     return "-" if n is None else str(n)
 
@@ -270,7 +329,7 @@ def draw_sample(results: Results, out: str | Path, *, at: dict[str, float] | Non
     results : a results file written by ``sweepcli run`` (it must hold ``job_text``).
     out : picture file; the format follows the suffix (png, svg, pdf).
     at : swept parameter -> value; the nearest grid value is taken, other axes their first.
-    kind : ``"flake"``, ``"chain"`` or ``"ribbon"`` (default from the job's boundary
+    kind : ``"flake"``, ``"polygon"``, ``"chain"`` or ``"ribbon"`` (default from the job's boundary
         measurement, see :func:`sample_options`); size : cells (side, length or width).
     gap : ``"0"`` or ``"pi"`` (driven jobs): the gap whose in-gap states are drawn on the sample.
     label : how error messages name the results file.
@@ -303,6 +362,8 @@ def draw_sample(results: Results, out: str | Path, *, at: dict[str, float] | Non
         _draw_spectrum(ax1, raw, drawing)
         if drawing.kind == "flake":
             _draw_flake_density(fig, ax2, raw, drawing)
+        elif drawing.kind == "polygon":
+            _draw_polygon_density(fig, ax2, raw, drawing)
         else:
             _draw_chain_density(ax2, raw, drawing)
         if not drawing.window_indices.size:

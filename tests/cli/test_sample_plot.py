@@ -218,3 +218,53 @@ def test_sample_names_the_value_of_every_axis_and_which_were_not_given(tmp_path)
     both = invoke("sample", out, "--at", "v=3", "--at", "w=2", "-o", tmp_path / "b.png")
     assert both.exit_code == 0, both.output
     assert " at w=2, v=3: 0 end mode(s)" in both.stdout and "first value" not in both.stdout
+
+
+POLYGON_JOB = """
+[job]
+name = "kagome"
+title = "Breathing kagome triangle"
+[model]
+name = "breathing_kagome"
+[sweep]
+ta = [0.2, 3.0]
+[measure.polygon_modes]
+shape = "triangle"
+size = 12
+max_size = 24
+energy = 0.0
+"""
+
+
+@pytest.fixture(scope="module")
+def polygon_file(tmp_path_factory):
+    return _run(tmp_path_factory.mktemp("polygon"), "kagome", POLYGON_JOB)
+
+
+def test_sample_draws_a_polygon_with_its_corner_modes(polygon_file, tmp_path):
+    # Ezawa, PRL 120, 026801 (2018) (from memory): a triangular flake of whole upward
+    # triangles of the breathing kagome lattice has one zero-energy state at each corner for
+    # 0 < ta/tb < 1/2, none for ta/tb > 2.
+    out = tmp_path / "tri.png"
+    result = invoke("sample", polygon_file, "--at", "ta=0.2", "-o", out)
+    assert result.exit_code == 0, result.output
+    assert "polygon of size" in result.output and "(v0 1, v1 1, v2 1)" in result.output
+    assert out.read_bytes()[:8] == PNG_MAGIC
+    _, d = draw_sample(Results.read(polygon_file), tmp_path / "again.png", at={"ta": 0.2})
+    assert d.kind == "polygon" and d.counts["0"]["total"] == 3
+    assert d.stored["0"] == {"total": 3, "min": 1, "max": 1}
+    # The triangle of size L on the triangular lattice holds the L (L + 1) / 2 cells
+    # c_1 + c_2 < L, three sites each (counted here, not by the code).
+    size = d.shape[0]
+    cells = sum(1 for c1 in range(size) for c2 in range(size) if c1 + c2 < size)
+    assert d.positions.shape == (3 * cells, 2) and d.density.shape == (3 * cells,)
+    assert np.allclose(d.vertices, size * np.array([[0, 0], [1, 0], [0.5, np.sqrt(3) / 2]]))
+    # The three in-window states' weight (it sums to 3) sits at the vertices: nearly all of it
+    # within 2.5 lattice constants of one, and each corner region holds about one state.
+    assert d.density.sum() == pytest.approx(3.0)
+    near = np.min(np.linalg.norm(d.positions[:, None] - d.vertices[None], axis=2), axis=1) < 2.5
+    assert d.density[near].sum() > 2.95
+    assert np.all(d.corner_weight > 0.95)
+    # The trivial side: no in-window state, nothing at the vertices.
+    _, t = draw_sample(Results.read(polygon_file), tmp_path / "trivial.png", at={"ta": 3.0})
+    assert t.counts["0"]["total"] == 0 and t.density.sum() == pytest.approx(0.0)
