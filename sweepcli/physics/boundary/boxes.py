@@ -331,7 +331,8 @@ def _geometry_gaps(dists: list[Callable[[np.ndarray], np.ndarray]], ncentre: int
                    lip: float) -> list[tuple[tuple[float, float], bool]]:
     """``[((gap, xi), halved), ...]`` per centre for one geometry (a chain, or ribbons of width
     ``W`` and ``2 W``): what :func:`gap_and_decay` gives for the first, and whether the second's
-    gap is below half of it (decided without polishing its minimum when provably not)."""
+    gap is below half of it (:func:`_halved_all`: the second is evaluated only at the momenta
+    that decide, ``lip`` bounding its slope)."""
     k = ribbon_kgrid(nk)
     grid = dists[0](k)
     out = []
