@@ -112,6 +112,14 @@ ARCCOS_GUARD = 1e-2
 #: Evaluations spent on proving that the twice-wider ribbon's gap cannot halve (else its
 #: minimum is polished as by :func:`gap_and_decay`).
 CERTIFY_EVALS = 12
+#: The twice-wider ribbon is first evaluated where the narrower one's distances, times this
+#: margin, would prove it not halved (:func:`_halved_all`).
+SPARSE_GUIDE = 0.97
+#: Evaluations :func:`_halved_all` may spend inside single grid steps before it evaluates the
+#: whole grid instead.
+SPARSE_OFFGRID = 32
+#: Relative room left for the rounding of distances when a bound clears a threshold.
+SPARSE_ROUNDING = 1e-8
 
 
 def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = None,
@@ -139,8 +147,8 @@ def static_boundary_gap(tb: TightBinding, centre: float, width: int | None = Non
         return dists
 
     found = []
-    for geometry in _geometries(tb, width, cuts):
-        lip = _slope_bound([(1.0, geometry[-1][0])])
+    for j, geometry in enumerate(_geometries(tb, width, cuts)):
+        lip = _ribbon_slope([(1.0, tb)], [(1.0, geometry[-1][0])], None if cuts else 1 - j)
         found.append(_geometry_gaps([dists_of(h, far) for h, far in geometry], 1, nk, lip)[0])
     return _settled_all([found])[0]
 
@@ -190,7 +198,7 @@ def floquet_boundary_gaps(factors: Sequence[tuple[float, TightBinding]], period:
         geometry = [[(float(t), g[j][w][0]) for (t, _), g in zip(factors, per_step)]
                     for w in range(len(per_step[0][j]))]
         fars = [per_step[0][j][w][1] for w in range(len(per_step[0][j]))]
-        lip = _slope_bound(geometry[-1]) / period
+        lip = _ribbon_slope(factors, geometry[-1], None if cuts else 1 - j) / period
         found.append(_geometry_gaps([_floquet_dists(parts, period, centres, far)
                                      for parts, far in zip(geometry, fars)],
                                     len(centres), nk, lip))
@@ -281,23 +289,149 @@ def _slope_bound(parts: Sequence[tuple[float, TightBinding]]) -> float:
     return total * (1 + 1e-6)
 
 
+def _ribbon_slope(bulk: Sequence[tuple[float, TightBinding]],
+                  ribbon: Sequence[tuple[float, TightBinding]], par: int | None) -> float:
+    """Bound on ``|d level / d k_par|`` of the ribbons ``ribbon`` (steps of a drive, or one
+    ``(1, H)``): :func:`_slope_bound`, or, for ribbons of the 2D ``bulk`` periodic along
+    lattice direction ``par`` (``None``: not such ribbons), the lower ``sum_j t_j`` times
+    :func:`_strip_slope` of each bulk step."""
+    crude = _slope_bound(ribbon)
+    if par is None or bulk[0][1].dim != 2:
+        return crude
+    return min(crude, sum(abs(t) * _strip_slope(tb, par) for t, tb in bulk))
+
+
+def _strip_slope(tb: TightBinding, par: int, n: int = 128) -> float:
+    """Bound on ``||dH/dk_par||`` of every ribbon of ``tb`` periodic along ``a_par``, any width.
+
+    Such a ribbon's ``H(k_par)`` is a compression (the block of the open cells kept) of the
+    infinite strip's, a direct integral over ``k_open`` of the bulk ``H(k)``; a compression
+    has no larger norm, so ``||dH_ribbon/dk_par|| <= max_k ||d_par H(k)||``. That maximum is
+    taken on an ``n x n`` mesh plus the change of ``d_par H`` to the nearest mesh point (at most
+    ``pi / n`` away in each reduced direction): ``2 sum_R |R_par| (|R_1| + |R_2|) ||T_R|| pi/n``.
+    Up to twice as tight as :func:`_slope_bound`, whose terms add norms of terms whose maxima
+    over ``k`` need not meet (a Dirac term ``sin k`` and a mass term ``cos k``).
+    """
+    q = 2 * np.pi * np.arange(n) / n
+    mesh = np.stack(np.meshgrid(q, q, indexing="ij"), axis=-1).reshape(-1, 2)
+    deriv = np.zeros((mesh.shape[0], tb.norb, tb.norb), dtype=complex)
+    slack = 0.0
+    for r, t in tb.hoppings.items():
+        if r[par] == 0:
+            continue
+        phase = np.exp(1j * (mesh @ np.asarray(r, dtype=float)))[:, None, None]
+        term = 1j * r[par] * t * phase
+        deriv += term + np.conj(np.swapaxes(term, -1, -2))
+        slack += 2 * abs(r[par]) * (abs(r[0]) + abs(r[1])) * float(np.linalg.norm(t, 2)) * np.pi / n
+    peak = float(np.max(np.abs(np.linalg.eigvalsh(deriv)))) if deriv.size else 0.0
+    return (peak + slack) * (1 + 1e-6)
+
+
 def _geometry_gaps(dists: list[Callable[[np.ndarray], np.ndarray]], ncentre: int, nk: int,
                    lip: float) -> list[tuple[tuple[float, float], bool]]:
     """``[((gap, xi), halved), ...]`` per centre for one geometry (a chain, or ribbons of width
     ``W`` and ``2 W``): what :func:`gap_and_decay` gives for the first, and whether the second's
-    gap is below half of it (decided without polishing its minimum when provably not)."""
+    gap is below half of it (:func:`_halved_all`: the second is evaluated only at the momenta
+    that decide, ``lip`` bounding its slope)."""
     k = ribbon_kgrid(nk)
     grid = dists[0](k)
     out = []
     for i in range(ncentre):
         out.append([_gap_and_decay(lambda x, i=i: dists[0](x)[i], k, grid[i]), False])
     if len(dists) > 1 and any(gap > 0 for (gap, _), _ in out):
-        grid2 = dists[1](k)
-        for i in range(ncentre):
-            gap = out[i][0][0]
-            if gap > 0:
-                out[i][1] = _halved(lambda x, i=i: dists[1](x)[i], k, grid2[i], gap / 4, lip)
+        thresholds = [gap / 4 if gap > 0 else None for (gap, _), _ in out]
+        for i, halved in enumerate(_halved_all(dists[1], k, thresholds, lip, grid)):
+            out[i][1] = halved
     return [tuple(x) for x in out]
+
+
+def _halved_all(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray,
+                thresholds: Sequence[float | None], lip: float, guide: np.ndarray) -> list[bool]:
+    """Per centre, :func:`_halved` of ``dist`` (``k -> (ncentre, nk)``) on the grid ``k``, with
+    ``dist`` evaluated at as few grid points as provably decide it (``False`` where the
+    threshold is ``None``).
+
+    :func:`_halved` only ever looks at values of ``dist``: the grid minimum, then points near
+    it. So one grid value below a centre's threshold decides ``True`` (the grid minimum is no
+    larger), and values that prove ``dist >= threshold`` on the whole circle, through the
+    slope bound ``lip`` (a level moves no faster; a segment ``[a, b]`` is cleared when
+    ``(d_a + d_b - lip (b - a)) / 2`` is at or above the threshold), decide ``False``: every
+    value :func:`_halved` could look at is then at or above it. The first points are the
+    fewest grid points that would clear the circle were ``dist`` the ``guide`` (the narrower
+    ribbon's grid distances, which the wider one's follow away from tunnelling, with a margin
+    of ``SPARSE_GUIDE``); a segment not cleared is bisected at a grid point, inside one grid
+    step at points off the grid (at most ``SPARSE_OFFGRID``, counting those the segments
+    still open need at least). A case left open (an off-grid value below a threshold, or that
+    budget spent) evaluates the rest of the grid and runs
+    :func:`_halved` on it.
+    """
+    nk = k.size
+    step = 2 * np.pi / nk
+    thr = np.array([np.nan if t is None else float(t) for t in thresholds])
+    halved = [False] * len(thr)
+    active = [i for i in range(len(thr)) if not np.isnan(thr[i])]
+    clear = thr * (1 + SPARSE_ROUNDING)  # values are cleared with room for their rounding
+    values: dict[float, np.ndarray] = {}  # position in grid steps from k[0] -> (ncentre,)
+
+    def evaluate(pos: list[float]) -> None:
+        grid = [p for p in pos if float(p).is_integer()]
+        off = [p for p in pos if not float(p).is_integer()]
+        x = np.concatenate([k[np.array(grid, dtype=int)], k[0] + step * np.array(off)])
+        for p, v in zip(grid + off, np.asarray(dist(x)).T):
+            values[float(p)] = v
+
+    def cleared(a: float, da: np.ndarray, b: float, db: np.ndarray,
+                idx: list[int]) -> bool:
+        return bool(np.all((da[idx] + db[idx] - lip * step * (b - a)) / 2 >= clear[idx]))
+
+    # First points: greedy cover of the circle under the guide.
+    g = guide * SPARSE_GUIDE
+    seed, a = [0.0], 0
+    while a < nk:
+        b = a + 1
+        while b + 1 <= nk and cleared(a, g[:, a % nk], b + 1, g[:, (b + 1) % nk], active):
+            b += 1
+        if b < nk:
+            seed.append(float(b))
+        a = b
+    evaluate(seed)
+    offgrid = 0
+    while True:
+        for i in list(active):
+            if any(v[i] < thr[i] for p, v in values.items() if p.is_integer()):
+                halved[i] = True
+                active.remove(i)
+        if not active:
+            return halved
+        if any(v[i] < thr[i] for p, v in values.items() if not p.is_integer()
+               for i in active):
+            break  # _halved might miss that dip, or not: only the full grid tells
+        pos = sorted(values)
+        new, needed = [], 0.0
+        for a, b in zip(pos, pos[1:] + [pos[0] + nk]):
+            da, db = values[a], values[b % nk]
+            if cleared(a, da, b, db, active):
+                continue
+            if a.is_integer() and b - a >= 2:
+                new.append(float(int(a + b) // 2 % nk))
+            else:
+                new.append((a + b) / 2 % nk)
+                offgrid += 1
+                # further points this segment needs, were its values no lower inside
+                room = np.min(da[active] + db[active] - 2 * clear[active])
+                needed += max(0.0, lip * step * (b - a) / room - 1) if room > 0 else math.inf
+        if not new:
+            return halved
+        if offgrid + needed > SPARSE_OFFGRID:
+            break
+        evaluate(new)
+    missing = [float(j) for j in range(nk) if float(j) not in values]
+    if missing:
+        evaluate(missing)
+    grid = np.stack([values[float(j)] for j in range(nk)], axis=1)
+    for i in active:
+        halved[i] = bool(_halved(lambda x, i=i: dist(x)[i], k, grid[i], thr[i], lip))
+    return halved
 
 
 def _halved(dist: Callable[[np.ndarray], np.ndarray], k: np.ndarray, d: np.ndarray,
