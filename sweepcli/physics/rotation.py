@@ -120,12 +120,17 @@ class Rotation:
 
 
 def site_rotation(lattice_vectors: np.ndarray, positions: np.ndarray, order: int,
-                  centre, phases=None) -> Rotation:
+                  centre, phases=None, matrix=None) -> Rotation:
     """The counter-clockwise ``C_order`` rotation about ``centre`` (reduced coordinates) that
     moves every orbital site onto an orbital site, from the orbital positions (reduced).
 
-    ``phases`` (n,) multiplies the column of each orbital (``r_ij = phases[j]`` on its image);
-    raises :class:`RotationError` when the lattice or the sites are not symmetric.
+    Orbitals at one position form a site; the ``q``-th orbital of a site goes to the ``q``-th
+    orbital of its image (which must hold as many). ``phases`` (n,) multiplies the column of
+    each orbital (``r_ij = phases[j]`` on its image); ``matrix`` (n, n), unitary, acts on the
+    orbitals before they are moved, ``r = P matrix`` with ``P`` the permutation of the sites,
+    and may mix only orbitals of one site (a p-orbital doublet, a spin). Raises
+    :class:`RotationError` when the lattice or the sites are not symmetric or the matrix is not
+    such a unitary.
     """
     a = np.asarray(lattice_vectors, float)
     x = np.asarray(positions, float)
@@ -136,20 +141,45 @@ def site_rotation(lattice_vectors: np.ndarray, positions: np.ndarray, order: int
     if not np.allclose(m, np.round(m), atol=1e-9):
         raise RotationError(f"the lattice has no {order}-fold rotation")
     c = np.asarray(centre, float)
-    image = (x - c) @ m + c
-    r = np.zeros((n, n), complex)
-    shifts = np.zeros((n, 2), int)
-    ph = np.ones(n, complex) if phases is None else np.asarray(phases, complex)
+    # Sites: orbitals at one position (the same point, not merely the same point mod cells).
+    site_of = np.full(n, -1)
+    sites: list[list[int]] = []
     for j in range(n):
-        d = image[j][None, :] - x
+        for s, members in enumerate(sites):
+            if np.allclose(x[members[0]], x[j], atol=1e-9):
+                members.append(j)
+                site_of[j] = s
+                break
+        else:
+            site_of[j] = len(sites)
+            sites.append([j])
+    image = (x - c) @ m + c
+    perm = np.zeros((n, n), complex)
+    shifts = np.zeros((n, 2), int)
+    for members in sites:
+        d = image[members[0]][None, :] - x
         hit = np.flatnonzero(np.all(np.abs(d - np.round(d)) < 1e-9, axis=1))
-        if hit.size != 1:
-            raise RotationError(f"orbital {j} has no single image under the {order}-fold "
+        targets = list(dict.fromkeys(site_of[hit].tolist()))
+        if len(targets) != 1:
+            raise RotationError(f"orbital {members[0]} has no single image under the {order}-fold "
                                 f"rotation about {tuple(c)}")
-        i = int(hit[0])
-        r[i, j] = ph[j]
-        shifts[j] = np.round(d[i]).astype(int)
-    return Rotation(order, np.round(m).astype(int), r, shifts)
+        into = sites[int(targets[0])]
+        if len(into) != len(members):
+            raise RotationError(f"orbital {members[0]}'s site holds {len(members)} orbitals and "
+                                f"its image under the {order}-fold rotation {len(into)}")
+        shift = np.round(d[into[0]]).astype(int)
+        for j, i in zip(members, into):
+            perm[i, j] = 1.0
+            shifts[j] = shift
+    ph = np.ones(n, complex) if phases is None else np.asarray(phases, complex)
+    u = np.diag(ph)
+    if matrix is not None:
+        u = np.asarray(matrix, complex) @ u
+        if u.shape != (n, n) or not np.allclose(u.conj().T @ u, np.eye(n), atol=1e-10):
+            raise RotationError(f"the orbital matrix must be a unitary {n} x {n} matrix")
+        if np.any(np.abs(u[site_of[:, None] != site_of[None, :]]) > 1e-12):
+            raise RotationError("the orbital matrix may mix only orbitals at one position")
+    return Rotation(order, np.round(m).astype(int), perm @ u, shifts)
 
 
 def check_rotation(tb: TightBinding, rot: Rotation, samples: int = 6, seed: int = 0) -> float:
