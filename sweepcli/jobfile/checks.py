@@ -223,6 +223,27 @@ def _check_point(ck: Checker, job: Job, declared: dict[str, Param], exprs: dict,
         _check_samples(ck, job, first)
     if job.custom is not None:
         _check_hermitian(ck, job, values, i)
+        if i == idx[0]:
+            _check_custom_rotation(ck, job, values, i)
+
+
+def _check_custom_rotation(ck: Checker, job: Job, values: Mapping[str, complex],
+                           index: int) -> None:
+    """A custom model's ``[model.rotation]`` must be a symmetry, ``H(k') = D H(k) D^dagger``,
+    of the model at the first grid point (a point where a swept parameter breaks it fails with
+    the same message)."""
+    from ..physics.rotation import RotationError, check_rotation
+
+    rot = job.custom.rotation
+    if rot is None:
+        return
+    d = job.drive  # the static model, as in _check_hermitian
+    static = tuple((k, e) for k, e in d.overrides[0] if k not in values) if d.always_set else ()
+    try:
+        check_rotation(job.build_model({**values, **{k: e(values) for k, e in static}}), rot)
+    except RotationError as exc:
+        raise JobError(f"{ck.path}: [model.rotation] must be a symmetry of the model; at grid "
+                       f"point {index} {exc}.") from None
 
 
 def _check_magnitudes(ck: Checker, job: Job, values: Mapping[str, complex], index: int) -> None:

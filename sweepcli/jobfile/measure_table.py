@@ -9,7 +9,7 @@ from ..errors import JobError
 from ..physics.measurements import MEASUREMENTS
 from ..physics.registry import Param
 from .checker import Checker
-from .model_table import model_operators
+from .model_table import model_operators, model_rotations
 from .spec import CustomModel
 
 MEASURE_SETTINGS = (
@@ -84,4 +84,22 @@ def _measurement(ck: Checker, name: str, options: dict, dim: int, norb: int,
             if p.required:
                 raise ck.fail(table, p.name, p.expectation(), None)
             out.append((p.name, p.default))
+    if entry.extra.get("rotation"):
+        _check_rotation_provided(ck, table, dict(out), model, custom)
     return tuple(out)
+
+
+def _check_rotation_provided(ck: Checker, table: str, opts: dict, model: str,
+                             custom: CustomModel | None) -> None:
+    """A measurement of rotation eigenvalues needs a model that provides a rotation (of the
+    requested ``order``, when one is given); otherwise every point would be ``no_symmetry``."""
+    have = model_rotations(model, custom)
+    how = (" (declare one under [model.rotation])" if custom else
+           " (built-in models with one: breathing_kagome, kekule_honeycomb, bbh)")
+    if not have:
+        raise JobError(f"{ck.path}: [{table}] needs a model that provides a C3, C4 or C6 "
+                       f"rotation; model {model!r} provides none{how}.")
+    order = opts.get("order", 0)
+    if order and order not in have:
+        raise ck.fail(table, "order", "0 or an order of rotation the model provides ("
+                      + ", ".join(map(str, have)) + ")", order)

@@ -11,6 +11,7 @@ from ..errors import sentence, suggest
 from ..expressions import EvaluationError, Expression, ExpressionError, parse
 from ..physics.models import MODELS
 from ..physics.registry import Param
+from ..physics.rotation import ORDERS, RotationError, site_rotation
 from .checker import Checker, constant
 from .spec import CustomModel
 
@@ -46,7 +47,8 @@ def read_model(ck: Checker, model_t: dict) -> tuple:
 
 
 def _custom_model(ck: Checker, t: dict) -> CustomModel:
-    allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators"]
+    allowed = ["name", "lattice", "orbitals", "positions", "onsite", "hopping", "operators",
+               "rotation"]
     ck.only("model", t, allowed)
     lat = t.get("lattice")
     if isinstance(lat, str):
@@ -115,8 +117,53 @@ def _custom_model(ck: Checker, t: dict) -> CustomModel:
     if not isinstance(ops_t, dict):
         raise ck.fail("model", "operators", "a table of named matrices", ops_t)
     operators = tuple((k, _operator(ck, k, v, n)) for k, v in ops_t.items())
+    rotation = _rotation(ck, t["rotation"], vectors, positions) if "rotation" in t else None
     return CustomModel(tuple(map(tuple, vectors)), tuple(map(tuple, positions)), tuple(onsite),
-                       tuple(hoppings), operators)
+                       tuple(hoppings), operators, rotation)
+
+
+def _rotation(ck: Checker, t: object, vectors: np.ndarray, positions: np.ndarray):
+    """``[model.rotation]``: ``order`` (3, 4 or 6), ``centre`` (reduced, default the cell
+    origin) and an orbital ``matrix`` (default 1); the sites' permutation and cell shifts come
+    from the orbital positions (:func:`sweepcli.physics.rotation.site_rotation`). Whether it is
+    a symmetry of the Hamiltonian is checked at the first grid point (``checks``)."""
+    table = "model.rotation"
+    if not isinstance(t, dict):
+        raise ck.fail("model", "rotation", "a table with order (and optionally centre, matrix)",
+                      t)
+    ck.only(table, t, ["order", "centre", "matrix"])
+    if len(vectors) != 2:
+        raise ck.fail(table, "order", "absent for a 1D lattice (rotations need a 2D model)",
+                      t.get("order"))
+    order = t.get("order")
+    if isinstance(order, bool) or order not in ORDERS:
+        raise ck.fail(table, "order", "one of " + ", ".join(map(str, ORDERS)), order)
+    centre_v = t.get("centre", [0, 0])
+    try:
+        if not (isinstance(centre_v, list) and len(centre_v) == 2):
+            raise ValueError("shape")
+        centre = np.array([constant(x) for x in centre_v], complex)
+        if np.any(centre.imag != 0):
+            raise ValueError("complex")
+        centre = centre.real
+    except (ValueError, ExpressionError, EvaluationError):
+        raise ck.fail(table, "centre", "two reduced coordinates (numbers or constant "
+                      "expressions such as \"1/6\")", centre_v) from None
+    n = len(positions)
+    matrix = ck.matrix(table, "matrix", t["matrix"], n) if "matrix" in t else None
+    try:
+        return site_rotation(vectors, positions, order, centre, matrix=matrix)
+    except RotationError as exc:
+        msg = str(exc)
+        key = ("order" if "lattice has no" in msg else "matrix" if "orbital matrix" in msg
+               else "centre")
+        what = {"order": f"an order the lattice has (its vectors have no {order}-fold "
+                         "rotation)",
+                "matrix": "a unitary matrix that mixes only orbitals at one position",
+                "centre": f"a centre about which the {order}-fold rotation maps every orbital "
+                          "site onto a site of the same kind"}[key]
+        got = order if key == "order" else centre_v if key == "centre" else t["matrix"]
+        raise ck.fail(table, key, what, got, f" {msg[:1].upper()}{msg[1:]}.") from None
 
 
 def _operator(ck: Checker, name: str, value: object, n: int) -> np.ndarray:
@@ -158,6 +205,16 @@ def normalised_model(model: str, model_t: dict) -> dict:
     if model != "custom":
         return {"name": model}
     return {k: v for k, v in model_t.items()}
+
+
+def model_rotations(model: str, custom: CustomModel | None) -> tuple[int, ...]:
+    """Orders of the rotations a model provides: a custom model's ``[model.rotation]``, a
+    built-in's from an instance at its default (or sample) parameters."""
+    if custom is not None:
+        return () if custom.rotation is None else (custom.rotation.order,)
+    entry = MODELS[model]
+    sample = {p.name: (p.default if not p.required else _sample_value(p)) for p in entry.params}
+    return tuple(sorted(entry.func(**sample).rotations))
 
 
 def model_operators(model: str) -> tuple[str, ...]:

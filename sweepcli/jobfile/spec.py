@@ -81,6 +81,9 @@ class CustomModel:
     onsite: tuple[tuple[np.ndarray, Expression], ...]
     hoppings: tuple[tuple[tuple[int, ...], np.ndarray, Expression], ...]
     operators: tuple[tuple[str, np.ndarray], ...]
+    #: ``[model.rotation]``: the model's ``C_n`` rotation (``physics.rotation.Rotation``), or
+    #: None; a symmetry of the model is checked at load (``checks``) and at every point.
+    rotation: Any = None
 
     @property
     def names(self) -> frozenset[str]:
@@ -93,8 +96,9 @@ class CustomModel:
         for matrix, coeff in self.onsite:
             onsite = onsite + coeff(values) * matrix
         terms = [(d, coeff(values) * matrix) for d, matrix, coeff in self.hoppings]
+        rotations = {} if self.rotation is None else {self.rotation.order: self.rotation}
         return assemble(np.array(self.lattice), np.array(self.positions), onsite, terms,
-                        dict(self.operators))
+                        dict(self.operators), rotations)
 
 
 @dataclass(frozen=True)

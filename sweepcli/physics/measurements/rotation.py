@@ -50,7 +50,7 @@ _QUANTITIES = (
     params=(Param("order", kind="choice", default=0, choices=(0, 3, 4, 6),
                   doc="order n of the rotation (3, 4 or 6); 0 takes the highest order the "
                       "model provides", sweepable=False),),
-    quantities=_QUANTITIES, dims=(2,), driven=False, operators=(),
+    quantities=_QUANTITIES, dims=(2,), driven=False, operators=(), rotation=True,
 )
 def corner_charge(point: Point, *, order: int = 0) -> dict[str, Any]:
     """The BLH corner charge and its indices.
