@@ -1,5 +1,6 @@
 """A custom model's `[model.rotation]`: the C_n rotation that `corner_charge` reads, checked at
-load (it must map the lattice onto itself and commute with the model)."""
+load (it must map the lattice onto itself and commute with the model), and the bulk-boundary
+rule that compares the C3 corner charge with a triangle's corner counts."""
 
 import math
 
@@ -10,9 +11,11 @@ from typer.testing import CliRunner
 from sweepcli.cli import app
 from sweepcli.errors import JobError
 from sweepcli.jobfile import load_job
+from sweepcli.physics.measurements.consistency import evaluate, rules_for
 from sweepcli.physics.models import MODELS
 from sweepcli.schema import Reason
 from sweepcli.store import Results
+from sweepcli.store.results import FILL_INT
 
 from ..conftest import ROOT
 
@@ -177,6 +180,50 @@ def test_corner_charge_needs_a_model_with_a_rotation(write_job):
     # bbh provides C4 (at delta = 0), so it is accepted and stores no_symmetry where delta != 0.
     load_job(write_job('[model]\nname = "bbh"\n[sweep]\ndelta = [0.0, 0.1]\n[params]\n'
                        'gamma = 0.3\n[measure]\nfilling = 2\n[measure.corner_charge]\n'))
+
+
+def test_corner_charge_triangle_rule_verdicts():
+    # The rule's logic on given values: 1/3 with one mode per corner, 0 with none; a count that
+    # is missing, another order or the charge 2/3 is not comparable.
+    names = {"corner_charge", "corner_charge_order", "polygon_modes_0_min",
+             "polygon_modes_0_max"}
+    rules = rules_for(names, {"polygon_modes": {"shape": "triangle"}})
+    assert [r.name for r in rules] == ["corner_charge_triangle"]
+    assert rules_for(names, {"polygon_modes": {"shape": "hexagon"}}) == []
+
+    def verdict(q, order, lo, hi):
+        return evaluate(rules, {"corner_charge": q, "corner_charge_order": order,
+                                "polygon_modes_0_min": lo, "polygon_modes_0_max": hi})[
+            "agree_corner_charge_triangle"]
+
+    assert verdict(1 / 3, 3, 1, 1) == 1 and verdict(0.0, 3, 0, 0) == 1
+    assert verdict(1 / 3, 3, 0, 1) == 0 and verdict(0.0, 3, 1, 1) == 0
+    assert verdict(1 / 3, 3, None, None) is None and verdict(math.nan, 3, 1, 1) is None
+    assert verdict(2 / 3, 3, 2, 2) is None and verdict(0.5, 6, 1, 1) is None
+
+
+def test_kagome_triangle_counts_agree_with_the_c3_corner_charge(tmp_path):
+    # Ezawa (2018): one zero mode per corner of a triangle for ta/tb < 1/2, none for ta/tb > 2,
+    # zero energy inside a band between; BLH (2019): corner charge 1/3 and 0.
+    r = run(tmp_path, """
+[model]
+name = "breathing_kagome"
+[sweep]
+ta = [0.2, 0.8, 3.0]
+[measure]
+filling = 1
+[measure.corner_charge]
+[measure.polygon_modes]
+shape = "triangle"
+size = 12
+max_size = 24
+energy = 0.0
+""", "kagome")
+    assert np.allclose(r.data["corner_charge"], [1 / 3, 1 / 3, 0.0])
+    assert list(r.data["polygon_modes_0_min"][[0, 2]]) == [1, 0]
+    assert list(r.data["polygon_modes_0_max"][[0, 2]]) == [1, 0]
+    assert r.data["polygon_modes_0_reason"][1] == Reason.GAP_CLOSED
+    assert list(r.data["agree_corner_charge_triangle"]) == [1, FILL_INT, 1]
 
 
 def test_readme_rotation_block_declares_the_kagome_c3(write_job):

@@ -25,6 +25,15 @@ published literature:
   each corner of a flake, one with q_xy = 0 none (Benalcazar, Bernevig and Hughes, Science 357,
   61 (2017), for their chiral-symmetric model, where the corner charge +-e/2 is carried by one
   zero mode per corner; the filled bands, ``band_group = "lower"``, in static jobs only).
+* ``corner_charge_triangle``: a C3 crystalline insulator with corner charge 1/3 holds one
+  pinned zero mode at each corner of a triangular flake, one with corner charge 0 none (Ezawa,
+  PRL 120, 026801 (2018), for the breathing kagome lattice, whose corner charge 1/3 (Benalcazar,
+  Li and Hughes, PRB 99, 245151 (2019)) sits in that mode; static jobs with ``polygon_modes``
+  on ``shape = "triangle"``). Not comparable (missing) where the count is missing, the
+  rotation used is not C3, or the corner charge is neither 0 nor 1/3 (2/3 names no count).
+
+A rule's ``agree`` returns True, False, or None where the two sides cannot be compared although
+both are present; :func:`evaluate` stores None as missing.
 
 Chirality sign ``s`` (:func:`edge_sign`): every 2D invariant here (``chern``,
 ``floquet_chern_*``, ``w_0``, ``w_pi``) is computed in reduced momenta ``k_i = k . a_i``, and the
@@ -51,7 +60,7 @@ CORNERS = ("00", "10", "01", "11")
 class Rule:
     name: str
     reads: tuple[str, ...]
-    agree: Callable[[Mapping[str, int]], bool]
+    agree: Callable[[Mapping[str, Any]], bool | None]
     description: str
 
     @property
@@ -122,6 +131,26 @@ def _quadrupole_corners() -> Rule:
                 "2 q_xy zero modes at each corner of a flake (one for q_xy = 1/2)")
 
 
+def _corner_charge_triangle() -> Rule:
+    reads = ("corner_charge", "corner_charge_order", "polygon_modes_0_min",
+             "polygon_modes_0_max")
+
+    def agree(v: Mapping[str, Any]) -> bool | None:
+        q = v["corner_charge"]
+        per_corner = (v["polygon_modes_0_min"], v["polygon_modes_0_max"])
+        if v["corner_charge_order"] != 3:
+            return None
+        if abs(q - 1 / 3) < 1e-9:
+            return per_corner == (1, 1)
+        if min(abs(q), abs(q - 1)) < 1e-9:
+            return per_corner == (0, 0)
+        return None
+
+    return Rule("corner_charge_triangle", reads, agree,
+                "one pinned zero mode at every corner of a triangular flake for a C3 corner "
+                "charge of 1/3, none for 0")
+
+
 def rules_for(names: set[str], options: Mapping[str, Mapping[str, Any]] | None = None
               ) -> list[Rule]:
     """The rules whose variables a job stores.
@@ -138,6 +167,9 @@ def rules_for(names: set[str], options: Mapping[str, Mapping[str, Any]] | None =
     group = dict((options or {}).get("quadrupole", {})).get("band_group", "lower")
     if "corner_modes_pi_00" not in names and group == "lower":
         rules.append(_quadrupole_corners())
+    shape = dict((options or {}).get("polygon_modes", {})).get("shape")
+    if "polygon_modes_pi_min" not in names and shape == "triangle":
+        rules.append(_corner_charge_triangle())
     return [r for r in rules if set(r.reads) <= names]
 
 
@@ -151,5 +183,6 @@ def evaluate(rules: list[Rule], values: Mapping[str, object]) -> dict[str, int |
             # Integers as int; a float quantity (q_xy) as it is.
             read = {n: values[n] if isinstance(values[n], float) else int(values[n])
                     for n in r.reads}
-            out[r.quantity.name] = int(bool(r.agree(read)))
+            verdict = r.agree(read)
+            out[r.quantity.name] = None if verdict is None else int(bool(verdict))
     return out
