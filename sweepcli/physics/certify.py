@@ -152,7 +152,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
                     n: int, m: int, lip2: float | tuple[float, ...], *, flux_tol: float,
                     budget: int,
                     max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
-                    sep_max: float | None = None) -> tuple[int | None, float, int, int]:
+                    sep_max: float | None = None,
+                    bound: Callable[[np.ndarray, np.ndarray, float], np.ndarray] | None = None
+                    ) -> tuple[int | None, float, int, int]:
     """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
 
     Parameters
@@ -178,6 +180,10 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         known: no cell of side ``h`` with ``sylvester h lip2 h / sqrt 2 > lambda_max sep_max``
         can pass the bound whatever its corners hold, so the base mesh starts at least that
         fine (at most ``max_n``).
+    bound : ``bound(sep, slope, h)`` of the cells' corner data (``(..., 4)`` in the last axis,
+        as :func:`cell_lambda` receives them) -> their ``lambda``, in place of
+        :func:`cell_lambda` with ``lip2`` and ``sylvester`` (``lip2`` then only sets the start
+        mesh with ``sep_max``).
 
     Returns
     -------
@@ -188,6 +194,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
     from .lattice import kmesh
 
     lam_max = lambda_max(m)
+    if bound is None:
+        def bound(sep: np.ndarray, slope: np.ndarray, h: float) -> np.ndarray:
+            return cell_lambda(sep, slope, h, lip2, sylvester)
     max_n = n if max_n is None else max_n
     lip2_min = float(np.min(lip2))
     if sep_max is not None and lip2_min > 0:
@@ -205,11 +214,11 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         f = fhs_plaquette_phases(v)
         h = 2 * np.pi / n
         csep, cslope = _corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0]
-        lam = cell_lambda(csep, cslope, h, lip2, sylvester)
+        lam = bound(csep, cslope, h)
         hot = (lam > lam_max) | (np.abs(f) >= flux_tol)
         if hot.mean() <= HOT_SHARE or n >= max_n:
             break
-        j = _base_multiple(csep, cslope, h, lip2, sylvester, lam_max, max_n // n)
+        j = _base_multiple(csep, cslope, h, bound, lam_max, max_n // n)
         if j >= 2:
             # The finer mesh holds this one: only its new points are evaluated.
             k = kmesh(n * j, 2)
@@ -256,7 +265,7 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         gv, gsep, gslope = grids
         sub, edges = subdivided_plaquette_phases(gv)
         h /= 2
-        lam = cell_lambda(_corners(gsep), _corners(gslope), h, lip2, sylvester)
+        lam = bound(_corners(gsep), _corners(gslope), h)
         hot = (lam > lam_max) | (np.abs(sub) >= flux_tol)
         total += float(sub[~hot].sum() + edges.sum())
         max_flux = max(max_flux, float(np.max(np.abs(sub[~hot]), initial=0.0)))
@@ -269,15 +278,15 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
 
 
 def _base_multiple(csep: np.ndarray, cslope: np.ndarray, h: float,
-                   lip2: float | tuple[float, ...], sylvester: float, lam_max: float,
-                   most: int) -> int:
+                   bound: Callable[[np.ndarray, np.ndarray, float], np.ndarray],
+                   lam_max: float, most: int) -> int:
     """The smallest ``j`` in ``2..most`` for which the cells of side ``h / j`` would pass the
     bound on more than ``1 - HOT_SHARE`` of the area if they held the corner data of the cells
     of side ``h`` that contain them (a prediction that only chooses the next base mesh: that
     mesh's cells are proven from their own corners); ``most`` when none does, 1 when
     ``most < 2``."""
     for j in range(2, most + 1):
-        if np.mean(cell_lambda(csep, cslope, h / j, lip2, sylvester) <= lam_max) \
+        if np.mean(bound(csep, cslope, h / j) <= lam_max) \
                 >= 1 - HOT_SHARE:
             return j
     return most
