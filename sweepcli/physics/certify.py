@@ -152,7 +152,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
                     n: int, m: int, lip2: float | tuple[float, ...], *, flux_tol: float,
                     budget: int,
                     max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
-                    sep_max: float | None = None) -> tuple[int | None, float, int, int]:
+                    sep_max: float | None = None,
+                    bound: Callable[[np.ndarray, np.ndarray, float], np.ndarray] | None = None
+                    ) -> tuple[int | None, float, int, int]:
     """FHS Chern number on an ``n x n`` mesh refined until every cell's bound holds.
 
     Parameters
@@ -168,12 +170,20 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
     flux_tol : a cell whose plaquette phase is at or above this is subdivided too.
     budget : most points evaluated in all (base meshes included).
     max_n, growth : while more than :data:`HOT_SHARE` of the base plaquettes fail, the base
-        mesh grows by ``growth`` up to ``max_n`` (default ``n``).
+        mesh grows up to ``max_n`` (default ``n``): to the smallest multiple ``j n`` on which
+        the corner data of the present mesh predict that at least half the cells pass
+        (:func:`_base_multiple`; its points include the present ones, which are not
+        evaluated again), or the largest multiple within ``max_n``; by ``growth`` when no
+        multiple fits.
     sylvester : constant of :func:`cell_lambda` (``pi / 2`` for the eigenspaces of a unitary).
     sep_max : an upper bound on the separation at every k (2 for the strip of a unitary), if
         known: no cell of side ``h`` with ``sylvester h lip2 h / sqrt 2 > lambda_max sep_max``
         can pass the bound whatever its corners hold, so the base mesh starts at least that
         fine (at most ``max_n``).
+    bound : ``bound(sep, slope, h)`` of the cells' corner data (``(..., 4)`` in the last axis,
+        as :func:`cell_lambda` receives them) -> their ``lambda``, in place of
+        :func:`cell_lambda` with ``lip2`` and ``sylvester`` (``lip2`` then only sets the start
+        mesh with ``sep_max``).
 
     Returns
     -------
@@ -184,6 +194,9 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
     from .lattice import kmesh
 
     lam_max = lambda_max(m)
+    if bound is None:
+        def bound(sep: np.ndarray, slope: np.ndarray, h: float) -> np.ndarray:
+            return cell_lambda(sep, slope, h, lip2, sylvester)
     max_n = n if max_n is None else max_n
     lip2_min = float(np.min(lip2))
     if sep_max is not None and lip2_min > 0:
@@ -195,17 +208,36 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         x = np.concatenate([x, x[:1]], axis=0)
         return np.concatenate([x, x[:, :1]], axis=1)
 
+    v, sep, slope = data(kmesh(n, 2))
+    used += n * n
     while True:
-        v, sep, slope = data(kmesh(n, 2))
-        used += n * n
         f = fhs_plaquette_phases(v)
         h = 2 * np.pi / n
-        lam = cell_lambda(_corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0], h, lip2,
-                          sylvester)
+        csep, cslope = _corners(wrap(sep)[None])[0], _corners(wrap(slope)[None])[0]
+        lam = bound(csep, cslope, h)
         hot = (lam > lam_max) | (np.abs(f) >= flux_tol)
         if hot.mean() <= HOT_SHARE or n >= max_n:
             break
-        n = min(max(int(math.ceil(growth * n)), n + 1), max_n)
+        j = _base_multiple(csep, cslope, h, bound, lam_max, max_n // n)
+        if j >= 2:
+            # The finer mesh holds this one: only its new points are evaluated.
+            k = kmesh(n * j, 2)
+            old = np.zeros((n * j, n * j), bool)
+            old[::j, ::j] = True
+            fresh = data(k[~old])
+            used += int(np.sum(~old))
+            full = []
+            for x, y in zip((v, sep, slope), fresh):
+                z = np.empty((n * j, n * j) + x.shape[2:], np.result_type(x, y))
+                z[::j, ::j] = x
+                z[~old] = y
+                full.append(z)
+            v, sep, slope = full
+            n *= j
+        else:
+            n = min(max(int(math.ceil(growth * n)), n + 1), max_n)
+            v, sep, slope = data(kmesh(n, 2))
+            used += n * n
     total = float(f[~hot].sum())
     max_flux = float(np.max(np.abs(f[~hot]), initial=0.0))
     # Corner data of the hot cells: (P, 2, 2, ...).
@@ -233,7 +265,7 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         gv, gsep, gslope = grids
         sub, edges = subdivided_plaquette_phases(gv)
         h /= 2
-        lam = cell_lambda(_corners(gsep), _corners(gslope), h, lip2, sylvester)
+        lam = bound(_corners(gsep), _corners(gslope), h)
         hot = (lam > lam_max) | (np.abs(sub) >= flux_tol)
         total += float(sub[~hot].sum() + edges.sum())
         max_flux = max(max_flux, float(np.max(np.abs(sub[~hot]), initial=0.0)))
@@ -243,6 +275,21 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
                   for g in grids]
         origin = origin[p] + h * np.stack([a, b], axis=-1)
     return int(round(-total / (2 * np.pi))), max_flux, used, n
+
+
+def _base_multiple(csep: np.ndarray, cslope: np.ndarray, h: float,
+                   bound: Callable[[np.ndarray, np.ndarray, float], np.ndarray],
+                   lam_max: float, most: int) -> int:
+    """The smallest ``j`` in ``2..most`` for which the cells of side ``h / j`` would pass the
+    bound on more than ``1 - HOT_SHARE`` of the area if they held the corner data of the cells
+    of side ``h`` that contain them (a prediction that only chooses the next base mesh: that
+    mesh's cells are proven from their own corners); ``most`` when none does, 1 when
+    ``most < 2``."""
+    for j in range(2, most + 1):
+        if np.mean(bound(csep, cslope, h / j) <= lam_max) \
+                >= 1 - HOT_SHARE:
+            return j
+    return most
 
 
 def interval_theta(sigma: np.ndarray, slope: np.ndarray, h: np.ndarray, lip2: float,

@@ -106,19 +106,27 @@ def drive_jet(factors: Sequence[tuple[float, TightBinding]]
         u = np.broadcast_to(np.eye(n, dtype=complex), shape + (n, n)).copy()
         du = np.zeros(shape + (2, n, n), complex)
         steps = np.zeros(shape)
-        # Step drives repeat a few TightBinding objects: their Bloch matrices are shared.
-        seen: dict[int, tuple[TightBinding, np.ndarray, np.ndarray | None]] = {}
+        # Step drives repeat a few TightBinding objects, and the slices of a smooth drive whose
+        # modulated parameters enter the onsite terms only share their hoppings: the hopping
+        # part of H(k), dH/dk and its norm are computed once per distinct set of hoppings
+        # (H_f = onsite_f + the shared part).
+        seen: dict[object, tuple[np.ndarray, np.ndarray | None, object, float]] = {}
         for d, tb in factors:
-            hit = seen.get(id(tb))
-            if hit is None or hit[0] is not tb:
+            key = tuple((r, t.tobytes()) for r, t in tb.hoppings.items())
+            hit = seen.get(key)
+            if hit is None:
                 dh = np.stack([tb.bloch_derivative(k, i) for i in range(2)], axis=-3) \
                     if tb.hoppings else None
-                hit = (tb, tb.bloch(k), dh)
-                seen[id(tb)] = hit
-            _, h, dh = hit
+                hop = tb.bloch(k) - tb.onsite
+                norm = np.sqrt(np.sum(hermitian_norm(dh) ** 2, axis=-1)) \
+                    if dh is not None else 0.0
+                hit = (hop, dh, _split2(dh) if (n == 2 and dh is not None) else dh, norm)
+                seen[key] = hit
+            hop, dh, dpre, norm = hit
+            h = hop + tb.onsite
             if dh is not None:
-                steps = steps + d * np.sqrt(np.sum(hermitian_norm(dh) ** 2, axis=-1))
-            uf, duf = (_factor_jet2 if n == 2 else _factor_jet)(h, dh, d)
+                steps = steps + d * norm
+            uf, duf = _factor_jet2(h, dpre, d) if n == 2 else _factor_jet(h, dh, d)
             if duf is None:
                 du = mm(uf[..., None, :, :], du)
             else:
@@ -126,6 +134,12 @@ def drive_jet(factors: Sequence[tuple[float, TightBinding]]
             u = mm(uf, u)
         return u, du, steps
     return jet
+
+
+def _split2(dh: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``(dh0, da00, da01)`` of 2x2 derivatives ``dh = dh0 + dA`` (:func:`_factor_jet2`)."""
+    dh0 = (dh[..., 0, 0].real + dh[..., 1, 1].real) / 2
+    return dh0, dh[..., 0, 0].real - dh0, dh[..., 0, 1]
 
 
 def _matmul2(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -155,14 +169,15 @@ def _factor_jet(h: np.ndarray, dh: np.ndarray | None, d: float
     return uf, v[..., None, :, :] @ (dd * phi[..., None, :, :]) @ vh[..., None, :, :]
 
 
-def _factor_jet2(h: np.ndarray, dh: np.ndarray | None, d: float
+def _factor_jet2(h: np.ndarray,
+                 dh: np.ndarray | tuple[np.ndarray, np.ndarray, np.ndarray] | None, d: float
                  ) -> tuple[np.ndarray, np.ndarray | None]:
     """:func:`_factor_jet` for 2x2 ``h`` in closed form: with ``h = h0 + A``, ``A^2 = r^2``,
     ``exp(-i d h) = e^{-i h0 d} (cos(r d) - i s A)``, ``s = sin(r d) / r``, and along
     ``dh = dh0 + dA`` (``r dr = tr(A dA) / 2 =: q``):
     ``d exp = -i d dh0 exp + e^{-i h0 d} (-d s q - i s' q A - i s dA)`` with
     ``s' = d (cos(r d) - sin(r d) / (r d)) / r^2`` (its series ``-d^3 (1/3 - x^2/30)``,
-    ``x = r d``, near ``r = 0``)."""
+    ``x = r d``, near ``r = 0``). ``dh`` may be given split by :func:`_split2`."""
     h0 = (h[..., 0, 0].real + h[..., 1, 1].real) / 2
     a00 = h[..., 0, 0].real - h0
     a01 = h[..., 0, 1]
@@ -182,16 +197,14 @@ def _factor_jet2(h: np.ndarray, dh: np.ndarray | None, d: float
     xs = np.where(small, 1.0, x)
     sp = np.where(small, -d ** 3 * (1 / 3 - x * x / 30),
                   d ** 3 * (np.cos(xs) - np.sin(xs) / xs) / (xs * xs))
-    dh0 = (dh[..., 0, 0].real + dh[..., 1, 1].real) / 2
-    da00 = dh[..., 0, 0].real - dh0
-    da01 = dh[..., 0, 1]
+    dh0, da00, da01 = _split2(dh) if isinstance(dh, np.ndarray) else dh
     q = a00[..., None] * da00 + np.real(np.conj(a01)[..., None] * da01)
     c1, s1, ph1, a00_, a01_ = (z[..., None] for z in (c, s, ph, a00, a01))
     lead = -1j * d * dh0
     scal = ph1 * (-d * s1 * q)
     sa = ph1 * (-1j) * sp[..., None] * q
     ss = ph1 * (-1j) * s1
-    duf = np.empty(dh.shape, complex)
+    duf = np.empty(da01.shape + (2, 2), complex)
     ufe = uf[..., None, :, :]
     duf[..., 0, 0] = lead * ufe[..., 0, 0] + scal + sa * a00_ + ss * da00
     duf[..., 1, 1] = lead * ufe[..., 1, 1] + scal - sa * a00_ - ss * da00

@@ -14,8 +14,9 @@ Chern numbers (static and Floquet) and the chiral windings are proven on adaptiv
 integer is subdivided, within a budget of points set by ``max_kmesh``; where the budget runs
 out the value is missing with :attr:`Reason.NOT_CONVERGED`. The walk of uniform meshes
 (:func:`mesh_sequence`, :func:`walk_meshes`: accept when two successive meshes are below the
-tolerance and agree) is the policy of :mod:`sweepcli.physics.spin_chern`, which has no such
-bound. A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
+tolerance and agree) proves nothing and is no longer the policy of any invariant (the spin
+Chern number of :mod:`sweepcli.physics.spin_chern` is proven too, with the bound of its
+projected-spin sectors). A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
 """
 
 from __future__ import annotations

@@ -2,10 +2,25 @@
 
 Prodan, PRB 80, 125327 (2009): the occupied projector ``P``, the spin ``S``; the eigenvectors
 of ``P S P`` inside the occupied space split by the sign of their eigenvalue into "up" and
-"down" bundles, ``C_s = (C_up - C_down)/2``. Each sector's Chern number is the subdivided
-Fukui-Hatsugai-Suzuki sum of :mod:`sweepcli.physics.chern` (same sign), under the same
-convergence policy as :func:`~sweepcli.physics.chern.chern_number`: both sector numbers must
-pass the flux bound and agree between two successive meshes.
+"down" bundles, ``C_s = (C_up - C_down)/2``. Each sector's Chern number is the FHS sum on the
+proven adaptive mesh of :func:`sweepcli.physics.certify.certified_chern` (same sign as
+:mod:`sweepcli.physics.chern`), with the cell bound :func:`sector_lambda`.
+
+Proven (the argument of :mod:`sweepcli.physics.certify` applied to ``X = P S P``, whose
+spectral projector on ``(0, inf)`` is the up sector and on ``(-inf, 0)`` the down sector, the
+unoccupied space being its kernel): in a cell of side ``h`` the occupied gap is at least
+``D_H = min_c (delta_c - 2 eps_c)`` and ``||dH/dk_u|| <= G_H = max_c g_c + L2 r``
+(``eps_c = g_c r + L2 r^2 / 2``, ``r = h / sqrt 2``, ``g_c`` the slope of ``H`` at corner
+``c``, ``L2`` the second-derivative bound of the hoppings), so ``||dP/dk_u|| <= G_H / D_H``
+and ``||dX/dk_u|| <= G_X = 2 ||S|| G_H / D_H`` over the whole cell; the sector's separation
+(its smallest ``|eig|`` of ``V^+ S V`` at a corner: the distance of the sector's eigenvalues of
+``X`` from 0 and from the other sector) is then at least ``D_X = min_c sep_c - 2 G_X r``, and
+``lambda = h G_X / D_X`` bounds the turn of the sector projector over the cell exactly as the
+occupied projector's in :func:`~sweepcli.physics.certify.cell_lambda`. Assumed: the eigen-
+decompositions at the mesh points are exact to rounding. Where the bound cannot be met within
+the budget the value is missing (``NOT_CONVERGED``); a projected-spin spectrum that comes
+within ``spin_gap_tol`` of 0 at a mesh point, or whose sign count changes, gives
+``SECTOR_GAP_CLOSED``.
 """
 
 from __future__ import annotations
@@ -16,7 +31,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from .chern import fhs_chern_subdivided
+from .certify import certified_chern, hermitian_norm, hopping_bounds
+from .chern import START_CAP, WORK
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
@@ -24,9 +40,8 @@ from .invariant_base import (
     GROWTH,
     gap_rule_kmesh,
     occupied_gap,
-    walk_meshes,
 )
-from .lattice import TightBinding, kmesh
+from .lattice import TightBinding
 
 
 @dataclass(frozen=True)
@@ -79,22 +94,42 @@ def prodan_sectors(vectors: np.ndarray, spin: np.ndarray
 
 
 class _SectorGapClosed(Exception):
-    """Raised inside a mesh walk when the projected-spin spectrum is not gapped at zero."""
+    """Raised inside the mesh refinement when the projected-spin spectrum is not gapped at 0."""
+
+
+def sector_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
+                  spin_norm: float) -> np.ndarray:
+    """Cell bound ``lambda`` of a projected-spin sector (module docstring).
+
+    ``sep``: ``(..., 2, 4)`` the sector's separation and the occupied gap at the corners;
+    ``slope``: ``(..., 4)`` the bound on ``||dH/dk_u||`` there; ``lip2``: the bound on
+    ``||d^2 H / dk_u dk_w||``; ``spin_norm``: ``||S||``. ``inf`` where a separation bound is not
+    positive.
+    """
+    r = h / math.sqrt(2)
+    d_h = np.min(sep[..., 1, :] - 2 * (slope * r + 0.5 * lip2 * r * r), axis=-1)
+    g_h = np.max(slope, axis=-1) + lip2 * r
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g_x = np.where(d_h > 0, 2 * spin_norm * g_h / np.where(d_h > 0, d_h, 1.0), np.inf)
+        d_x = np.min(sep[..., 0, :], axis=-1) - 2 * g_x * r
+        ok = (d_h > 0) & (d_x > 0)
+        return np.where(ok, h * g_x / np.where(ok, d_x, 1.0), np.inf)
 
 
 def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: float | None = None,
                       gap_tol: float = 1e-6, spin_gap_tol: float = 1e-3,
                       kmesh_n: int = CHERN_KMESH, max_kmesh: int = CHERN_MAX_KMESH,
                       flux_tol: float = FLUX_TOL) -> SpinChernResult:
-    """Spin Chern number of the occupied bands by Prodan's projected-spin method.
+    """Spin Chern number of the occupied bands by Prodan's projected-spin method, each sector's
+    Chern number proven on an adaptive mesh (module docstring).
 
     Parameters
     ----------
     tb : 2D model.
     nocc : number of occupied bands.
     spin : (n, n) Hermitian cell operator (e.g. ``tau_0 sigma_z``); need not commute with H.
-    gap, gap_tol, kmesh_n, max_kmesh, flux_tol : as in :func:`chern_number`; both sector
-        Chern numbers must pass the flux bound and agree between two successive meshes.
+    gap, gap_tol, kmesh_n, max_kmesh, flux_tol : as in :func:`chern_number` (the base mesh
+        from the gap rule, the work limit ``WORK * max_kmesh**2`` points per sector).
     spin_gap_tol : the spin gap ``min |eig(P S P)|`` (dimensionless) below which the two
         sectors are not separated: :attr:`Reason.SECTOR_GAP_CLOSED`. A change of the number of
         positive eigenvalues across the mesh is treated the same way.
@@ -102,6 +137,8 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     Returns
     -------
     SpinChernResult
+        ``kmesh`` the larger base mesh of the two sectors, ``spin_gap`` the smallest
+        ``|eig(P S P)|`` at the points evaluated.
     """
     if tb.dim != 2:
         raise ValueError("the spin Chern number needs a 2D model")
@@ -110,39 +147,57 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     if not gap >= gap_tol:
         return SpinChernResult(math.nan, None, None, None, math.nan, None, math.nan,
                                Reason.GAP_CLOSED)
-    spin_gap = [math.nan]
+    disp, mats = tb._stacked()
+    lip2 = hopping_bounds(tb.hoppings)[1]
+    spin_norm = float(np.linalg.norm(spin, 2))
+    spin_gap = [math.inf]
     nup_first: list[int] = []
 
-    def sectors(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        v = np.linalg.eigh(tb.bloch(k))[1][..., :nocc]
-        up, down, eigs = prodan_sectors(v, spin)
-        nup = np.sum(eigs > 0, axis=-1)
-        nup_first[:] = nup_first or [int(nup.flat[0])]
-        if np.min(np.abs(eigs)) < spin_gap_tol or np.any(nup != nup_first[0]):
-            spin_gap[0] = float(np.min(np.abs(eigs)))
-            raise _SectorGapClosed
-        return up, down, eigs
+    def sector(which: int):
+        def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+            phase = np.exp(1j * (np.asarray(k, float) @ disp.T))
+            t = np.tensordot(phase, mats, axes=([-1], [0]))
+            e, v = np.linalg.eigh(tb.onsite + t + np.conj(np.swapaxes(t, -1, -2)))
+            slope2 = 0.0
+            for i in range(2):
+                d = np.tensordot(1j * disp[:, i] * phase, mats, axes=([-1], [0]))
+                slope2 = slope2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
+            up, down, eigs = prodan_sectors(v[..., :nocc], spin)
+            nup = np.sum(eigs > 0, axis=-1)
+            nup_first[:] = nup_first or [int(nup.flat[0])]
+            spin_gap[0] = min(spin_gap[0], float(np.min(np.abs(eigs))))
+            if spin_gap[0] < spin_gap_tol or np.any(nup != nup_first[0]):
+                raise _SectorGapClosed
+            ndown = nocc - nup_first[0]
+            w = np.abs(eigs[..., ndown:] if which == 0 else eigs[..., :ndown])
+            sep = np.stack([np.min(w, axis=-1, initial=np.inf), e[..., nocc] - e[..., nocc - 1]],
+                           axis=-1)
+            return (up if which == 0 else down), sep, np.sqrt(slope2)
+        return data
 
-    def measure(n: int) -> tuple[tuple[int, ...], float]:
-        *base, eigs = sectors(kmesh(n, 2))
-        spin_gap[0] = float(np.min(np.abs(eigs)))
-        values, flux = [], 0.0
-        for i, v in enumerate(base):
-            c, f = (fhs_chern_subdivided(lambda k, i=i: sectors(k)[i], n, flux_tol, vectors=v)
-                    if v.shape[-1] else (0, 0.0))
-            values.append(c)
-            flux = max(flux, f)
-        return tuple(values), flux
-
+    n0 = min(max(kmesh_n, min(gap_rule_kmesh(gap), START_CAP)), max_kmesh)
+    values, flux, n_used = [], 0.0, 0
     try:
-        value, n, step, reason = walk_meshes(measure, max(kmesh_n, gap_rule_kmesh(gap)), max_kmesh,
-                                           GROWTH, flux_tol)
+        for which in (0, 1):
+            data = sector(which)
+            m = data(np.zeros((1, 2)))[0].shape[-1]
+            if m == 0:
+                values.append(0)
+                continue
+            c, f, _, n = certified_chern(
+                data, n0, m, 0.0, flux_tol=flux_tol, budget=WORK * max_kmesh * max_kmesh,
+                max_n=max_kmesh, growth=GROWTH,
+                bound=lambda sep, slope, h: sector_lambda(sep, slope, h, lip2, spin_norm))
+            n_used = max(n_used, n)
+            flux = max(flux, f)
+            if c is None:
+                return SpinChernResult(math.nan, None, None, None, spin_gap[0], n_used, flux,
+                                       Reason.NOT_CONVERGED)
+            values.append(c)
     except _SectorGapClosed:
         return SpinChernResult(math.nan, None, None, None, spin_gap[0], None, math.nan,
                                Reason.SECTOR_GAP_CLOSED)
-    if value is None:
-        return SpinChernResult(math.nan, None, None, None, spin_gap[0], n, step, reason)
-    c_up, c_dn = value
+    c_up, c_dn = values
     cs = (c_up - c_dn) / 2
     z2 = int(cs) % 2 if cs == int(cs) else None
-    return SpinChernResult(cs, c_up, c_dn, z2, spin_gap[0], n, step, Reason.OK)
+    return SpinChernResult(cs, c_up, c_dn, z2, spin_gap[0], n_used, flux, Reason.OK)

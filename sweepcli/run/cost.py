@@ -15,8 +15,8 @@ meshes themselves):
 
 * ``gap``, ``quasienergy_gaps``: one mesh of ``kmesh^d`` (polishing is in ``a``);
 * ``chern``, ``spin_chern``: two meshes, ``N`` and ``1.5 N`` with ``N`` the larger of
-  ``kmesh`` and the gap rule for the probed gap (the proven mesh of ``chern`` often stops on
-  the first; the walk of ``spin_chern`` accepts on the second when the first is fine enough);
+  ``kmesh`` and the gap rule for the probed gap (the proven meshes of ``chern`` and
+  ``spin_chern`` often stop on the first; where they refine, this underestimates);
 * ``floquet_chern``: its proven adaptive mesh (:func:`~sweepcli.physics.certify.certified_chern`)
   run as configured at the probe, since its work depends on the local gaps and slopes;
 * ``winding``, ``chiral_windings``, ``line_winding`` (1D or a line): ``kmesh`` and ``2 kmesh``;

@@ -431,6 +431,22 @@ def test_bhz_spin_chern_with_particle_hole_asymmetry():
     assert spin_chern_number(tb, 2, tb.operators["spin"]).spin_chern == -1
 
 
+def test_bhz_spin_chern_near_the_transition_proven_or_missing():
+    # Bernevig, Hughes and Zhang 2006: for 0 < M/B < 4 the spin Chern number is +1 however close
+    # M is to 0 (d3 = M - 2B(2 - cos k1 - cos k2) is inverted at Gamma alone: the band-inversion
+    # count at the time-reversal-invariant momenta, as for M = 1 above). With M = 0.02 the
+    # gap is ~0.04 and the curvature sits in a pocket of radius ~M/A around Gamma: a work limit
+    # of 2 * 24^2 points cannot prove either sector, so the value must be missing, never a guess;
+    # the default limit proves it.
+    d3 = [0.02 - 2 * (2 - np.cos(a) - np.cos(b)) for a in (0, np.pi) for b in (0, np.pi)]
+    assert [x > 0 for x in d3] == [True, False, False, False]
+    tb = model("bhz", M=0.02)
+    r = spin_chern_number(tb, 2, tb.operators["spin"], max_kmesh=24)
+    assert r.reason == Reason.NOT_CONVERGED and np.isnan(r.spin_chern) and r.c_up is None
+    r = spin_chern_number(tb, 2, tb.operators["spin"])
+    assert r.reason == Reason.OK and r.spin_chern == 1 and (r.c_up, r.c_down) == (1, -1)
+
+
 def test_projected_spin_gap_closing():
     # The orbital pseudospin tau_z has <tau_z> = -d3/|d| in the lower band of each spin block,
     # which vanishes on the band-inversion ring for 0 < M < 4B: no sector gap. For M < 0
