@@ -40,8 +40,10 @@ def run(ctx: typer.Context,
             help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or "
                  "PBS).")] = None,
         chunk_size: Annotated[int | None, typer.Option(
-            "--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each",
-            help="Grid points per task.")] = None,
+            "--chunk-size", min=1,
+            show_default="about 8 tasks per worker, 1 point first, then sized by the measured "
+                         "cost per point",
+            help="Grid points per task (fixed).")] = None,
         checkpoint_every: Annotated[float, typer.Option(
             "--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option(
