@@ -43,7 +43,7 @@ def run(ctx: typer.Context,
             "--chunk-size", min=1,
             show_default="about 8 tasks per worker, 1 point first, then sized by the measured "
                          "cost per point",
-            help="Grid points per task (fixed).")] = None,
+            help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option(
             "--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
         progress: Annotated[bool, typer.Option(
