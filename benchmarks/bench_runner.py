@@ -3,6 +3,7 @@ is overhead, and peak memory against the number of grid points.
 
     python benchmarks/bench_runner.py [--grid 50x20] [--workers 1,2] [--repeat 2]
                                       [--job jobs/driven-corners.toml] [--memory]
+                                      [--startup-job JOB] [--no-startup] [--no-scaling]
 
 Prints
 * for a static Qi-Wu-Zhang sweep with ``[predict]`` (``--grid MxT`` points, 1000 by default; the
@@ -15,6 +16,14 @@ Prints
   workers cost; on a machine with fewer free cores than N workers it also holds the waiting),
   and of CPU time ``1 - bare CPU / (workers' + parent's CPU)``, which a loaded machine leaves
   alone; the first run on the most workers, which starts the pool, is shown apart;
+* (unless ``--no-startup``) one ``sweepcli run`` as the command line does it, in a fresh interpreter
+  each, before (the pool started by the first task, fixed strided chunks) and after (the pool
+  started in the background while the parent imports and reads the job, chunks of 1, 2, 4, ...
+  points first, then sized by the measured cost per point): the time from the start of the
+  process to the first stored result and to the end, the tail idle share (worker time idle
+  after each worker's last result, ``sum(end - t_last) / (N x sweep wall)``), the workers' and
+  the parent's CPU time (the run of least total of ``--repeat``; before and after alternate);
+  of a 12 x 8 cut of ``jobs/driven-chain.toml`` (``--startup-job`` for another job);
 * with ``--memory``, peak RSS of ``sweepcli run`` for 1k and 10k points beside the size of the
   result arrays, so that growth beyond the arrays themselves shows.
 
@@ -136,6 +145,90 @@ def scaling(job, label: str, counts: list[int], repeat: int) -> None:
               f"(best warm {min(runs[max(counts)])[0]:.2f} s)")
 
 
+DRIVEN_CHAIN = Path(__file__).resolve().parent.parent / "jobs" / "driven-chain.toml"
+
+# One run in a fresh interpreter, timed from its first line: argv = job, output, workers, mode.
+STARTUP = """
+import time
+t0 = time.perf_counter()
+import json, os, sys
+from pathlib import Path
+from sweepcli.run.executors import JoblibExecutor
+job_file, out, workers, mode = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4]
+pool = JoblibExecutor(workers)
+if mode == "after":
+    pool.warm()  # as `sweepcli run -w N` does, before the sweep code is imported
+from sweepcli.jobfile import load_job
+from sweepcli.run.runner import default_chunk_size
+from sweepcli.run.session import RunSession
+
+class Timed:
+    workers = workers
+    def __init__(self):
+        self.arrivals, self.start = [], None
+    def close(self):
+        pool.close()
+    def imap(self, func, tasks):
+        self.start = time.perf_counter()
+        for result in pool.imap(func, tasks):
+            if result[0] == "points":
+                self.arrivals.append(time.perf_counter())
+            yield result
+
+timed = Timed()
+size = None
+if mode == "before":
+    size = default_chunk_size(load_job(job_file).size, workers)
+RunSession(Path(job_file), output=Path(out), workers=workers, force=True, progress=False,
+           heartbeat=0, chunk_size=size, executor=timed, argv=["bench"]).run()
+end = time.perf_counter()
+import psutil
+kids = sum(c.cpu_times().user + c.cpu_times().system
+           for c in psutil.Process().children(recursive=True))
+last = sorted(timed.arrivals)[-workers:]
+idle = sum(last[-1] - t for t in last) / (workers * (last[-1] - timed.start))
+print(json.dumps(dict(sweep=timed.start - t0, first=timed.arrivals[0] - t0, total=end - t0,
+                      tasks=len(timed.arrivals), idle=idle, workers_cpu=kids,
+                      parent_cpu=time.process_time())))
+"""
+
+
+def startup(job_file: Path, tmp: Path, workers: int, repeat: int) -> None:
+    """Before/after figures of one command-line run, interleaved, best of ``repeat``."""
+    import json
+
+    from sweepcli.jobfile import load_job
+
+    job = load_job(job_file)
+    runs: dict[str, list[dict]] = {"before": [], "after": []}
+    for _ in range(repeat):
+        for mode in runs:
+            proc = subprocess.run([sys.executable, "-c", STARTUP, str(job_file),
+                                   str(tmp / f"startup-{mode}.h5"), str(workers), mode],
+                                  capture_output=True, text=True)
+            if proc.returncode:
+                raise SystemExit(proc.stderr)
+            runs[mode].append(json.loads(proc.stdout.strip().splitlines()[-1]))
+    print(f"start-up and tail, {job_file} ({job.size} points) on {workers} workers, "
+          f"fresh process each; the run of least total of {repeat}")
+    print("  chunking   sweep starts  first result   total   point tasks  tail idle  worker CPU"
+          "  parent CPU")
+    for mode, rs in runs.items():
+        best = min(rs, key=lambda r: r["total"])
+        print(f"  {mode:<9} {best['sweep']:9.2f} s {best['first']:9.2f} s {best['total']:7.2f} s "
+              f"{best['tasks']:9d}   {best['idle']:8.1%}  {best['workers_cpu']:8.2f} s  "
+              f"{best['parent_cpu']:8.2f} s")
+
+
+def cut_down(job_file: Path, tmp: Path, sizes: tuple[int, int] = (12, 8)) -> Path:
+    """The driven chain job on a ``sizes`` grid (T x a), writing under ``tmp``."""
+    text = job_file.read_text()
+    text = text.replace("num = 39", f"num = {sizes[0]}").replace("num = 21", f"num = {sizes[1]}")
+    path = tmp / "driven-chain-small.toml"
+    path.write_text(text.replace('"results/driven-chain.h5"', f'"{tmp / "dc.h5"}"'))
+    return path
+
+
 def memory(tmp: Path) -> None:
     for n in (1_000, 10_000):
         p = tmp / f"light{n}.toml"
@@ -160,6 +253,11 @@ def main() -> None:
     ap.add_argument("--workers", default="1,2", help="worker counts, comma-separated")
     ap.add_argument("--repeat", type=int, default=2)
     ap.add_argument("--memory", action="store_true", help="also the peak-memory figures")
+    ap.add_argument("--no-startup", action="store_true",
+                    help="skip the start-up and tail figures (before and after)")
+    ap.add_argument("--startup-job", type=Path,
+                    help="job of the start-up figures (default: a 12 x 8 driven chain)")
+    ap.add_argument("--no-scaling", action="store_true", help="skip the scaling table")
     args = ap.parse_args()
     tmp = Path(tempfile.mkdtemp())
     counts = [int(c) for c in args.workers.split(",")]
@@ -170,7 +268,11 @@ def main() -> None:
         path = tmp / "qwz.toml"
         path.write_text(QWZ.format(nm=nm, nt=nt, out=tmp / "q.h5"))
         job, label = load_job(path), f"QWZ gap + chern + [predict], {nm} x {nt}"
-    scaling(job, label, counts, args.repeat)
+    if not args.no_scaling:
+        scaling(job, label, counts, args.repeat)
+    if not args.no_startup:
+        startup(args.startup_job or cut_down(DRIVEN_CHAIN, tmp), tmp, max(max(counts), 2),
+                args.repeat)
     if args.memory:
         memory(tmp)
 

@@ -40,7 +40,9 @@ def run(ctx: typer.Context,
             help="Evaluate one shard: I/N, auto (Slurm array task) or auto/N (Slurm or "
                  "PBS).")] = None,
         chunk_size: Annotated[int | None, typer.Option(
-            "--chunk-size", min=1, show_default="about 8 tasks per worker, at most 64 points each",
+            "--chunk-size", min=1,
+            show_default="about 8 tasks per worker, 1 point first, then sized by the measured "
+                         "cost per point",
             help="Grid points per task.")] = None,
         checkpoint_every: Annotated[float, typer.Option(
             "--checkpoint-every", min=0.0, help="Seconds between checkpoints.")] = 60.0,
@@ -72,17 +74,21 @@ def run(ctx: typer.Context,
 
     Exit codes: 0 done, 2 bad input, 3 interrupted (Ctrl-C, SIGTERM, all dask workers lost;
     resume with --resume), 4 done but some points failed (see `sweepcli show`)."""
-    from ..run.executors import WorkersLost
+    if verbose and quiet(ctx):
+        typer.echo("error: give --quiet or --verbose, not both.", err=True)
+        raise typer.Exit(EXIT_ERROR)
+    from ..run.executors import JoblibExecutor, WorkersLost
+
+    # The worker pool starts before the sweep code is imported here (about a second).
+    pool = (JoblibExecutor(workers).warm() if workers > 1 and not (scheduler or dask_cluster)
+            and not (force and resume) else None)
     from ..run.session import RunSession
 
     session = RunSession(job_file, output=output, workers=workers, force=force, resume=resume,
                          shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
                          progress=progress and not quiet(ctx), scheduler=scheduler,
                          dask_cluster=dask_cluster, lost_timeout=dask_lost_timeout,
-                         heartbeat=0.0 if quiet(ctx) else heartbeat)
-    if verbose and quiet(ctx):
-        typer.echo("error: give --quiet or --verbose, not both.", err=True)
-        raise typer.Exit(EXIT_ERROR)
+                         heartbeat=0.0 if quiet(ctx) else heartbeat, executor=pool)
     loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
     say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:

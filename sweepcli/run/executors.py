@@ -6,8 +6,10 @@ adapters. Results are stored by grid index, so the order of completion does not 
 
 from __future__ import annotations
 
+import threading
 import time
 from collections.abc import Callable, Iterable, Iterator
+from contextlib import contextmanager
 from typing import Any
 
 from ..errors import SweepError
@@ -31,20 +33,62 @@ class SerialExecutor:
 
 
 class JoblibExecutor:
-    """joblib's loky process pool with BLAS pinned to one thread per worker."""
+    """joblib's loky process pool with BLAS pinned to one thread per worker.
+
+    :meth:`warm` starts the pool in a background thread (the workers start and import the
+    sweep code while this process reads the job and writes the results file); :meth:`imap`
+    then finds it started. Tasks go to the workers one by one (``batch_size=1``): the runner
+    sizes its chunks itself (:mod:`sweepcli.run.chunking`).
+    """
 
     def __init__(self, workers: int) -> None:
         self.workers = workers
+        self._warming: threading.Thread | None = None
 
-    def imap(self, func: Callable, tasks: Iterable[tuple]) -> Iterator[Any]:
-        from joblib import Parallel, delayed, parallel_config
+    @contextmanager
+    def _parallel(self, **options):
+        from joblib import Parallel, parallel_config
 
         # One BLAS thread per worker: the workers already fill the cores, and oversubscribed
-        # BLAS threads make a batched eigh slower, not faster.
+        # BLAS threads make a batched eigh slower, not faster. The same settings for warm()
+        # and imap(), so that loky reuses the pool the first started.
         with parallel_config(backend="loky", inner_max_num_threads=1):
-            parallel = Parallel(n_jobs=self.workers, return_as="generator_unordered",
-                                pre_dispatch="2*n_jobs")
+            yield Parallel(n_jobs=self.workers, batch_size=1, **options)
+
+    def warm(self) -> JoblibExecutor:
+        """Start the pool and import the worker code in each worker, in a background thread;
+        returns self. A failure here is left for :meth:`imap` to meet and report."""
+        def start() -> None:
+            from joblib import delayed
+
+            try:
+                with self._parallel() as parallel:
+                    parallel(delayed(_import_worker)() for _ in range(self.workers))
+            except Exception:  # noqa: BLE001, S110 - imap starts the pool again and raises
+                pass
+
+        if self._warming is None:
+            self._warming = threading.Thread(target=start, name="sweepcli-warm", daemon=True)
+            self._warming.start()
+        return self
+
+    def close(self) -> None:
+        """Wait for a warm-up still running (the pool itself is joblib's, reused or shut
+        down at exit)."""
+        if self._warming is not None:
+            self._warming.join()
+
+    def imap(self, func: Callable, tasks: Iterable[tuple]) -> Iterator[Any]:
+        from joblib import delayed
+
+        self.close()
+        with self._parallel(return_as="generator_unordered", pre_dispatch="2*n_jobs") as parallel:
             yield from parallel(delayed(func)(*args) for args in tasks)
+
+
+def _import_worker() -> None:
+    """A warm-up task: import what a worker needs to evaluate points."""
+    from . import worker  # noqa: F401
 
 
 def make_executor(workers: int):

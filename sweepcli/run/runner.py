@@ -17,7 +17,9 @@ import numpy as np
 
 from ..errors import SweepError
 from ..jobfile import Job
+from ..schema import POINT_SECONDS
 from ..store import Results
+from .chunking import CostMeter, fixed_size, plan_chunks
 from .confirm import (
     NOT_COMPUTED,
     NOT_REQUESTED,
@@ -67,8 +69,8 @@ def chunks(todo: np.ndarray, chunk_size: int) -> Iterator[np.ndarray]:
 
 
 def default_chunk_size(n_points: int, workers: int) -> int:
-    # Several chunks per worker for load balance, and not so many that process overhead shows.
-    return max(1, min(64, math.ceil(n_points / (8 * workers))))
+    """The fixed chunk size: before a cost is measured, and of the strided :func:`chunks`."""
+    return fixed_size(n_points, workers)
 
 
 def line_chunks(ids: list[int], workers: int) -> list[list[int]]:
@@ -79,16 +81,47 @@ def line_chunks(ids: list[int], workers: int) -> list[list[int]]:
     return [ids[j::m] for j in range(m)]
 
 
-def interleave(main: list, side: list) -> list:
-    """``main`` with the tasks of ``side`` spread evenly among them (side task ``j`` before
-    main task ``floor(j len(main) / len(side))``), so neither kind waits for the other."""
-    out, j = [], 0
-    for i, task in enumerate(main):
-        while j < len(side) and j * len(main) // len(side) <= i:
-            out.append(side[j])
-            j += 1
-        out.append(task)
-    return out + side[j:]
+def point_tasks(job: Job, results: Results, groups: list[tuple[np.ndarray, tuple | None]],
+                side: list[tuple], workers: int, chunk_size: int | None = None):
+    """The executor's tasks: the chunks of every group, with the ``side`` tasks spread evenly
+    among them by points (side task ``j`` before the chunk that starts at point
+    ``floor(j n / len(side))`` of the ``n`` points), so neither kind waits for the other.
+
+    Returns ``(tasks, observe)``: ``tasks`` is drawn lazily, each chunk sized when it is drawn
+    (:func:`sweepcli.run.chunking.plan_chunks`, or strided chunks of ``chunk_size`` when given);
+    ``observe(records)`` feeds the measured ``point_seconds`` of finished points to the sizing.
+    A resumed run starts from the times its file holds.
+    """
+    n = sum(len(g) for g, _ in groups)
+    fixed = chunk_size or fixed_size(n, workers)
+    stored = (results.data[POINT_SECONDS].reshape(-1)[results.done.ravel() != 0]
+              if POINT_SECONDS in results.variables else np.zeros(0))
+    # A pass of some measurements (only) costs less than the stored time of all of them.
+    meters = [CostMeter.from_times(stored if only is None else np.zeros(0)) for _, only in groups]
+    group_of = np.zeros(results.size, np.int32)
+    for gi, (todo, _) in enumerate(groups):
+        group_of[todo] = gi
+
+    def tasks():
+        handed = j = 0
+        for gi, (todo, only) in enumerate(groups):
+            cut = (chunks(todo, chunk_size) if chunk_size else
+                   plan_chunks(todo, workers, meters[gi], fixed=fixed))
+            for c in cut:
+                while j < len(side) and j * n // len(side) <= handed:
+                    yield side[j]
+                    j += 1
+                yield ("points", job, c, only)
+                handed += len(c)
+        yield from side[j:]
+
+    def observe(records) -> None:
+        for index, values, _ in records:
+            seconds = values.get(POINT_SECONDS)
+            if seconds is not None:
+                meters[group_of[index]].add(float(seconds))
+
+    return tasks(), observe
 
 
 def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, tuple | None]],
@@ -101,8 +134,9 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
     """Evaluate ``groups`` (``(flat indices, measurement names or None for all)``) through the
     executor, passing each record to ``store``; returns whether the run was interrupted.
 
-    The lines of ``predictions`` not yet computed go to the same executor as tasks spread evenly
-    among the point chunks (:func:`interleave`), shown in the progress and collected in
+    Points go in chunks sized by their measured cost (:func:`point_tasks`). The lines of
+    ``predictions`` not yet computed go to the same executor as tasks spread evenly among the
+    point chunks, shown in the progress and collected in
     ``predictions``, so that the workers compute them beside the points.
 
     ``checkpoint(results)`` is called every ``checkpoint_every`` seconds, at the end and on
@@ -112,8 +146,6 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
     worker for its ``lost_timeout``.
     """
     executor = executor or make_executor(workers)
-    n_todo = sum(len(g) for g, _ in groups)
-    size = chunk_size or default_chunk_size(n_todo, executor.workers)
     side = predictions.pending() if predictions is not None else []
     bar = Progress(total, already, bar=progress, interval=heartbeat, label=label,
                    side=(predictions.total - len(side), predictions.total) if side else None)
@@ -130,15 +162,16 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         previous = None
     died = lost = None
     try:
-        point_tasks = [("points", job, c, only) for todo, only in groups
-                       for c in chunks(todo, size)]
         side_tasks = [("predict", job, (ids, predictions.task(ids)), None)
                       for ids in line_chunks(side, executor.workers)]
-        for kind, out in executor.imap(evaluate_task, interleave(point_tasks, side_tasks)):
+        tasks, observe = point_tasks(job, results, groups, side_tasks, executor.workers,
+                                     chunk_size)
+        for kind, out in executor.imap(evaluate_task, tasks):
             if kind == "predict":
                 predictions.record(*out)
                 bar.side_update(len(out[0]))
                 continue
+            observe(out)
             for index, values, failure in out:
                 store(index, values, failure)
             bar.update(len(out))

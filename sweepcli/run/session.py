@@ -32,6 +32,14 @@ from .runner import RunSummary, run_job
 from .shards import Shard, parse_shard
 
 
+def start_pool(workers: int):
+    """A joblib executor of ``workers`` processes, started in the background (see
+    :meth:`sweepcli.run.executors.JoblibExecutor.warm`)."""
+    from .executors import JoblibExecutor
+
+    return JoblibExecutor(workers).warm()
+
+
 @dataclass(frozen=True)
 class SessionSummary:
     """What a run did: its counts (:class:`RunSummary`), where it wrote and how to go on."""
@@ -68,6 +76,9 @@ class RunSession:
     lost_timeout: float = 60.0
     heartbeat: float = 60.0
     argv: list[str] = field(default_factory=lambda: list(sys.argv))
+    # The executor to run on (default: one made for ``workers``, its pool started at once, in
+    # the background, while the job is read and the file written); a dask run makes its own.
+    executor: object = None
 
     def run(self, say: Callable[[str], None] | None = None) -> SessionSummary:
         """Run the session; ``say`` (if given) receives one line on what is about to be computed.
@@ -83,6 +94,22 @@ class RunSession:
             if problem:
                 raise SweepError(f"--output must be a file path that can be created; got "
                                  f"{shown(str(self.output))}. {problem}")
+        if self.force and self.resume:
+            raise SweepError("--force and --resume exclude each other: --force starts afresh, "
+                             "--resume continues the existing file.")
+        if self.scheduler and self.dask_cluster:
+            raise SweepError("give --scheduler or --dask-cluster, not both.")
+        executor = self.executor
+        if executor is None and self.workers > 1 and not (self.scheduler or self.dask_cluster):
+            executor = start_pool(self.workers)
+        try:
+            return self._run(executor, say)
+        finally:
+            close = getattr(executor, "close", None)
+            if close is not None:
+                close()
+
+    def _run(self, executor, say: Callable[[str], None] | None) -> SessionSummary:
         job = load_job(self.job_file)
         part = parse_shard(self.shard) if self.shard is not None else None
         out = self.output or Path(job.output)
@@ -93,16 +120,11 @@ class RunSession:
             if problem:
                 raise SweepError(f"{job.path}: [output] path must give a file path that can be "
                                  f"created; got {shown(str(out))}. {problem}")
-        if self.force and self.resume:
-            raise SweepError("--force and --resume exclude each other: --force starts afresh, "
-                             "--resume continues the existing file.")
-        if self.scheduler and self.dask_cluster:
-            raise SweepError("give --scheduler or --dask-cluster, not both.")
         with output_lock(out):
-            return self._run_locked(job, part, out, say)
+            return self._run_locked(job, part, out, say, executor)
 
     def _run_locked(self, job: Job, part: Shard | None, out: Path,
-                    say: Callable[[str], None] | None) -> SessionSummary:
+                    say: Callable[[str], None] | None, executor=None) -> SessionSummary:
         results = self._open(job, part, out)
         selection = part.indices(job.size) if part else None
         saved = {}  # counts of the last file written: what an interruption leaves on disk
@@ -113,7 +135,7 @@ class RunSession:
             fail = r.failure.ravel() if selection is None else r.failure.ravel()[selection]
             saved.update(done=int(own.sum()), failed=int(np.count_nonzero(fail != "")))
 
-        client = cluster = executor = None
+        client = cluster = None
         summary = None
         try:
             with _sigterm_as_interrupt():
