@@ -5,7 +5,8 @@ Static 2D jobs whose model provides a ``C_n`` rotation (``TightBinding.rotations
 built-in ``bbh`` (C4, ``delta = 0``), ``breathing_kagome`` (C3) and ``kekule_honeycomb``
 (C6), and a custom model's ``[model.rotation]``; the job file refuses the measurement on a model
 that provides none, flagged ``rotation=True`` here). The rotation is checked against the
-Hamiltonian before its eigenvalues are read: a declared rotation that is not a symmetry raises (the point is ``FAILED`` with the message).
+Hamiltonian before its eigenvalues are read: a declared rotation that is not a symmetry raises
+(the point is ``FAILED`` with the message).
 """
 
 from __future__ import annotations
