@@ -49,7 +49,10 @@ def test_in_flight_limit_follows_a_growing_cluster():
 def dask_scheduler(tmp_path):
     """A scheduler and one worker (no nanny: a killed worker stays dead) as processes."""
     info = tmp_path / "scheduler.json"
-    env = dict(os.environ, DASK_DISTRIBUTED__WORKER__DAEMON="False")
+    # A worker's death is seen when its connection drops; the short time-to-live also removes
+    # a worker that stops answering without closing it (a loaded machine), as a cluster would.
+    env = dict(os.environ, DASK_DISTRIBUTED__WORKER__DAEMON="False",
+               DASK_DISTRIBUTED__SCHEDULER__WORKER_TTL="10s")
     procs = [subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_scheduler",
                                "--host", "127.0.0.1", "--port", "0", "--no-dashboard",
                                "--scheduler-file", str(info)], env=env,
@@ -93,7 +96,16 @@ def test_losing_every_worker_saves_and_exits_3(dask_scheduler, job, tmp_path):
     proc = start_dask_run(job, out, address, "--dask-lost-timeout", "3")
     wait_for_points(out, proc, minimum=8)
     worker.kill()
-    _, err = proc.communicate(timeout=120)  # hung for ever before
+    try:
+        _, err = proc.communicate(timeout=120)  # hung for ever before
+    except subprocess.TimeoutExpired:
+        proc.send_signal(signal.SIGINT)
+        try:
+            _, err = proc.communicate(timeout=20)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            _, err = proc.communicate()
+        pytest.fail(f"the run did not stop within 120 s of losing its worker; stderr:\n{err}")
     assert proc.returncode == 3, err
     assert "Traceback" not in err
     assert "all dask workers were lost (none for 3 s, --dask-lost-timeout)" in err
