@@ -116,6 +116,7 @@ class DaskExecutor:
         self.threads = self._threads()
         self.workers = max(1, self.threads)
         self.in_flight = 0  # futures submitted and not yet returned (read by tests)
+        self.stop = None  # a threading.Event the runner sets on Ctrl-C / SIGTERM
 
     def _threads(self) -> int:
         """Worker threads the scheduler has now (0 when it cannot be asked)."""
@@ -147,6 +148,8 @@ class DaskExecutor:
                                    return_when="FIRST_COMPLETED")
                 except TimeoutError:
                     done = ()
+                if self.stop is not None and self.stop.is_set():
+                    raise KeyboardInterrupt  # a signal whose own exception Python dropped
                 for future in done:
                     futures.discard(future)
                     result = future.result()

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import signal
+import threading
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
@@ -151,15 +152,22 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
                    side=(predictions.total - len(side), predictions.total) if side else None)
     interrupted = False
     last = time.monotonic()
-    previous = signal.getsignal(signal.SIGTERM)
+    # Ctrl-C and SIGTERM raise KeyboardInterrupt, and also set ``stop``: Python drops an
+    # exception raised while a weakref callback or __del__ runs ("Exception ignored in ..."), so
+    # the loop (and a polling executor) checks the flag too, and the stop is never lost.
+    stop = threading.Event()
+    executor.stop = stop
+    previous = {}
 
-    def on_term(signum, frame):
+    def on_signal(signum, frame):
+        stop.set()
         raise KeyboardInterrupt
 
-    try:
-        signal.signal(signal.SIGTERM, on_term)
-    except ValueError:  # not the main thread: leave signals alone
-        previous = None
+    for sig in (signal.SIGINT, signal.SIGTERM):
+        try:
+            previous[sig] = signal.signal(sig, on_signal)
+        except ValueError:  # not the main thread: leave signals alone
+            break
     died = lost = None
     try:
         side_tasks = [("predict", job, (ids, predictions.task(ids)), None)
@@ -170,11 +178,15 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
             if kind == "predict":
                 predictions.record(*out)
                 bar.side_update(len(out[0]))
+                if stop.is_set():
+                    raise KeyboardInterrupt
                 continue
             observe(out)
             for index, values, failure in out:
                 store(index, values, failure)
             bar.update(len(out))
+            if stop.is_set():
+                raise KeyboardInterrupt
             if checkpoint is not None and time.monotonic() - last >= checkpoint_every:
                 checkpoint(results)
                 last = time.monotonic()
@@ -189,8 +201,9 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         died = exc
     finally:
         bar.close()
-        if previous is not None:
-            signal.signal(signal.SIGTERM, previous)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+        executor.stop = None
         if checkpoint is not None:
             checkpoint(results)
     if lost is not None:
