@@ -270,18 +270,26 @@ def static_subspace(tb: TightBinding, nocc: int
     """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for the ``nocc`` lowest
     bands: their eigenvectors, the direct gap above them, and the slope
     ``sqrt(||dH/dk_1||^2 + ||dH/dk_2||^2)`` (a bound on ``||dH/dk_u||`` for every unit ``u``)."""
-    disp, mats = tb._stacked()
-
     def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        phase = np.exp(1j * (np.asarray(k, float) @ disp.T))
-        t = np.tensordot(phase, mats, axes=([-1], [0]))
-        e, v = np.linalg.eigh(tb.onsite + t + np.conj(np.swapaxes(t, -1, -2)))
-        slope2 = 0.0
-        for i in range(2):
-            d = np.tensordot(1j * disp[:, i] * phase, mats, axes=([-1], [0]))
-            slope2 = slope2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
-        return v[..., :nocc], e[..., nocc] - e[..., nocc - 1], np.sqrt(slope2)
+        e, v, slope = bands_and_slope(tb, k)
+        return v[..., :nocc], e[..., nocc] - e[..., nocc - 1], slope
     return data
+
+
+def bands_and_slope(tb: TightBinding, k: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Eigenvalues and eigenvectors of the 2D ``H(k)`` at the points ``k``, and the slope
+    ``sqrt(||dH/dk_1||^2 + ||dH/dk_2||^2)`` there (a bound on ``||dH/dk_u||`` for every unit
+    ``u``), from one evaluation of the phases."""
+    disp, mats = tb._stacked()
+    phase = np.exp(1j * (np.asarray(k, float) @ disp.T))
+    t = np.tensordot(phase, mats, axes=([-1], [0]))
+    e, v = np.linalg.eigh(tb.onsite + t + np.conj(np.swapaxes(t, -1, -2)))
+    slope2 = 0.0
+    for i in range(2):
+        d = np.tensordot(1j * disp[:, i] * phase, mats, axes=([-1], [0]))
+        slope2 = slope2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
+    return e, v, np.sqrt(slope2)
 
 
 def chern_number(tb: TightBinding, nocc: int, *, gap: float | None = None, gap_tol: float = 1e-6,

@@ -31,8 +31,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from .certify import certified_chern, hermitian_norm, hopping_bounds
-from .chern import START_CAP, WORK
+from .certify import certified_chern, hopping_bounds
+from .chern import START_CAP, WORK, bands_and_slope
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
@@ -147,7 +147,6 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     if not gap >= gap_tol:
         return SpinChernResult(math.nan, None, None, None, math.nan, None, math.nan,
                                Reason.GAP_CLOSED)
-    disp, mats = tb._stacked()
     lip2 = hopping_bounds(tb.hoppings)[1]
     spin_norm = float(np.linalg.norm(spin, 2))
     spin_gap = [math.inf]
@@ -155,13 +154,7 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
 
     def sector(which: int):
         def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-            phase = np.exp(1j * (np.asarray(k, float) @ disp.T))
-            t = np.tensordot(phase, mats, axes=([-1], [0]))
-            e, v = np.linalg.eigh(tb.onsite + t + np.conj(np.swapaxes(t, -1, -2)))
-            slope2 = 0.0
-            for i in range(2):
-                d = np.tensordot(1j * disp[:, i] * phase, mats, axes=([-1], [0]))
-                slope2 = slope2 + hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2))) ** 2
+            e, v, slope = bands_and_slope(tb, k)
             up, down, eigs = prodan_sectors(v[..., :nocc], spin)
             nup = np.sum(eigs > 0, axis=-1)
             nup_first[:] = nup_first or [int(nup.flat[0])]
@@ -172,7 +165,7 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
             w = np.abs(eigs[..., ndown:] if which == 0 else eigs[..., :ndown])
             sep = np.stack([np.min(w, axis=-1, initial=np.inf), e[..., nocc] - e[..., nocc - 1]],
                            axis=-1)
-            return (up if which == 0 else down), sep, np.sqrt(slope2)
+            return (up if which == 0 else down), sep, slope
         return data
 
     n0 = min(max(kmesh_n, min(gap_rule_kmesh(gap), START_CAP)), max_kmesh)
