@@ -125,6 +125,21 @@ class DaskExecutor:
         except Exception:  # noqa: BLE001 - a scheduler that cannot answer has no usable worker
             return 0
 
+    def _watch(self, seen: float) -> float:
+        """Count the workers again; returns when one was last seen. Raises KeyboardInterrupt
+        when the runner's stop flag is set and :class:`WorkersLost` after ``lost_timeout``
+        seconds without any worker."""
+        if self.stop is not None and self.stop.is_set():
+            raise KeyboardInterrupt
+        now = time.monotonic()
+        self.threads = self._threads()
+        if self.threads:
+            return now
+        if now - seen > self.lost_timeout:
+            raise WorkersLost(f"all dask workers were lost (none for "
+                              f"{self.lost_timeout:g} s, --dask-lost-timeout)")
+        return seen
+
     def imap(self, func: Callable, tasks: Iterable[tuple]) -> Iterator[Any]:
         from distributed import wait
 
@@ -152,7 +167,14 @@ class DaskExecutor:
                     raise KeyboardInterrupt  # a signal whose own exception Python dropped
                 for future in done:
                     futures.discard(future)
-                    result = future.result()
+                    while True:
+                        # A finished result whose worker has died is computed again: it may
+                        # never come back, so it too is awaited a poll at a time.
+                        try:
+                            result = future.result(timeout=self.poll)
+                            break
+                        except TimeoutError:
+                            seen = self._watch(seen)
                     future.release()
                     self.in_flight = len(futures)
                     yield result
@@ -160,12 +182,7 @@ class DaskExecutor:
                 if now - counted < self.poll and self.threads:
                     continue
                 counted = now
-                self.threads = self._threads()
-                if self.threads:
-                    seen = now
-                elif now - seen > self.lost_timeout:
-                    raise WorkersLost(f"all dask workers were lost (none for "
-                                      f"{self.lost_timeout:g} s, --dask-lost-timeout)")
+                seen = self._watch(seen)
         finally:
             for future in futures:
                 future.release()
