@@ -8,29 +8,28 @@ constants that follow from the hoppings alone, the way
 :func:`~sweepcli.physics.spectrum.velocity_bound` bounds the band velocity.
 
 Inputs of a bound at each mesh point ``k_c``: the *separation* ``sep_c`` (the direct gap
-``E_nocc - E_nocc-1`` of a Hermitian ``X = H``; ``min_lower sin(|eps_j| T) +
-min_upper sin(|eps_j| T)`` of a unitary ``X = U``, the width of the strip along the real axis
-that separates the eigenvalues of the two Floquet band groups (quasienergies in ``(-pi/T, 0)``
-above it, ``(0, pi/T)`` below); the smallest singular value ``sigma_min(q)`` of a chiral
-block ``q``) and the *slope*
-``g_c``, a bound on ``||d X / d k_u||`` at ``k_c`` for every unit direction ``u``; and a
-constant ``lip2`` with ``||d^2 X / dk_u dk_w|| <= lip2`` for all unit ``u``, ``w`` and every k
-(static models: from the hoppings; drives: ``g_c`` from the exact ``dU/dk`` at ``k_c`` and
-``lip2`` from the steps, :func:`sweepcli.physics.floquet_chern.drive_curvature_bound`), or
-``g_c`` a bound for every k and ``lip2 = 0``. Within ``r`` of ``k_c``:
-``||X(k) - X(k_c)|| <= eps_c = g_c r + lip2 r^2 / 2`` and the slope is at most
-``g_c + lip2 r``; by Weyl's inequality (Hermitian), the Bauer-Fike theorem (normal) or the
-singular-value form of Weyl's inequality (blocks) the separation at ``k`` is at least
-``sep_c - 2 eps_c`` (blocks: ``sep_c - eps_c``).
+``E_nocc - E_nocc-1`` of a Hermitian ``X = H``; for a drive, ``min_lower sin(|eps_j| T) +
+min_upper sin(|eps_j| T)``, the gap around 0 of the Hermitian ``X = Y = i (U - U^+) / 2``, whose
+eigenvectors are those of the Floquet operator ``U`` and whose eigenvalues ``sin(eps_j T)`` are
+negative on the lower band group (quasienergies in ``(-pi/T, 0)``) and positive on the upper
+one (``(0, pi/T)``); the smallest singular value ``sigma_min(q)`` of a chiral block ``q``) and
+the *slope* ``g_c``, a bound on ``||d X / d k_u||`` at ``k_c`` for every unit direction ``u``;
+and a constant ``lip2`` with ``||d^2 X / dk_u dk_w|| <= lip2`` for all unit ``u``, ``w`` and
+every k (static models: from the hoppings; drives: ``g_c`` from the exact ``dU/dk`` at
+``k_c`` and ``lip2`` from the steps, :func:`sweepcli.physics.floquet_chern.drive_curvature_bound`,
+both valid for ``Y`` since ``||d^j Y|| <= ||d^j U||``), or ``g_c`` a bound for every k and
+``lip2 = 0``. Within ``r`` of ``k_c``: ``||X(k) - X(k_c)|| <= eps_c = g_c r + lip2 r^2 / 2``
+and the slope is at most ``g_c + lip2 r``; by Weyl's inequality (Hermitian) or its
+singular-value form (blocks) the separation at ``k`` is at least ``sep_c - 2 eps_c`` (blocks:
+``sep_c - eps_c``).
 
 Chern numbers (:func:`cell_lambda`, :func:`certified_chern`)
 -------------------------------------------------------------
 For a cell of side ``h`` let ``G`` bound the slope and ``D`` the separation over the closed
 cell (from its corners as above, every point being within ``h / sqrt 2`` of one), and
-``lambda = c h G / D``. Proven: the occupied projector has ``||dP/dk_u|| <= c G / D`` (the
-off-diagonal block ``Q dP P`` solves a Sylvester equation with spectra separated by ``D``;
-``c = 1`` for Hermitian ``X``, ``c = pi/2`` for a unitary whose two spectral sets lie on
-either side of a strip, Bhatia, Davis and McIntosh 1983: the ``sylvester`` argument), so every
+``lambda = h G / D``. Proven: the occupied projector (the spectral projector of ``X`` below
+its gap) has ``||dP/dk_u|| <= G / D`` (the off-diagonal block ``Q dP P`` solves a Sylvester
+equation whose two Hermitian spectra are separated by ``D``), so every
 point of the cell has ``||P(k) - P(k_a)|| <= rho = sqrt 2 lambda`` from a corner ``k_a``. In
 the smooth gauge ``V(k) = P V_a (V_a^+ P V_a)^-1/2``
 of the cell, the link phase of a boundary segment of length ``l`` is at most
@@ -106,6 +105,47 @@ def hopping_bounds(hoppings: Mapping[tuple[int, ...], np.ndarray],
     return l1, l2
 
 
+#: Points per direction of the mesh on which :func:`mesh_hopping_bounds` takes its maxima.
+BOUND_MESH = 24
+
+
+def mesh_hopping_bounds(hoppings: Mapping[tuple[int, ...], np.ndarray],
+                        n: int = BOUND_MESH) -> tuple[float, float]:
+    """``(L1, L2)`` of :func:`hopping_bounds` for a 2D model, tightened by the maxima over an
+    ``n x n`` mesh (never looser than :func:`hopping_bounds`).
+
+    Proven: ``g(k) = max_u ||dH/dk_u||`` is Lipschitz with any bound ``L2`` on the second
+    derivatives, and ``g <= sqrt(||d_1 H||^2 + ||d_2 H||^2)``; every ``k`` lies within ``r = (2
+    pi / n) / sqrt 2`` of a mesh point, so ``max_k g <= max_mesh sqrt(||d_1 H||^2 + ||d_2
+    H||^2) + L2 r``. Likewise ``max_{u,w} ||d_u d_w H|| <= max_mesh sqrt(sum_ij ||d_i d_j
+    H||^2) + L3 r`` with ``L3 = 2 sum_R |R|^3 ||T_R||``. The Lipschitz terms use the bounds of
+    :func:`hopping_bounds` (and the tightened ``L2`` for ``L1``). The crude bound counts
+    every hopping at full strength in every direction; the mesh sees that they cannot all
+    peak at the same k (a Qi-Wu-Zhang model has ``L1 = 4`` from the hoppings, 1.7 here).
+    """
+    if not hoppings:
+        return 0.0, 0.0
+    from .lattice import kmesh
+
+    l1, l2 = hopping_bounds(hoppings)
+    disp = np.array(list(hoppings.keys()), float)
+    mats = np.stack(list(hoppings.values()))
+    l3 = float(sum(2 * np.linalg.norm(r) ** 3 * np.linalg.norm(t, 2)
+                   for r, t in zip(disp, mats)))
+    phase = np.exp(1j * (kmesh(n, 2) @ disp.T))
+    r = (2 * np.pi / n) / math.sqrt(2)
+
+    def norm(weights: np.ndarray) -> np.ndarray:
+        d = np.tensordot(weights * phase, mats, axes=([-1], [0]))
+        return hermitian_norm(d + np.conj(np.swapaxes(d, -1, -2)))
+
+    second = sum(norm(-disp[:, i] * disp[:, j]) ** 2 for i in range(2) for j in range(2))
+    l2 = min(l2, float(np.max(np.sqrt(second))) + l3 * r)
+    first = sum(norm(1j * disp[:, i]) ** 2 for i in range(2))
+    l1 = min(l1, float(np.max(np.sqrt(first))) + l2 * r)
+    return l1, l2
+
+
 def lambda_max(m: int) -> float:
     """Largest accepted cell bound for ``m`` bands: ``LAMBDA_SAFETY`` times the root of
     ``lambda / (1 - 2 lambda^2) = sin(pi / (4 m))`` (module docstring)."""
@@ -113,15 +153,13 @@ def lambda_max(m: int) -> float:
     return LAMBDA_SAFETY * (-1 + math.sqrt(1 + 8 * s * s)) / (4 * s)
 
 
-def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
-                sylvester: float = 1.0) -> np.ndarray:
-    """Bound ``lambda = c h G / D`` of square cells from their corners (module docstring).
+def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float) -> np.ndarray:
+    """Bound ``lambda = h G / D`` of square cells from their corners (module docstring).
 
-    ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side; ``c = sylvester`` the
-    constant of the Sylvester-equation bound (1 for a Hermitian ``X``, ``pi / 2`` for a unitary
-    one). ``lip2`` may also be a sequence of ``K`` constants, one per slope bound given along
-    the axis before the corners of ``slope`` ``(..., K, 4)``: each bound is valid, so the
-    smallest is used. ``inf`` where the separation bound is not positive.
+    ``sep``, ``slope``: ``(..., 4)`` at the corners; ``h`` the side. ``lip2`` may also be a
+    sequence of ``K`` constants, one per slope bound given along the axis before the corners of
+    ``slope`` ``(..., K, 4)``: each bound is valid, so the smallest is used. ``inf`` where the
+    separation bound is not positive.
     """
     r = h / math.sqrt(2)
     lip2 = np.asarray(lip2, float)
@@ -135,7 +173,7 @@ def cell_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
         g = np.max(slope, axis=-1) + lip2 * r
     lo = np.min(sep - 2 * eps, axis=-1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(lo > 0, sylvester * h * g / np.where(lo > 0, lo, 1.0), np.inf)
+        return np.where(lo > 0, h * g / np.where(lo > 0, lo, 1.0), np.inf)
 
 
 def _corners(x: np.ndarray) -> np.ndarray:
@@ -151,7 +189,7 @@ HOT_SHARE = 0.5
 def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
                     n: int, m: int, lip2: float | tuple[float, ...], *, flux_tol: float,
                     budget: int,
-                    max_n: int | None = None, growth: float = 1.5, sylvester: float = 1.0,
+                    max_n: int | None = None, growth: float = 1.5,
                     sep_max: float | None = None,
                     bound: Callable[[np.ndarray, np.ndarray, float], np.ndarray] | None = None
                     ) -> tuple[int | None, float, int, int]:
@@ -175,14 +213,13 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
         (:func:`_base_multiple`; its points include the present ones, which are not
         evaluated again), or the largest multiple within ``max_n``; by ``growth`` when no
         multiple fits.
-    sylvester : constant of :func:`cell_lambda` (``pi / 2`` for the eigenspaces of a unitary).
     sep_max : an upper bound on the separation at every k (2 for the strip of a unitary), if
-        known: no cell of side ``h`` with ``sylvester h lip2 h / sqrt 2 > lambda_max sep_max``
+        known: no cell of side ``h`` with ``h lip2 h / sqrt 2 > lambda_max sep_max``
         can pass the bound whatever its corners hold, so the base mesh starts at least that
         fine (at most ``max_n``).
     bound : ``bound(sep, slope, h)`` of the cells' corner data (``(..., 4)`` in the last axis,
         as :func:`cell_lambda` receives them) -> their ``lambda``, in place of
-        :func:`cell_lambda` with ``lip2`` and ``sylvester`` (``lip2`` then only sets the start
+        :func:`cell_lambda` with ``lip2`` (``lip2`` then only sets the start
         mesh with ``sep_max``).
 
     Returns
@@ -196,11 +233,11 @@ def certified_chern(data: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, n
     lam_max = lambda_max(m)
     if bound is None:
         def bound(sep: np.ndarray, slope: np.ndarray, h: float) -> np.ndarray:
-            return cell_lambda(sep, slope, h, lip2, sylvester)
+            return cell_lambda(sep, slope, h, lip2)
     max_n = n if max_n is None else max_n
     lip2_min = float(np.min(lip2))
     if sep_max is not None and lip2_min > 0:
-        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / (sylvester * lip2_min))
+        h_min = math.sqrt(math.sqrt(2) * lam_max * sep_max / lip2_min)
         n = min(max(n, int(math.ceil(2 * np.pi / h_min))), max_n)
     used = 0
 

@@ -25,10 +25,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from .certify import certified_chern, hermitian_norm, hopping_bounds
+from .certify import certified_chern, hermitian_norm, mesh_hopping_bounds
 from .chern import START_CAP, WORK
 from .drives.base import Drive
-from .drives.evolution import Slicing, evolve, floquet_evolution, hermitian_exponential
+from .drives.evolution import Slicing, evolve, hermitian_exponential
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
@@ -213,10 +213,12 @@ def _factor_jet2(h: np.ndarray,
     return uf, duf
 
 
-def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]]) -> float:
+def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]],
+                          bounds: Sequence[tuple[float, float]] | None = None) -> float:
     """A bound on ``||d^2 U / dk_u dk_w||`` for all unit directions ``u``, ``w`` and every k:
-    ``(sum_f d_f L1_f)^2 + sum_f d_f L2_f`` with ``(L1_f, L2_f)`` the hopping bounds of
-    :func:`~sweepcli.physics.certify.hopping_bounds` of factor ``f``.
+    ``(sum_f d_f L1_f)^2 + sum_f d_f L2_f`` with ``(L1_f, L2_f)`` bounds on the first and
+    second derivatives of ``H_f`` at every k (``bounds``; by default
+    :func:`~sweepcli.physics.certify.mesh_hopping_bounds` of each factor).
 
     Proof: by Duhamel's formula ``||dU_f|| <= d_f L1_f =: a_f`` and ``||d^2 U_f|| <= a_f^2 +
     d_f L2_f`` (the second derivative of ``exp(-i d H)`` is two nested Duhamel integrals of
@@ -225,49 +227,62 @@ def drive_curvature_bound(factors: Sequence[tuple[float, TightBinding]]) -> floa
     a_f a_g``.
     """
     a = b = 0.0
-    for d, tb in factors:
-        l1, l2 = hopping_bounds(tb.hoppings)
+    if bounds is None:
+        bounds = _hopping_bounds(factors)
+    for (d, _), (l1, l2) in zip(factors, bounds):
         a += d * l1
         b += d * l2
     return a * a + b
 
 
-def floquet_subspace(drive: Drive, slicing: Slicing | None, m: int, upper: bool
+def floquet_subspace(factors: Sequence[tuple[float, TightBinding]], period: float, m: int,
+                     upper: bool
                      ) -> tuple[Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
                                 tuple[float, float]]:
     """``data(k)`` of :func:`~sweepcli.physics.certify.certified_chern` for one Floquet band
-    group of a 2D drive, and its ``lip2``.
+    group of the drive ``U = U_F ... U_1`` of ``factors``, and its ``lip2``.
 
-    ``data(k)`` returns the group's eigenvectors (the ``m`` lowest quasienergies, or the
-    others if ``upper``), the width ``min_lower sin(|eps| T) + min_upper sin(|eps| T)`` of the
-    strip along the real axis between the eigenvalues of the two groups (0 where the lower
-    group does not hold ``m`` bands), and the slope ``sqrt(||dU/dk_1||^2 + ||dU/dk_2||^2)``
-    from the exact derivatives of :func:`drive_jet` (a bound on ``||dU/dk_u||`` for every unit
-    ``u``; ``||dU|| = ||U^+ dU||``, a Hermitian norm up to the factor ``i``) beside the
-    factors' ``steps`` bound (:func:`drive_jet`), shape ``(..., 2)``; ``lip2`` holds their
-    Lipschitz constants, ``drive_curvature_bound(factors)`` (the second derivatives) and
-    ``sum_f d_f L2_f``. Each bound is proven; a cell uses the smaller
+    The group is a spectral subspace of the Hermitian ``Y = i (U - U^+) / 2`` (module docstring
+    of :mod:`sweepcli.physics.certify`). ``data(k)`` returns the group's eigenvectors (the
+    ``m`` lowest quasienergies, or the others if ``upper``), the gap ``min_lower
+    sin(|eps| T) + min_upper sin(|eps| T)`` of ``Y`` around 0 (0 where the lower group does not
+    hold ``m`` bands), and two slopes, shape ``(..., 2)``: ``sqrt(||dY/dk_1||^2 +
+    ||dY/dk_2||^2)`` from the exact derivatives of :func:`drive_jet` (a bound on ``||dY/dk_u||``
+    for every unit ``u``), and the factors' ``steps`` bound on ``||dU/dk_u|| >= ||dY/dk_u||``
+    (:func:`drive_jet`); ``lip2`` holds their Lipschitz constants,
+    ``drive_curvature_bound(factors)`` (a bound on the second derivatives of ``U``, hence of
+    ``Y``) and ``sum_f d_f L2_f``. Each bound is proven; a cell uses the smaller
     (:func:`~sweepcli.physics.certify.cell_lambda`)."""
-    slices = None if drive.exact or slicing is None else slicing.slices
-    factors = list(drive.factors(slices=slices))
     jet = drive_jet(factors)
-    lip2 = (drive_curvature_bound(factors),
-            float(sum(d * hopping_bounds(tb.hoppings)[1] for d, tb in factors)))
-    T = drive.period
+    bounds = _hopping_bounds(factors)
+    lip2 = (drive_curvature_bound(factors, bounds),
+            float(sum(d * b[1] for (d, _), b in zip(factors, bounds))))
 
     def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         u, du, steps = jet(k)
-        eps, v = quasienergies(u, T)
-        width = np.sin(np.abs(eps) * T)
+        eps, v = quasienergies(u, period)
+        width = np.sin(np.abs(eps) * period)
         low = eps < 0
         sep = np.min(np.where(low, width, np.inf), axis=-1) + \
             np.min(np.where(low, np.inf, width), axis=-1)
         sep = np.where(np.sum(low, axis=-1) == m, sep, 0.0)
-        a = 1j * (dagger(u)[..., None, :, :] @ du)
-        a = (a + dagger(a)) / 2
-        slope = np.stack([np.sqrt(np.sum(hermitian_norm(a) ** 2, axis=-1)), steps], axis=-1)
+        dy = 0.5j * (du - dagger(du))
+        slope = np.stack([np.sqrt(np.sum(hermitian_norm(dy) ** 2, axis=-1)), steps], axis=-1)
         return (v[..., m:] if upper else v[..., :m]), sep, slope
     return data, lip2
+
+
+def _hopping_bounds(factors: Sequence[tuple[float, TightBinding]]) -> list[tuple[float, float]]:
+    """:func:`~sweepcli.physics.certify.mesh_hopping_bounds` of each factor, computed once per
+    distinct set of hoppings (the slices of a modulated mass share theirs)."""
+    seen: dict[object, tuple[float, float]] = {}
+    out = []
+    for _, tb in factors:
+        key = tuple((r, t.tobytes()) for r, t in tb.hoppings.items())
+        if key not in seen:
+            seen[key] = mesh_hopping_bounds(tb.hoppings)
+        out.append(seen[key])
+    return out
 
 
 def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
@@ -280,21 +295,22 @@ def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
     ``max(kmesh_n, min(gap_rule_kmesh(min(gap_0, gap_pi)), START_CAP))`` points per direction
     (raised by 1.5 while more than half its plaquettes fail, up to ``max_kmesh``), every
     plaquette whose bound does not prove it subdivided
-    (:func:`~sweepcli.physics.certify.certified_chern` with the unitary constant ``pi / 2``;
-    separation and slopes from :func:`floquet_subspace`: the local strip width between the two
-    groups' eigenvalues and the exact ``||dU/dk||`` at the corners, the second-derivative
-    bound :func:`drive_curvature_bound` of the drive's factors), up to
+    (:func:`~sweepcli.physics.certify.certified_chern` for the group as a spectral subspace of
+    the Hermitian ``Y = i (U - U^+) / 2``; separation and slopes from
+    :func:`floquet_subspace`: the gap of ``Y`` around 0 and the exact ``||dY/dk||`` at the
+    corners, the second-derivative bound :func:`drive_curvature_bound` of the drive's
+    factors), up to
     ``WORK * max_kmesh**2`` points, else ``NOT_CONVERGED``; the base mesh starts no coarser
     than that bound alone allows (``sep_max = 2``). The other group's number is its negative
     (the two groups span every band, whose bundle is trivial). ``kmesh`` of the result is the
     base mesh.
 
     Proven: the stored number is the Chern number of the group of the operator ``U(k)`` that
-    the factors define (the cell bound of :mod:`sweepcli.physics.certify`, with ``||U(k) -
-    U(k_c)|| <= g_c r + lip2 r^2 / 2`` and ``||dU/dk_u(k)|| <= g_c + lip2 r`` within ``r`` of a
+    the factors define (the cell bound of :mod:`sweepcli.physics.certify`, with ``||Y(k) -
+    Y(k_c)|| <= g_c r + lip2 r^2 / 2`` and ``||dY/dk_u(k)|| <= g_c + lip2 r`` within ``r`` of a
     corner ``k_c``, ``g_c`` exact at ``k_c`` and ``lip2`` the proven bound of
-    :func:`drive_curvature_bound`). Assumed: the eigen-decompositions and derivatives at the
-    mesh points are exact to rounding (``U^+ dU`` is taken as anti-Hermitian), and the
+    :func:`drive_curvature_bound` on ``||d^2 U|| >= ||d^2 Y||``). Assumed: the
+    eigen-decompositions and derivatives at the mesh points are exact to rounding, and the
     operator is that of the time slicing ``slicing`` (default: the one the gap search used,
     ``gaps.slices``); the slicing error is not part of the bound.
     """
@@ -306,17 +322,19 @@ def floquet_chern(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
         slicing = Slicing(gaps.slices, 0.0, gaps.converged)
     n = min(max(kmesh_n, min(gap_rule_kmesh(min(gaps.gap_0, gaps.gap_pi)), START_CAP)),
             max_kmesh)
-    # The size of the lower group, from the quasienergies at the gap's minimum.
-    u = floquet_evolution(drive, np.zeros((1, 2)), slicing=slicing).u
+    factors = list(drive.factors(slices=None if drive.exact else slicing.slices))
+    # The size of the lower group, from the quasienergies at k = 0 (the same at every k while
+    # both gaps are open).
+    u = drive_jet(factors)(np.zeros((1, 2)))[0]
     m = int(np.sum(quasienergies(u, drive.period)[0][0] < 0))
     norb = drive.norb
     if m in (0, norb):
         return FloquetChern(0, 0, None, 0.0, Reason.OK)
     upper = norb - m < m
-    data, lip2 = floquet_subspace(drive, slicing, m, upper)
+    data, lip2 = floquet_subspace(factors, drive.period, m, upper)
     c, flux, _, n = certified_chern(data, n, min(m, norb - m), lip2, flux_tol=flux_tol,
                                     budget=WORK * max_kmesh * max_kmesh, max_n=max_kmesh,
-                                    growth=GROWTH, sylvester=math.pi / 2, sep_max=2.0)
+                                    growth=GROWTH, sep_max=2.0)
     if c is None:
         return FloquetChern(None, None, n, flux, Reason.NOT_CONVERGED)
     return FloquetChern(c if upper else -c, -c if upper else c, n, flux, Reason.OK)

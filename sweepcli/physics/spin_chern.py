@@ -151,9 +151,13 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     spin_norm = float(np.linalg.norm(spin, 2))
     spin_gap = [math.inf]
     nup_first: list[int] = []
+    # Both sectors start from the same meshes and mostly refine the same cells: each set of
+    # points is diagonalised once, for both.
+    seen: dict[bytes, tuple[np.ndarray, ...]] = {}
 
-    def sector(which: int):
-        def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def evaluate(k: np.ndarray) -> tuple[np.ndarray, ...]:
+        key = k.tobytes() + str(k.shape).encode()
+        if key not in seen:
             e, v, slope = bands_and_slope(tb, k)
             up, down, eigs = prodan_sectors(v[..., :nocc], spin)
             nup = np.sum(eigs > 0, axis=-1)
@@ -162,10 +166,16 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
             if spin_gap[0] < spin_gap_tol or np.any(nup != nup_first[0]):
                 raise _SectorGapClosed
             ndown = nocc - nup_first[0]
-            w = np.abs(eigs[..., ndown:] if which == 0 else eigs[..., :ndown])
-            sep = np.stack([np.min(w, axis=-1, initial=np.inf), e[..., nocc] - e[..., nocc - 1]],
-                           axis=-1)
-            return (up if which == 0 else down), sep, slope
+            gap = e[..., nocc] - e[..., nocc - 1]
+            sep = [np.stack([np.min(np.abs(w), axis=-1, initial=np.inf), gap], axis=-1)
+                   for w in (eigs[..., ndown:], eigs[..., :ndown])]
+            seen[key] = (up, down, sep[0], sep[1], slope)
+        return seen[key]
+
+    def sector(which: int):
+        def data(k: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+            up, down, sep_up, sep_down, slope = evaluate(k)
+            return (up, sep_up, slope) if which == 0 else (down, sep_down, slope)
         return data
 
     n0 = min(max(kmesh_n, min(gap_rule_kmesh(gap), START_CAP)), max_kmesh)

@@ -238,3 +238,33 @@ def test_two_band_closed_form_jet_matches_eigenbasis_form_at_degeneracy():
         u2, d2 = fc._factor_jet2(hm, dh, 0.7)
         np.testing.assert_allclose(u2, u1, atol=1e-13)
         np.testing.assert_allclose(d2, d1, atol=1e-12)
+
+
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 10_000), norb=st.sampled_from([2, 3]))
+def test_mesh_hopping_bounds_dominate_the_derivatives_everywhere(seed, norb):
+    # Reference: the derivatives of H(k) written out in the test, their spectral norms
+    # (numpy.linalg.norm) on a 90 x 90 mesh offset from the bound's own 24 x 24 mesh, in 24
+    # directions; the mesh bound must dominate them and never exceed the hopping bound.
+    from sweepcli.physics.certify import hopping_bounds, mesh_hopping_bounds
+
+    tb = random_step_drive(seed, norb).factors()[0][1]
+    l1, l2 = mesh_hopping_bounds(tb.hoppings)
+    c1, c2 = hopping_bounds(tb.hoppings)
+    assert l1 <= c1 + 1e-12 and l2 <= c2 + 1e-12
+    k = kmesh(90, 2) + 0.013
+    angles = np.linspace(0, np.pi, 24, endpoint=False)
+    first = second = 0.0
+    for a in angles:
+        u = np.array([np.cos(a), np.sin(a)])
+        for w in (u, np.array([-u[1], u[0]])):
+            d1 = np.zeros(k.shape[:-1] + (norb, norb), complex)
+            d2 = np.zeros_like(d1)
+            for r, t in tb.hoppings.items():
+                ph = np.exp(1j * (k @ np.asarray(r, float)))[..., None, None]
+                ru, rw = float(np.dot(r, u)), float(np.dot(r, w))
+                d1 += 1j * ru * t * ph - 1j * ru * np.conj(t.T) * np.conj(ph)
+                d2 += -ru * rw * (t * ph + np.conj(t.T) * np.conj(ph))
+            first = max(first, float(np.max(np.linalg.norm(d1, 2, axis=(-2, -1)))))
+            second = max(second, float(np.max(np.linalg.norm(d2, 2, axis=(-2, -1)))))
+    assert first <= l1 and second <= l2
