@@ -14,12 +14,11 @@ configured options (static bands and 1D walks are cheap enough to be timed on th
 meshes themselves):
 
 * ``gap``, ``quasienergy_gaps``: one mesh of ``kmesh^d`` (polishing is in ``a``);
-* ``chern``, ``spin_chern``: two meshes, ``N`` and ``1.5 N`` with ``N`` the larger of
-  ``kmesh`` and the gap rule for the probed gap (the proven meshes of ``chern`` and
-  ``spin_chern`` often stop on the first; where they refine, this underestimates);
-* ``floquet_chern``: its proven adaptive mesh (:func:`~sweepcli.physics.certify.certified_chern`)
-  run as configured at the probe, since its work depends on the local gaps and slopes;
-* ``winding``, ``chiral_windings``, ``line_winding`` (1D or a line): ``kmesh`` and ``2 kmesh``;
+* ``chern``, ``spin_chern``, ``floquet_chern``: the proven adaptive mesh
+  (:func:`~sweepcli.physics.certify.certified_chern`) run as configured at the probe, since
+  its work depends on the local gaps and slopes;
+* ``winding``, ``chiral_windings``, ``line_winding`` (1D or a line): the proven bisected loop
+  (:func:`~sweepcli.physics.certify.certified_loop`) run as configured at the probe;
 * ``rudner_winding``: its first two levels at or above ``kmesh``, each probed with its own
   number of time nodes (one level settles it when it matches the proven Chern number, which
   ``floquet_chern`` computes);
@@ -203,33 +202,13 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
     """Estimated seconds of measurement ``name`` at a typical point (module docstring)."""
     from ..physics import floquet_chern as fc
     from ..physics import quasienergy as qe
-    from ..physics.chern import chern_number
-    from ..physics.invariant_base import GAP_KMESH, GROWTH, gap_rule_kmesh
     from ..physics.measurements import MEASUREMENTS
     from ..physics.spectrum import band_gap
-    from ..physics.spin_chern import spin_chern_number
 
     tb, drive, dim = point.tb, point.drive, job.dim
     kmesh = opts.get("kmesh")
-    if name in ("chern", "spin_chern", "floquet_chern"):
-        # The gap rule raises the first mesh of a small gap.
-        if drive is None:
-            gap = band_gap(tb, point.nocc, GAP_KMESH).gap
-        else:
-            g = memo.get("gaps") or qe.floquet_gaps(drive, qe.floquet_mesh(drive, PROBE_MESH[1],
-                                                                             dim))
-            gap = min(g.gap_0, g.gap_pi)
-        if gap >= point.gap_tol:
-            kmesh = min(max(kmesh, gap_rule_kmesh(gap)), opts["max_kmesh"])
-    two = [kmesh, math.ceil(GROWTH * kmesh)] if kmesh else []
     if name == "gap":
         return _at_meshes(lambda n: band_gap(tb, point.nocc, n), [kmesh])
-    if name == "chern":
-        return _at_meshes(lambda n: chern_number(tb, point.nocc, gap=math.inf, kmesh_n=n,
-                                                     max_kmesh=n), two)
-    if name == "spin_chern":
-        return _at_meshes(lambda n: spin_chern_number(
-            tb, point.nocc, tb.operators["spin"], gap=math.inf, kmesh_n=n, max_kmesh=n), two)
     if name == "quasienergy_gaps":
         def gaps(n: int) -> object:
             mesh = qe.floquet_mesh(drive, n, dim)
@@ -255,9 +234,10 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
                            [n_level]) for n_level, q in levels)
     func = MEASUREMENTS[name].func
     if kmesh is not None and "max_kmesh" in opts:
-        # A 1D walk (a chain, or a line of the Brillouin zone): kmesh, then 2 kmesh.
-        return _at_meshes(lambda n: func(point, **{**opts, "kmesh": n, "max_kmesh": n}),
-                          [kmesh, 2 * kmesh])
+        # A proven adaptive mesh (chern, spin_chern) or loop (a chain, or a line of the
+        # Brillouin zone), as configured: its work depends on the local gaps and slopes. The
+        # gap it needs is computed by the first call and kept by the point.
+        return _seconds(lambda: func(point, **opts))
     # Open samples and anything without a k-mesh: one evaluation as configured, on a fresh
     # copy of the point so that nothing it memoises (windows, drive factors) is reused.
     fresh = job.point(index)
