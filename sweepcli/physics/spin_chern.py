@@ -6,21 +6,26 @@ of ``P S P`` inside the occupied space split by the sign of their eigenvalue int
 proven adaptive mesh of :func:`sweepcli.physics.certify.certified_chern` (same sign as
 :mod:`sweepcli.physics.chern`), with the cell bound :func:`sector_lambda`.
 
-Proven (the argument of :mod:`sweepcli.physics.certify` applied to ``X = P S P``, whose
-spectral projector on ``(0, inf)`` is the up sector and on ``(-inf, 0)`` the down sector, the
-unoccupied space being its kernel): in a cell of side ``h`` the occupied gap is at least
-``D_H = min_c (delta_c - 2 eps_c)`` and ``||dH/dk_u|| <= G_H = max_c g_c + L2 r``
-(``eps_c = g_c r + L2 r^2 / 2``, ``r = h / sqrt 2``, ``g_c`` the slope of ``H`` at corner
-``c``, ``L2`` the second-derivative bound of the hoppings), so ``||dP/dk_u|| <= G_H / D_H``
-and ``||dX/dk_u|| <= G_X = 2 ||S|| G_H / D_H`` over the whole cell; the sector's separation
-(its smallest ``|eig|`` of ``V^+ S V`` at a corner: the distance of the sector's eigenvalues of
-``X`` from 0 and from the other sector) is then at least ``D_X = min_c sep_c - 2 G_X r``, and
-``lambda = h G_X / D_X`` bounds the turn of the sector projector over the cell exactly as the
-occupied projector's in :func:`~sweepcli.physics.certify.cell_lambda`. Assumed: the eigen-
-decompositions at the mesh points are exact to rounding. Where the bound cannot be met within
-the budget the value is missing (``NOT_CONVERGED``); a projected-spin spectrum that comes
-within ``spin_gap_tol`` of 0 at a mesh point, or whose sign count changes, gives
-``SECTOR_GAP_CLOSED``.
+Proven (the argument of :mod:`sweepcli.physics.certify` applied to ``X = P S P``, whose spectral
+projector on ``(0, inf)`` is the up sector and on ``(-inf, 0)`` the down sector, the unoccupied
+space being its kernel): in a cell of side ``h`` the occupied gap is at least ``D_H = min_c
+(delta_c - 2 eps_c)`` and ``||dH/dk_u|| <= G_H = max_c g_c + L2 r`` (``eps_c = g_c r + L2 r^2 /
+2``, ``r = h / sqrt 2``, ``g_c`` the slope of ``H`` at corner ``c``, ``L2`` the
+second-derivative bound of the hoppings), so ``||dP/dk_u|| <= G_H / D_H``. With ``Q = 1 - P``
+and ``dP`` off-diagonal (``P dP P = Q dP Q = 0``), ``dX = dP S P + P S dP`` has the blocks ``Q
+dX P = Q dP P S P`` and ``P dX P = P dP Q S P + P S Q dP P``, ``Q dX Q = 0``, so ``||dX|| <=
+||dP|| (||S|| + 2 s)`` with ``s`` a bound on the spin mixing ``||Q S P||`` over the cell: its
+largest corner value plus ``2 ||S|| r G_H / D_H`` (``||Q S P - Q_c S P_c|| <= 2 ||S|| ||P -
+P_c||``). With the plain ``||dX|| <= 2 ||S|| ||dP||``, ``||dX/dk_u|| <= G_X = min(||S|| + 2 s, 2
+||S||) G_H / D_H`` over the whole cell (``||S|| G_H / D_H`` where ``S`` commutes with ``H``);
+the sector's separation (its smallest ``|eig|`` of ``V^+ S V`` at a corner: the distance of the
+sector's eigenvalues of ``X`` from 0 and from the other sector) is then at least ``D_X = min_c
+sep_c - 2 G_X r``, and ``lambda = h G_X / D_X`` bounds the turn of the sector projector over the
+cell exactly as the occupied projector's in :func:`~sweepcli.physics.certify.cell_lambda`.
+Assumed: the eigendecompositions at the mesh points are exact to rounding. Where the bound
+cannot be met within the budget the value is missing (``NOT_CONVERGED``); a projected-spin
+spectrum that comes within ``spin_gap_tol`` of 0 at a mesh point, or whose sign count changes,
+gives ``SECTOR_GAP_CLOSED``.
 """
 
 from __future__ import annotations
@@ -31,7 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..schema import Reason
-from .certify import certified_chern, hopping_bounds
+from .certify import certified_chern, hermitian_norm, hopping_bounds
 from .chern import START_CAP, WORK, bands_and_slope
 from .invariant_base import (
     CHERN_KMESH,
@@ -93,6 +98,15 @@ def prodan_sectors(vectors: np.ndarray, spin: np.ndarray
     return rotated[..., ndown:], rotated[..., :ndown], w
 
 
+def _spin_mixing(vectors: np.ndarray, spin: np.ndarray) -> np.ndarray:
+    """``||Q S P||`` for the occupied columns ``V`` ``(..., n, m)``: the square root of the
+    largest eigenvalue of ``(S V)^+ (S V) - (V^+ S V)^2 = (Q S V)^+ (Q S V)``."""
+    sv = spin @ vectors
+    a = np.conj(np.swapaxes(sv, -1, -2)) @ sv
+    b = np.conj(np.swapaxes(vectors, -1, -2)) @ sv
+    return np.sqrt(np.maximum(hermitian_norm(a - b @ b), 0.0))
+
+
 class _SectorGapClosed(Exception):
     """Raised inside the mesh refinement when the projected-spin spectrum is not gapped at 0."""
 
@@ -101,16 +115,18 @@ def sector_lambda(sep: np.ndarray, slope: np.ndarray, h: float, lip2: float,
                   spin_norm: float) -> np.ndarray:
     """Cell bound ``lambda`` of a projected-spin sector (module docstring).
 
-    ``sep``: ``(..., 2, 4)`` the sector's separation and the occupied gap at the corners;
-    ``slope``: ``(..., 4)`` the bound on ``||dH/dk_u||`` there; ``lip2``: the bound on
-    ``||d^2 H / dk_u dk_w||``; ``spin_norm``: ``||S||``. ``inf`` where a separation bound is not
-    positive.
+    ``sep``: ``(..., 3, 4)`` the sector's separation, the occupied gap and the spin mixing
+    ``||Q S P||`` at the corners; ``slope``: ``(..., 4)`` the bound on ``||dH/dk_u||`` there;
+    ``lip2``: the bound on ``||d^2 H / dk_u dk_w||``; ``spin_norm``: ``||S||``. ``inf`` where a
+    separation bound is not positive.
     """
     r = h / math.sqrt(2)
     d_h = np.min(sep[..., 1, :] - 2 * (slope * r + 0.5 * lip2 * r * r), axis=-1)
     g_h = np.max(slope, axis=-1) + lip2 * r
     with np.errstate(divide="ignore", invalid="ignore"):
-        g_x = np.where(d_h > 0, 2 * spin_norm * g_h / np.where(d_h > 0, d_h, 1.0), np.inf)
+        turn = np.where(d_h > 0, g_h / np.where(d_h > 0, d_h, 1.0), np.inf)
+        mixing = np.max(sep[..., 2, :], axis=-1) + 2 * spin_norm * r * turn
+        g_x = np.minimum(spin_norm + 2 * mixing, 2 * spin_norm) * turn
         d_x = np.min(sep[..., 0, :], axis=-1) - 2 * g_x * r
         ok = (d_h > 0) & (d_x > 0)
         return np.where(ok, h * g_x / np.where(ok, d_x, 1.0), np.inf)
@@ -167,7 +183,8 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
                 raise _SectorGapClosed
             ndown = nocc - nup_first[0]
             gap = e[..., nocc] - e[..., nocc - 1]
-            sep = [np.stack([np.min(np.abs(w), axis=-1, initial=np.inf), gap], axis=-1)
+            mixing = _spin_mixing(v[..., :nocc], spin)
+            sep = [np.stack([np.min(np.abs(w), axis=-1, initial=np.inf), gap, mixing], axis=-1)
                    for w in (eigs[..., ndown:], eigs[..., :ndown])]
             seen[key] = (up, down, sep[0], sep[1], slope)
         return seen[key]

@@ -510,3 +510,46 @@ def _without_operators(tb):
     from sweepcli.physics.lattice import TightBinding
 
     return TightBinding(tb.lattice_vectors, tb.orbital_positions, tb.onsite, tb.hoppings)
+
+
+@pytest.mark.parametrize("M, mix", [(1.0, 0.0), (1.0, 0.4), (3.5, 0.6), (-0.5, 0.3)])
+def test_sector_cell_bound_dominates_the_turn_of_the_sector_projector(M, mix):
+    # The proven consequence of a cell bound lambda < 1 (module docstring of certify): every
+    # point of the cell has ||P_up(k) - P_up(k_a)|| <= sqrt(2) lambda from a corner k_a.
+    # Reference: the up sector of P S P built in the test from numpy.linalg.eigh at 15 x 15
+    # points of each cell, against the bound from the corners' data alone.
+    from sweepcli.physics.certify import hopping_bounds
+    from sweepcli.physics.chern import bands_and_slope
+    from sweepcli.physics.spin_chern import _spin_mixing, sector_lambda
+
+    tb = model("bhz", M=M, mix=mix)
+    spin = tb.operators["spin"]
+    lip2 = hopping_bounds(tb.hoppings)[1]
+
+    def up_projector(k):
+        _, v = np.linalg.eigh(tb.bloch(k))
+        occ = v[..., :2]
+        w, x = np.linalg.eigh(np.conj(np.swapaxes(occ, -1, -2)) @ spin @ occ)
+        up = occ @ x[..., :, 1:]
+        return up @ np.conj(np.swapaxes(up, -1, -2)), w
+
+    rng = np.random.default_rng(11)
+    checked = 0
+    for _ in range(40):
+        h = rng.uniform(0.05, 0.4)
+        k0 = rng.uniform(0, 2 * np.pi, 2)
+        corners = k0 + h * np.array([[0, 0], [1, 0], [0, 1], [1, 1]], float)
+        e, v, slope = bands_and_slope(tb, corners)
+        _, w = up_projector(corners)
+        sep = np.stack([np.abs(w[:, 1]), e[:, 2] - e[:, 1], _spin_mixing(v[:, :, :2], spin)])
+        lam = float(sector_lambda(sep, slope, h, lip2, float(np.linalg.norm(spin, 2))))
+        if not lam < 0.5:
+            continue
+        checked += 1
+        t = np.linspace(0, 1, 15)
+        pts = k0 + h * np.stack(np.meshgrid(t, t, indexing="ij"), -1).reshape(-1, 2)
+        p, _ = up_projector(pts)
+        pc, _ = up_projector(corners)
+        turn = np.min(np.linalg.norm(p[:, None] - pc[None], 2, axis=(-2, -1)), axis=1)
+        assert np.max(turn) <= np.sqrt(2) * lam
+    assert checked >= 10
