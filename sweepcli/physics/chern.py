@@ -1,7 +1,7 @@
 """Chern numbers of gapped Bloch bands (Fukui-Hatsugai-Suzuki), with a convergence policy on
 the k-mesh.
 
-Pure functions. The kernels (:func:`fhs_chern`, :func:`fhs_chern_subdivided`) take batched
+Pure functions. The kernels (:func:`fhs_chern`, :func:`fhs_plaquette_phases`) take batched
 eigenvector arrays, so they serve any unitary or Hermitian family (Floquet eigenvectors and
 the projected-spin sectors of :mod:`sweepcli.physics.spin_chern` included);
 :func:`chern_number` builds those arrays from a :class:`TightBinding` and refines the mesh
@@ -19,37 +19,23 @@ link variable is ``U_mu(k) = det(V(k)^+ V(k + e_mu)) / |.|``, the plaquette phas
 ``C = -(1/2 pi) sum F`` (the phase of a closed overlap loop is minus the enclosed Berry
 flux).
 
-Convergence policy (Chern and spin Chern)
------------------------------------------
-The FHS sum is an integer on any mesh; on one too coarse for the gap it is usually a wrong 0.
-The first mesh has ``max(kmesh, ceil(3.2 / sqrt(gap / 2)))`` points per direction (a rule that
-was found sufficient in this project, common practice, no published source). On each mesh,
-plaquettes whose flux is at or above ``flux_tol`` are subdivided locally (below); the answer is
-accepted when every elementary plaquette of two successive meshes (each ~1.5x the previous) is
-below ``flux_tol`` and both give the same integer. Meshes are raised up to ``max_kmesh``;
-otherwise the result is missing with :attr:`Reason.NOT_CONVERGED`. A gap below ``gap_tol``
-gives :attr:`Reason.GAP_CLOSED` without any mesh being built.
+Mesh policy (Chern and spin Chern)
+----------------------------------
+The FHS sum is an integer on any mesh; on one too coarse for the gap it is usually a wrong 0,
+and no agreement between meshes shows which. :func:`chern_number` therefore stores an integer
+only when a bound proves it (:func:`~sweepcli.physics.certify.certified_chern`: a base mesh set
+by the gap rule, every plaquette that the cell bound from the local gap and ``||dH/dk||`` does
+not prove subdivided, within a work limit of ``WORK * max_kmesh**2`` points; otherwise the
+value is missing with :attr:`Reason.NOT_CONVERGED`). A gap below ``gap_tol`` gives
+:attr:`Reason.GAP_CLOSED` without any mesh being built.
 
-Why plaquettes are subdivided, and why that is as safe as a finer uniform mesh: near a
-transition a massive Dirac cone (mass ``m``, velocity ``v``) carries a Berry flux ``pi`` inside
-a disc of radius ~``m / v``. The gap rule asks for ``N ~ gap^-1/2``, which puts the whole
-disc inside one plaquette (or shares it among the plaquettes at one vertex): that plaquette's
-phase is ``pi (1 - O(m / (v dk)))``, above any useful bound, and a uniform mesh resolves it only
-for ``N ~ v / m ~ 1/gap`` (about 400-600 points for the Haldane demo's gaps ~0.01, beyond
-``max_kmesh``). The loop around a plaquette equals the product of the loops around its
-``s x s`` sub-plaquettes (every inner link is traversed once in each direction, and
-``U(k -> k') U(k' -> k) = 1`` after normalisation) times four thin cells, one per edge, between
-the direct link and the path of sub-links along that edge (the neighbouring plaquette still
-uses the direct link). The phases of these cells therefore add up to the plaquette's phase
-modulo ``2 pi``, and substituting them keeps the total an integer: it is the FHS sum of a
-conforming non-uniform mesh in which every link bounds exactly two cells. Where each of these
-cells is below ``flux_tol`` this resolves the flux that a single phase in ``(-pi, pi]`` cannot;
-the acceptance evidence (every elementary cell below the bound, two meshes agree) is
-unchanged, only the mesh is finer where the curvature is concentrated. Subdivision is by
-:data:`SUBDIVIDE` per level for at most :data:`SUBDIVIDE_LEVELS` levels, and only when at most
-:data:`MAX_HOT` plaquettes are above the bound (more means the whole mesh is too coarse, so the
-next mesh is taken).
-
+Why subdividing a plaquette keeps the sum an integer: the loop around a plaquette equals the
+product of the loops around its sub-plaquettes (every inner link is traversed once in each
+direction, and ``U(k -> k') U(k' -> k) = 1`` after normalisation) times four thin cells, one
+per edge, between the direct link and the path of sub-links along that edge (the neighbouring
+plaquette still uses the direct link). The phases of these cells add up to the plaquette's
+phase modulo ``2 pi`` (:func:`subdivided_plaquette_phases`): the total is the FHS sum of a
+conforming non-uniform mesh in which every link bounds exactly two cells.
 """
 
 from __future__ import annotations
@@ -71,18 +57,12 @@ from .invariant_base import (
     occupied_gap,
     stacked_det,
 )
-from .lattice import TightBinding, kmesh
+from .lattice import TightBinding
 
-#: Subdivision per direction of a plaquette above the flux bound, per level, and the number of
-#: levels (up to 4**4 = 256 times finer locally).
-SUBDIVIDE = 4
-SUBDIVIDE_LEVELS = 4
 #: Work limit of the proven mesh, in uniform meshes of ``max_kmesh`` points per direction.
 WORK = 2
 #: Largest base mesh the gap rule may ask for (the bound subdivides where needed).
 START_CAP = 48
-#: Most plaquettes of one mesh that are subdivided; a mesh with more is too coarse as a whole.
-MAX_HOT = 32
 
 
 def _unit(z: np.ndarray) -> np.ndarray:
@@ -212,57 +192,6 @@ def subdivided_plaquette_phases(vectors: np.ndarray) -> tuple[np.ndarray, np.nda
                       -fhs_edge_phases(v[..., :, -1, :, :]), -fhs_edge_phases(v[..., 0, :, :, :])],
                      axis=-1)
     return grid_plaquette_phases(v), edges
-
-
-def fhs_chern_subdivided(subspace: Callable[[np.ndarray], np.ndarray], n: int,
-                         flux_tol: float, vectors: np.ndarray | None = None
-                         ) -> tuple[int, float]:
-    """Chern number on an ``n x n`` mesh whose plaquettes above ``flux_tol`` are subdivided.
-
-    Parameters
-    ----------
-    subspace : callable
-        ``subspace(k)`` for reduced momenta ``k`` of shape ``(..., 2)`` returns orthonormal
-        columns ``(..., n_orb, m)`` spanning the subspace there.
-    n : points per direction of the periodic base mesh ``2 pi j / n``.
-    flux_tol : plaquettes with ``|F| >= flux_tol`` (rad) are divided into
-        :data:`SUBDIVIDE` x :data:`SUBDIVIDE` sub-plaquettes, recursively up to
-        :data:`SUBDIVIDE_LEVELS` levels, if the base mesh has at most :data:`MAX_HOT` of them.
-    vectors : (n, n, n_orb, m), optional
-        ``subspace`` on the base mesh, if already computed.
-
-    Returns
-    -------
-    chern : int
-        ``-(1/2 pi)`` times the sum of the phases of all elementary cells (sign of
-        :func:`fhs_chern`); a subdivided plaquette contributes its sub-plaquettes and edge cells
-        (:func:`subdivided_plaquette_phases`), which add up to its own phase modulo ``2 pi``.
-    max_flux : float
-        Largest ``|F|`` over the elementary cells (rad); at or above ``flux_tol`` when a
-        plaquette could not be resolved.
-    """
-    v = subspace(kmesh(n, 2)) if vectors is None else vectors
-    f = fhs_plaquette_phases(v)
-    hot = np.abs(f) >= flux_tol
-    if not hot.any() or hot.sum() > MAX_HOT:
-        return int(round(-f.sum() / (2 * np.pi))), float(np.max(np.abs(f)))
-    total = float(f[~hot].sum())
-    max_flux = float(np.max(np.abs(f[~hot]), initial=0.0))
-    corners = 2 * np.pi * np.argwhere(hot) / n  # (P, 2) lower corners of the hot plaquettes
-    h = 2 * np.pi / n
-    for _ in range(SUBDIVIDE_LEVELS):
-        t = h * np.arange(SUBDIVIDE + 1) / SUBDIVIDE
-        pts = corners[:, None, None, :] + np.stack(np.meshgrid(t, t, indexing="ij"), axis=-1)
-        sub, edges = subdivided_plaquette_phases(subspace(pts))  # (P, s, s), (P, 4)
-        hot = np.abs(sub) >= flux_tol
-        total += float(sub[~hot].sum() + edges.sum())
-        max_flux = max(max_flux, float(np.max(np.abs(sub[~hot]), initial=0.0)),
-                       float(np.max(np.abs(edges))))
-        corners, h = pts[:, :-1, :-1][hot], h / SUBDIVIDE
-        if not hot.any():
-            return int(round(-total / (2 * np.pi))), max_flux
-    # Unresolved at the finest level: the uniform answer, with a flux that fails the bound.
-    return int(round(-f.sum() / (2 * np.pi))), max(max_flux, float(np.max(np.abs(sub))))
 
 
 def static_subspace(tb: TightBinding, nocc: int

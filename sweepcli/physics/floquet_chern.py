@@ -432,12 +432,13 @@ class RudnerWinding:
 
     Attributes
     ----------
-    w_0, w_pi : int or None (missing when that gap is closed or the integral did not settle).
+    w_0, w_pi : int or None (both missing unless both gaps are open and a level matched the
+        proven Chern number, :func:`rudner_winding`).
     raw_0, raw_pi : the raw integrals on the last level (nan if not computed).
     residue : largest distance of a computed raw value from its integer (nan if none).
-    kmesh : last k-mesh used.
-    reason : Reason (GAP_CLOSED if either gap is closed, NOT_CONVERGED if a computed value did
-        not settle; the other winding is still reported when it is well defined).
+    kmesh : last k-mesh used (None if no level was computed).
+    reason : Reason (GAP_CLOSED if either gap is closed, NOT_CONVERGED if no level settled
+        the pair or the Chern number was not proven).
     reason_0, reason_pi : the reason of each winding alone (OK where it is given).
     """
 
@@ -457,22 +458,22 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
                    chern: FloquetChern | None = None) -> RudnerWinding:
     """``W_0`` and ``W_pi`` of a 2D drive (see :func:`rudner_integral`), raised until settled.
 
-    Levels ``RUDNER_LEVELS`` with k-mesh ``>= kmesh_n`` and ``<= max_kmesh`` (every one of them:
-    a single level may settle the value) are tried in turn. When both gaps are open the
-    windings' difference is a Floquet band's Chern number, ``W_pi - W_0 = C_upper``
-    (Rudner et al. 2013), which :func:`floquet_chern` proves (``chern``, computed when not
-    given): a level is accepted when both raw integrals are within ``residue_tol`` of integers
-    whose difference is that proven number; a proven difference that no level matches leaves
-    both windings missing (``NOT_CONVERGED``). Where the Chern number could not be proven within
-    its budget or one gap is closed, there is no such check,
-    and a winding is accepted when two successive levels round to the same integer within
-    ``residue_tol``.
+    Stored only when both gaps are open: then the windings' difference is a Floquet band's
+    Chern number, ``W_pi - W_0 = C_upper`` (Rudner et al. 2013), which :func:`floquet_chern`
+    proves (``chern``, computed when not given). Levels ``RUDNER_LEVELS`` with k-mesh
+    ``>= kmesh_n`` and ``<= max_kmesh`` are tried in turn (every one of them: a single level
+    may settle the value); a level is accepted when both raw integrals are within
+    ``residue_tol`` of integers whose difference is that proven number. A proven difference
+    that no level matches leaves both windings missing (``NOT_CONVERGED``). Where one gap is
+    closed, or the Chern number could not be proven within its budget, nothing anchors the
+    integral: the open gaps' windings are missing (``NOT_CONVERGED``; the closed gap's
+    ``GAP_CLOSED``) rather than accepted because two levels agree.
 
-    Proven and assumed: the difference ``W_pi - W_0`` of a pair stored with a proven Chern
-    number is proven (the bound of :mod:`sweepcli.physics.certify`); the common part of both
-    windings, and every winding stored without a proven Chern number, rests on the quadrature
-    of :func:`rudner_integral` (spectral in k and t, its distance from an integer the measure
-    of convergence), for which no a-priori bound is computed.
+    Proven and assumed: the difference ``W_pi - W_0`` of a stored pair is proven (the bound of
+    :mod:`sweepcli.physics.certify`); their common part rests on the quadrature of
+    :func:`rudner_integral` (spectral in k and t, its distance from an integer the measure of
+    convergence, checked against the proven difference at the same level), for which no
+    a-priori bound is computed.
     """
     if not gaps.converged:
         return RudnerWinding(None, None, math.nan, math.nan, math.nan, None,
@@ -492,31 +493,24 @@ def rudner_winding(drive: Drive, gaps: FloquetGaps, *, gap_tol: float = 1e-6,
         difference = chern.upper
     levels = [lv for lv in RUDNER_LEVELS if kmesh_n <= lv[0] <= max_kmesh] or \
         [(max(kmesh_n, 4), RUDNER_LEVELS[0][1])]
-    prev = None
     raw = (math.nan, math.nan)
     n_used = None
-    settled = [False, False]
-    for n, q in levels:
+    settled = False
+    for n, q in levels if difference is not None else ():
         raw = rudner_integral(drive, n, q, slices=slices)
         n_used = n
         rounded = tuple(int(round(r)) for r in raw)
         res = [abs(r - i) for r, i in zip(raw, rounded)]
-        if difference is not None:
-            ok = res[0] < residue_tol and res[1] < residue_tol and \
-                rounded[1] - rounded[0] == difference
-            settled = [ok, ok]
-        elif prev is not None:
-            settled = [open_[g] and prev[g] == rounded[g] and res[g] < residue_tol
-                       for g in (0, 1)]
-        if all(settled[g] or not open_[g] for g in (0, 1)):
+        settled = res[0] < residue_tol and res[1] < residue_tol and \
+            rounded[1] - rounded[0] == difference
+        if settled:
             break
-        prev = rounded
-    vals = [int(round(raw[g])) if (open_[g] and settled[g]) else None for g in (0, 1)]
-    residues = [abs(raw[g] - round(raw[g])) for g in (0, 1) if open_[g]]
-    if any(open_[g] and vals[g] is None for g in (0, 1)):
-        reason = Reason.NOT_CONVERGED
-    elif not all(open_):
+    vals = [int(round(raw[g])) if settled else None for g in (0, 1)]
+    residues = [abs(raw[g] - round(raw[g])) for g in (0, 1) if not math.isnan(raw[g])]
+    if not all(open_):
         reason = Reason.GAP_CLOSED
+    elif not settled:
+        reason = Reason.NOT_CONVERGED
     else:
         reason = Reason.OK
     raw_out = [raw[g] if open_[g] else math.nan for g in (0, 1)]

@@ -12,17 +12,15 @@ Chern numbers (static and Floquet) and the chiral windings are proven on adaptiv
 :func:`gap_rule_kmesh`, at least ``CHERN_KMESH``), and every plaquette or step whose bound
 (from the local gap and the Lipschitz constants of ``H(k)`` or ``U(k)``) does not prove the
 integer is subdivided, within a budget of points set by ``max_kmesh``; where the budget runs
-out the value is missing with :attr:`Reason.NOT_CONVERGED`. The walk of uniform meshes
-(:func:`mesh_sequence`, :func:`walk_meshes`: accept when two successive meshes are below the
-tolerance and agree) proves nothing and is no longer the policy of any invariant (the spin
-Chern number of :mod:`sweepcli.physics.spin_chern` is proven too, with the bound of its
-projected-spin sectors). A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
+out the value is missing with :attr:`Reason.NOT_CONVERGED`. Agreement between two meshes
+proves nothing and is not the policy of any invariant (the spin Chern number of
+:mod:`sweepcli.physics.spin_chern` is proven too, with the bound of its projected-spin
+sectors). A gap below ``gap_tol`` gives :attr:`Reason.GAP_CLOSED`.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -81,37 +79,8 @@ def gap_rule_kmesh(gap: float) -> int:
     return int(math.ceil(3.2 / math.sqrt(gap / 2.0)))
 
 
-def mesh_sequence(start: int, max_kmesh: int, growth: float) -> Iterator[int]:
-    """``start, ~growth*start, ...`` strictly increasing, ending with ``max_kmesh`` at most."""
-    n = start
-    while n <= max_kmesh:
-        yield n
-        if n == max_kmesh:
-            return
-        n = min(max(int(math.ceil(growth * n)), n + 1), max_kmesh)
-
-
 def occupied_gap(tb: TightBinding, nocc: int, gap: float | None) -> float:
     """``gap`` if given, else the direct gap above ``nocc`` bands on a :data:`GAP_KMESH` mesh."""
     if not 0 < nocc < tb.norb:
         raise ValueError(f"an invariant of {nocc} occupied bands needs 0 < nocc < {tb.norb}")
     return band_gap(tb, nocc, GAP_KMESH).gap if gap is None else gap
-
-
-def walk_meshes(measure, start: int, max_kmesh: int, growth: float, tol: float):
-    """Walk up the meshes until two successive ones are below ``tol`` and agree.
-
-    ``measure(n) -> (values tuple, max_step)``. Returns ``(values or None, last n or None,
-    last max_step, reason)``.
-    """
-    prev = None
-    last_n, last_step = None, math.nan
-    for n in mesh_sequence(start, max_kmesh, growth):
-        values, step = measure(n)
-        last_n, last_step = n, step
-        ok = step < tol
-        if ok and prev is not None and prev == values:
-            return values, n, step, Reason.OK
-        prev = values if ok else None
-    return None, last_n, last_step, Reason.NOT_CONVERGED
-

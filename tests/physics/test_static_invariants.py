@@ -24,7 +24,6 @@ from sweepcli.physics.invariant_base import (
     FLUX_TOL,
     GROWTH,
     gap_rule_kmesh,
-    mesh_sequence,
 )
 from sweepcli.physics.lattice import kmesh, pauli
 from sweepcli.physics.measurements import MEASUREMENTS, quantities_of
@@ -260,8 +259,12 @@ def _uniform_rule_fails(tb, gap):
     # of every mesh of the walk is at or above the flux bound (or two resolved meshes never
     # follow each other), so it could only say NOT_CONVERGED.
     prev_ok = False
-    for n in mesh_sequence(max(CHERN_KMESH, gap_rule_kmesh(gap)),
-                               CHERN_MAX_KMESH, GROWTH):
+    n = max(CHERN_KMESH, gap_rule_kmesh(gap))
+    sizes = []
+    while n < CHERN_MAX_KMESH:
+        sizes.append(n)
+        n = max(int(np.ceil(GROWTH * n)), n + 1)
+    for n in sizes + [CHERN_MAX_KMESH]:
         f = fhs_plaquette_phases(np.linalg.eigh(tb.bloch(kmesh(n, 2)))[1][..., :1])
         ok = np.max(np.abs(f)) < FLUX_TOL
         if ok and prev_ok:
