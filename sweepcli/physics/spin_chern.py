@@ -37,7 +37,7 @@ import numpy as np
 
 from ..schema import Reason
 from .certify import certified_chern, hermitian_norm, hopping_bounds
-from .chern import START_CAP, WORK, bands_and_slope
+from .chern import START_CAP, WORK, bands_and_slope, chern_number
 from .invariant_base import (
     CHERN_KMESH,
     CHERN_MAX_KMESH,
@@ -60,7 +60,8 @@ class SpinChernResult:
     z2 : ``spin_chern mod 2`` when ``spin_chern`` is an integer, else ``None``; meaningful as
         the Kane-Mele index only with time-reversal symmetry (``c_up + c_down = 0``).
     spin_gap : ``min_k min |eig(P S P)|`` over the occupied space on the finest mesh
-        (dimensionless, 0..1; nan if no mesh was built).
+        (dimensionless, 0..1; nan if no mesh was built); for a conserved spin, the smallest
+        ``|eig(S)|``.
     kmesh, max_flux, reason : as in :class:`InvariantResult`.
     """
 
@@ -96,6 +97,67 @@ def prodan_sectors(vectors: np.ndarray, spin: np.ndarray
     ndown = int(np.sum(w.reshape(-1, w.shape[-1])[0] < 0))
     rotated = vectors @ x
     return rotated[..., ndown:], rotated[..., :ndown], w
+
+
+#: Largest commutator ``||[S, T]||`` (relative to ``||S|| ||T||``) of a conserved spin.
+CONSERVED_TOL = 1e-12
+
+
+def _conserved_sectors(tb: TightBinding, spin: np.ndarray
+                       ) -> tuple[TightBinding, TightBinding, float] | None:
+    """The model restricted to the positive and negative eigenspaces of ``spin``, and the
+    smallest ``|eig(spin)|``, when ``spin`` commutes with the onsite block and every hopping and
+    has no zero eigenvalue; else ``None``. The restricted models keep the lattice; their
+    orbital positions are set to 0, which changes no Chern number (a gauge)."""
+    scale = float(np.linalg.norm(spin, 2))
+    for t in (tb.onsite, *tb.hoppings.values()):
+        if np.linalg.norm(spin @ t - t @ spin, 2) > CONSERVED_TOL * scale * max(
+                float(np.linalg.norm(t, 2)), 1.0):
+            return None
+    s, w = np.linalg.eigh(spin)
+    if np.any(np.abs(s) <= CONSERVED_TOL * scale):
+        return None
+
+    def restrict(cols: np.ndarray) -> TightBinding:
+        wc = w[:, cols]
+        wh = np.conj(wc.T)
+        return TightBinding(tb.lattice_vectors, np.zeros((wc.shape[1], tb.dim)),
+                            wh @ tb.onsite @ wc, {r: wh @ t @ wc for r, t in tb.hoppings.items()})
+    return restrict(s > 0), restrict(s < 0), float(np.min(np.abs(s)))
+
+
+def _conserved_spin_chern(tb: TightBinding, nocc: int,
+                          conserved: tuple[TightBinding, TightBinding, float], *, gap: float,
+                          spin_gap_tol: float, kmesh_n: int, max_kmesh: int, flux_tol: float
+                          ) -> SpinChernResult:
+    """:func:`spin_chern_number` for a spin that commutes with H (its docstring). Each
+    restricted model's spectrum is part of H's at every k, so its direct gap at the filling is
+    at least H's and the number of its occupied bands is the same at every k (counted at k =
+    0 against the middle of H's gap there)."""
+    up, down, spin_gap = conserved
+    if spin_gap < spin_gap_tol:
+        return SpinChernResult(math.nan, None, None, None, spin_gap, None, math.nan,
+                               Reason.SECTOR_GAP_CLOSED)
+    e = np.linalg.eigvalsh(tb.bloch(np.zeros(2)))
+    middle = (e[nocc - 1] + e[nocc]) / 2
+    values, n_used, flux = [], None, 0.0
+    for part in (up, down):
+        m = int(np.sum(np.linalg.eigvalsh(part.bloch(np.zeros(2))) < middle))
+        if m in (0, part.norb):
+            values.append(0)
+            continue
+        r = chern_number(part, m, gap=gap, kmesh_n=kmesh_n, max_kmesh=max_kmesh,
+                         flux_tol=flux_tol)
+        n_used = max(n_used or 0, r.kmesh or 0)
+        flux = max(flux, r.max_step)
+        if r.value is None:
+            return SpinChernResult(math.nan, None, None, None, spin_gap, n_used, flux,
+                                   Reason.NOT_CONVERGED)
+        values.append(r.value)
+    c_up, c_dn = values
+    cs = (c_up - c_dn) / 2
+    z2 = int(cs) % 2 if cs == int(cs) else None
+    return SpinChernResult(cs, c_up, c_dn, z2, spin_gap, n_used, flux, Reason.OK)
 
 
 def _spin_mixing(vectors: np.ndarray, spin: np.ndarray) -> np.ndarray:
@@ -144,6 +206,12 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     tb : 2D model.
     nocc : number of occupied bands.
     spin : (n, n) Hermitian cell operator (e.g. ``tau_0 sigma_z``); need not commute with H.
+        Where it commutes with every term of H (and has no zero eigenvalue), ``P S P`` keeps
+        the eigenvalues of ``S`` and the sectors are the occupied bands of H within the
+        positive and negative eigenspaces of ``S``: their Chern numbers are those of the two
+        restricted models (:func:`_conserved_sectors`), proven by
+        :func:`~sweepcli.physics.chern.chern_number`, which costs far less than the sector
+        bound.
     gap, gap_tol, kmesh_n, max_kmesh, flux_tol : as in :func:`chern_number` (the base mesh
         from the gap rule, the work limit ``WORK * max_kmesh**2`` points per sector).
     spin_gap_tol : the spin gap ``min |eig(P S P)|`` (dimensionless) below which the two
@@ -163,6 +231,10 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     if not gap >= gap_tol:
         return SpinChernResult(math.nan, None, None, None, math.nan, None, math.nan,
                                Reason.GAP_CLOSED)
+    conserved = _conserved_sectors(tb, spin)
+    if conserved is not None:
+        return _conserved_spin_chern(tb, nocc, conserved, gap=gap, spin_gap_tol=spin_gap_tol,
+                                     kmesh_n=kmesh_n, max_kmesh=max_kmesh, flux_tol=flux_tol)
     lip2 = hopping_bounds(tb.hoppings)[1]
     spin_norm = float(np.linalg.norm(spin, 2))
     spin_gap = [math.inf]

@@ -556,3 +556,28 @@ def test_sector_cell_bound_dominates_the_turn_of_the_sector_projector(M, mix):
         turn = np.min(np.linalg.norm(p[:, None] - pc[None], 2, axis=(-2, -1)), axis=1)
         assert np.max(turn) <= np.sqrt(2) * lam
     assert checked >= 10
+
+
+@pytest.mark.parametrize("M", [-1.0, 0.3, 1.0, 3.0, 5.0, 7.5])
+@pytest.mark.parametrize("weights", [(1.0, 1.0), (1.0, 2.0)])
+def test_conserved_spin_path_equals_the_sector_bound_path(monkeypatch, M, weights):
+    # With mix = 0 the spin tau_0 sigma_z (here weighted: +a on spin up, -b on spin down)
+    # commutes with the BHZ Hamiltonian, and the spin Chern number is taken from the two
+    # restricted models. Reference: the general projected-spin path of the same module forced
+    # by hiding the commutation, and the spin-up degree of d_hat (Bernevig, Hughes and Zhang
+    # 2006) as in test_bhz_spin_chern.
+    import sweepcli.physics.spin_chern as sc
+
+    a, b = weights
+    tb = model("bhz", M=M)
+    spin = np.kron(np.eye(2), np.diag([a, -b])).astype(complex)
+    assert np.allclose(spin, np.diag(np.diag(spin)))
+    fast = spin_chern_number(tb, 2, spin)
+    assert sc._conserved_sectors(tb, spin) is not None
+    monkeypatch.setattr(sc, "_conserved_sectors", lambda tb, spin: None)
+    general = spin_chern_number(tb, 2, spin)
+    assert fast.reason == general.reason == Reason.OK
+    assert (fast.spin_chern, fast.c_up, fast.c_down) == (general.spin_chern, general.c_up,
+                                                          general.c_down)
+    assert fast.spin_chern == round(bhz_up_degree(M))
+    assert fast.spin_gap == pytest.approx(min(a, b))
