@@ -2,7 +2,7 @@
 is overhead, and peak memory against the number of grid points.
 
     python benchmarks/bench_runner.py [--grid 50x20] [--workers 1,2] [--repeat 2]
-                                      [--job jobs/driven-corners.toml] [--memory]
+                                      [--job jobs/a.toml,jobs/b.toml] [--compare] [--memory]
                                       [--startup-job JOB] [--no-startup] [--no-scaling]
 
 Prints
@@ -15,7 +15,17 @@ Prints
   of wall time ``1 - bare / (N x wall)`` (what the runner, store, process start and idle
   workers cost; on a machine with fewer free cores than N workers it also holds the waiting),
   and of CPU time ``1 - bare CPU / (workers' + parent's CPU)``, which a loaded machine leaves
-  alone; the first run on the most workers, which starts the pool, is shown apart;
+  alone; the first run on the most workers, which starts the pool, is shown apart; with
+  ``--compare``, each count above 1 worker is run before (chunks of a ramp of 1, 2, 4, ...
+  points whatever they cost) and after (once a cost is measured, no chunk shorter than
+  ``MIN_TASK_SECONDS``), alternating; several comma-separated ``--job`` files end with one
+  line of their speed-ups from 1 to the second worker count (before -> after with
+  ``--compare``); with ``--split``, the bare loop split over N processes that start together
+  (no runner; a static split, so its own wall time may suffer from imbalance): where all cores
+  compute, each runs slower than one alone (6-15 % more CPU for the same points was measured on
+  a shared 2-core machine), so ``bare wall x slowdown / N`` (slowdown = split CPU / bare CPU),
+  not ``bare wall / N``, is what N workers can reach, and ``1 - reachable / N-worker wall`` is
+  the runner's own share;
 * (unless ``--no-startup``) one ``sweepcli run`` as the command line does it, in a fresh interpreter
   each, before (the pool started by the first task, fixed strided chunks) and after (the pool
   started in the background while the parent imports and reads the job, chunks of 1, 2, 4, ...
@@ -100,6 +110,42 @@ def bare(job) -> tuple[float, float]:
     return time.perf_counter() - w0, time.process_time() - c0
 
 
+# The bare loop split over N processes that start together (argv = job, i, N, start time):
+# points i::N and predicted lines i::N, no runner. Wall time of the slowest is what N workers
+# could reach on this machine, where two busy cores each run slower than one alone.
+SPLIT = """
+import os, sys, time, json
+for v in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(v, "1")
+from sweepcli.jobfile import load_job
+from sweepcli.run.predict import predict_lines, prediction_lines
+from sweepcli.run.worker import evaluate_point
+job = load_job(sys.argv[1])
+i, n, start = int(sys.argv[2]), int(sys.argv[3]), float(sys.argv[4])
+lines = prediction_lines(job)[i::n] if job.predict is not None else []
+evaluate_point(job, i)  # first-use imports and caches, before the clock
+time.sleep(max(0.0, start - time.time()))
+w0, c0 = time.perf_counter(), time.process_time()
+for k in range(i, job.size, n):
+    evaluate_point(job, k)
+if lines:
+    predict_lines(job, lines)
+print(json.dumps([time.perf_counter() - w0, time.process_time() - c0]))
+"""
+
+
+def split_bare(job, n: int) -> tuple[float, float]:
+    """Wall time (the slowest) and summed CPU of the bare loop split over ``n`` processes."""
+    import json
+
+    start = time.time() + 3.0  # after every process has imported and read the job
+    procs = [subprocess.Popen([sys.executable, "-c", SPLIT, job.path, str(i), str(n),
+                               str(start)], stdout=subprocess.PIPE, text=True)
+             for i in range(n)]
+    out = [json.loads(p.communicate()[0].strip().splitlines()[-1]) for p in procs]
+    return max(w for w, _ in out), sum(c for _, c in out)
+
+
 def timed_run(job, workers: int) -> tuple[float, float, float]:
     """Wall time, workers' CPU and the parent's CPU of a run (points and predictions)."""
     results = results_for_job(job)
@@ -115,34 +161,68 @@ def timed_run(job, workers: int) -> tuple[float, float, float]:
     return wall, cpu_of_children() - k0, parent
 
 
-def scaling(job, label: str, counts: list[int], repeat: int) -> None:
+def timed_mode(job, workers: int, mode: str) -> tuple[float, float, float]:
+    """:func:`timed_run` with the chunking of ``mode``: "after" (this version: once a cost is
+    known, no chunk shorter than MIN_TASK_SECONDS) or "before" (the ramp 1, 2, 4, ... points
+    whatever they cost, as the previous version)."""
+    from sweepcli.run import chunking
+
+    chunking.FLOOR = mode != "before"
+    try:
+        return timed_run(job, workers)
+    finally:
+        chunking.FLOOR = True
+
+
+def scaling(job, label: str, counts: list[int], repeat: int, compare: bool = False,
+            split: bool = False) -> dict[tuple[int, str], float]:
+    """Print the scaling table of ``job``; returns the best wall time per (worker count, mode);
+    with ``compare``, each count above 1 runs before and after (alternating), else after; with
+    ``split``, also the bare loop split over that many processes (:func:`split_bare`)."""
     from threadpoolctl import threadpool_limits
 
-    runs: dict[str, list] = {"bare": []}
+    rows = [(n, m) for n in counts for m in (("before", "after") if compare and n > 1
+                                             else ("after",))]
+    runs: dict = {"bare": []}
     cold = timed_run(job, max(counts)) if max(counts) > 1 else None  # starts the pool
     for _ in range(repeat):
         with threadpool_limits(limits=1, user_api="blas"):
             runs["bare"].append(bare(job))
+        for row in rows:
+            runs.setdefault(row, []).append(timed_mode(job, *row))
         for n in counts:
-            runs.setdefault(n, []).append(timed_run(job, n))
+            if split and n > 1:
+                runs.setdefault(("split", n), []).append(split_bare(job, n))
     b_wall, b_cpu = min(runs["bare"])
     print(f"{label}: {job.size} points"
           + (f" + {Predictions(job).total} predicted lines" if job.predict is not None else "")
           + f"; best of {repeat}")
     print(f"  bare loop (no runner): wall {b_wall:.2f} s, CPU {b_cpu:.2f} s")
-    print("  workers    wall   speed-up  efficiency  worker CPU  CPU ratio  parent CPU  "
+    print("  workers           wall   speed-up  efficiency  worker CPU  CPU ratio  parent CPU  "
           "overhead (wall, CPU)")
-    base_wall, base_cpu = min(runs[counts[0]])[:2] if counts[0] == 1 else (None, None)
-    for n in counts:
-        wall, cpu, parent = min(runs[n])
+    base_wall, base_cpu = min(runs[rows[0]])[:2] if counts[0] == 1 else (None, None)
+    for n, mode in rows:
+        wall, cpu, parent = min(runs[n, mode])
         speed = f"{base_wall / wall:6.2f}x" if base_wall else "     -"
         eff = f"{base_wall / wall / n:9.0%}" if base_wall else "        -"
         ratio = f"{cpu / base_cpu:8.2f}" if base_cpu else "       -"
-        print(f"  {n:>7} {wall:7.2f} s {speed}   {eff}  {cpu:8.2f} s  {ratio}   "
+        name = f"{n} {mode}" if compare and n > 1 else str(n)
+        print(f"  {name:>14} {wall:7.2f} s {speed}   {eff}  {cpu:8.2f} s  {ratio}   "
               f"{parent:7.2f} s  {1 - b_wall / (n * wall):7.1%} {1 - b_cpu / (cpu + parent):7.1%}")
+    for n in counts:
+        if split and n > 1:
+            s_wall, s_cpu = min(runs["split", n])
+            best = min(runs[rows[-1]] if rows[-1][0] == n else runs[n, "after"])[0]
+            slow = s_cpu / b_cpu
+            print(f"  bare loop split over {n} processes started together: wall {s_wall:.2f} s, "
+                  f"CPU {s_cpu:.2f} s = {slow:.2f} x the bare CPU (each core's slowdown when "
+                  f"{n} compute); reachable wall {b_wall * slow / n:.2f} s, speed-up "
+                  f"{n / slow:.2f}x; the runner's own share of {n}-worker wall "
+                  f"{1 - b_wall * slow / (n * best):.1%}")
     if cold is not None:
         print(f"  first run on {max(counts)} workers, starting the pool: wall {cold[0]:.2f} s "
-              f"(best warm {min(runs[max(counts)])[0]:.2f} s)")
+              f"(best warm {min(runs[rows[-1]])[0]:.2f} s)")
+    return {row: min(runs[row])[0] for row in rows}
 
 
 DRIVEN_CHAIN = Path(__file__).resolve().parent.parent / "jobs" / "driven-chain.toml"
@@ -249,7 +329,8 @@ def memory(tmp: Path) -> None:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--grid", default="50x20", help="m x t points of the QWZ sweep")
-    ap.add_argument("--job", type=Path, help="a job file to time instead of the QWZ sweep")
+    ap.add_argument("--job", help="job files to time instead of the QWZ sweep, comma-separated "
+                    "(several: a summary line of their speed-ups at the end)")
     ap.add_argument("--workers", default="1,2", help="worker counts, comma-separated")
     ap.add_argument("--repeat", type=int, default=2)
     ap.add_argument("--memory", action="store_true", help="also the peak-memory figures")
@@ -258,18 +339,34 @@ def main() -> None:
     ap.add_argument("--startup-job", type=Path,
                     help="job of the start-up figures (default: a 12 x 8 driven chain)")
     ap.add_argument("--no-scaling", action="store_true", help="skip the scaling table")
+    ap.add_argument("--split", action="store_true",
+                    help="scaling table: also the bare loop split over N processes at once")
+    ap.add_argument("--compare", action="store_true",
+                    help="scaling table: each count above 1 worker before and after the "
+                         "chunk floor (alternating)")
     args = ap.parse_args()
     tmp = Path(tempfile.mkdtemp())
     counts = [int(c) for c in args.workers.split(",")]
     if args.job is not None:
-        job, label = load_job(args.job), str(args.job)
+        jobs = [(load_job(Path(f)), f) for f in args.job.split(",") if f]
     else:
         nm, nt = (int(x) for x in args.grid.lower().split("x"))
         path = tmp / "qwz.toml"
         path.write_text(QWZ.format(nm=nm, nt=nt, out=tmp / "q.h5"))
-        job, label = load_job(path), f"QWZ gap + chern + [predict], {nm} x {nt}"
+        jobs = [(load_job(path), f"QWZ gap + chern + [predict], {nm} x {nt}")]
     if not args.no_scaling:
-        scaling(job, label, counts, args.repeat)
+        walls = {label: scaling(job, label, counts, args.repeat, args.compare, args.split)
+                 for job, label in jobs}
+        if len(jobs) > 1 and counts[0] == 1 and len(counts) > 1:
+            n = counts[1]
+
+            def speed(w: dict) -> str:
+                after = f"{w[1, 'after'] / w[n, 'after']:.2f}x"
+                return f"{w[1, 'after'] / w[n, 'before']:.2f}x -> {after}" if args.compare \
+                    else after
+
+            print(f"speed-up 1 -> {n} workers{' (before -> after)' if args.compare else ''}: "
+                  + "; ".join(f"{Path(label).stem} {speed(w)}" for label, w in walls.items()))
     if not args.no_startup:
         startup(args.startup_job or cut_down(DRIVEN_CHAIN, tmp), tmp, max(max(counts), 2),
                 args.repeat)

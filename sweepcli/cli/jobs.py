@@ -77,8 +77,11 @@ def run(ctx: typer.Context,
     if verbose and quiet(ctx):
         typer.echo("error: give --quiet or --verbose, not both.", err=True)
         raise typer.Exit(EXIT_ERROR)
+    import time
+
     from ..run.executors import JoblibExecutor, WorkersLost
 
+    started = time.monotonic()  # the reported time counts from here (pool start included)
     # The worker pool starts before the sweep code is imported here (about a second).
     pool = (JoblibExecutor(workers).warm() if workers > 1 and not (scheduler or dask_cluster)
             and not (force and resume) else None)
@@ -88,7 +91,8 @@ def run(ctx: typer.Context,
                          shard=shard, chunk_size=chunk_size, checkpoint_every=checkpoint_every,
                          progress=progress and not quiet(ctx), scheduler=scheduler,
                          dask_cluster=dask_cluster, lost_timeout=dask_lost_timeout,
-                         heartbeat=0.0 if quiet(ctx) else heartbeat, executor=pool)
+                         heartbeat=0.0 if quiet(ctx) else heartbeat, executor=pool,
+                         started=started)
     loud = verbose or (ctx.obj is not None and ctx.obj.verbose)
     say = (lambda line: typer.echo(line, err=True)) if loud else None
     try:

@@ -7,6 +7,7 @@ that order is cut into chunks depends on the run:
 
 * the first chunks ramp up geometrically (``workers`` chunks of 1 point, then of 2, 4, ...), so
   the first results, and the first measured cost, come after one point rather than a chunk;
+  once a cost is known, no chunk is planned shorter than :data:`MIN_TASK_SECONDS`;
 * once a cost per point is known (the mean ``point_seconds`` of the points finished so far in
   this run, or stored in the file a run resumes), each chunk is sized to take
   ``remaining work / (4 x workers)`` seconds, between :data:`MIN_TASK_SECONDS` and
@@ -32,6 +33,9 @@ import numpy as np
 
 MIN_TASK_SECONDS = 0.1  # long against a task's own overhead (a few ms: the job, 4 KB, and results)
 MAX_TASK_SECONDS = 10.0  # short enough for steady progress and little lost on an interruption
+# Whether a measured cost lifts ramp chunks to MIN_TASK_SECONDS (False: the ramp of earlier
+# versions, 1, 2, 4, ... points whatever they cost; benchmarks/bench_runner.py times both).
+FLOOR = True
 
 
 def fixed_size(n_points: int, workers: int) -> int:
@@ -84,14 +88,17 @@ class CostMeter:
 def chunk_size(k: int, left: int, workers: int, per_point: float | None, fixed: int) -> int:
     """Points of chunk ``k`` (0-based) when ``left`` points are still to hand out: the ramp
     ``2 ** (k // workers)``, capped by ``fixed`` without a cost, and by the guided size with a
-    cost ``per_point`` (seconds)."""
+    cost ``per_point`` (seconds). With a cost, no chunk is planned shorter than
+    :data:`MIN_TASK_SECONDS` (unless fewer points are left): the ramp is for the first results
+    and the first cost, and once the cost is known, chunks of a few cheap points would cost
+    the workers a round trip each (a few ms, measured) for little work."""
     ramp = 1 << min(k // max(1, workers), 30)
     if per_point is None or per_point <= 0:
-        size = fixed
-    else:
-        target = min(max(left * per_point / (4 * workers), MIN_TASK_SECONDS), MAX_TASK_SECONDS)
-        size = max(1, round(target / per_point))
-    return max(1, min(ramp, size, left))
+        return max(1, min(ramp, fixed, left))
+    target = min(max(left * per_point / (4 * workers), MIN_TASK_SECONDS), MAX_TASK_SECONDS)
+    size = max(1, round(target / per_point))
+    least = min(math.ceil(MIN_TASK_SECONDS / per_point), size) if FLOOR else 1
+    return max(1, min(max(min(ramp, size), least), left))
 
 
 def plan_chunks(todo: np.ndarray, workers: int, meter: CostMeter | None = None, *,

@@ -78,9 +78,20 @@ def test_every_point_once_and_the_ramp(workers):
     drawn, _ = simulate(np.arange(n), workers, cost)
     flat = np.concatenate(drawn)
     assert sorted(flat.tolist()) == list(range(n))
-    # Before any chunk has finished, the sizes ramp 1, ..., 1, 2, ..., 2 (workers each).
+    # Before any chunk has finished, the first chunks are of 1 point (workers each).
     assert [len(c) for c in drawn[:workers]] == [1] * workers
-    assert all(len(c) <= 2 for c in drawn[workers:2 * workers])
+    # Once the cost is known (the simulation draws a chunk before it learns the finished one:
+    # from chunk workers + 1 on), no chunk but the last is planned below MIN_TASK_SECONDS.
+    assert all(len(c) * 0.01 >= MIN_TASK_SECONDS - 1e-12 for c in drawn[workers + 1:-1])
+
+
+def test_the_ramp_before_a_cost_is_known():
+    # Chunks drawn before any finishes (as the executor draws a few ahead): 1, 2, 4, ...
+    # points, `workers` of each, up to the fixed size.
+    meter = CostMeter()
+    sizes = [len(c) for c in plan_chunks(np.arange(300), 2, meter, fixed=16)]
+    assert sizes[:10] == [1, 1, 2, 2, 4, 4, 8, 8, 16, 16]
+    assert sum(sizes) == 300
 
 
 def test_chunks_sized_by_cost_and_short_at_the_end():

@@ -152,6 +152,7 @@ def test_reported_time_covers_the_predictions(tmp_path, monkeypatch, resume):
     # the lines run beside the points or, on a resumed complete file, after them.
     import sweepcli.run.predict as predict
     import sweepcli.run.runner as runner
+    import sweepcli.run.session as session
     from sweepcli.run.session import RunSession
 
     job = tmp_path / "job.toml"
@@ -173,6 +174,7 @@ def test_reported_time_covers_the_predictions(tmp_path, monkeypatch, resume):
         return original(job, lines)
 
     monkeypatch.setattr(runner, "time", clock)
+    monkeypatch.setattr(session, "time", clock)  # the session times the whole run
     monkeypatch.setattr(predict, "predict_lines", slow_lines)
     done = RunSession(job, progress=False, resume=resume, force=not resume,
                       argv=["test"]).run()
