@@ -161,17 +161,34 @@ def timed_run(job, workers: int) -> tuple[float, float, float]:
     return wall, cpu_of_children() - k0, parent
 
 
+def chunk_size_before(k: int, left: int, workers: int, per_point: float | None,
+                      fixed: int) -> int:
+    """The chunk sizes of the version before the floor (d42b73c): the ramp 1, 2, 4, ... points
+    whatever they cost, capped by the guided size once a cost is known."""
+    from sweepcli.run.chunking import MAX_TASK_SECONDS, MIN_TASK_SECONDS
+
+    ramp = 1 << min(k // max(1, workers), 30)
+    if per_point is None or per_point <= 0:
+        size = fixed
+    else:
+        target = min(max(left * per_point / (4 * workers), MIN_TASK_SECONDS), MAX_TASK_SECONDS)
+        size = max(1, round(target / per_point))
+    return max(1, min(ramp, size, left))
+
+
 def timed_mode(job, workers: int, mode: str) -> tuple[float, float, float]:
     """:func:`timed_run` with the chunking of ``mode``: "after" (this version: once a cost is
-    known, no chunk shorter than MIN_TASK_SECONDS) or "before" (the ramp 1, 2, 4, ... points
-    whatever they cost, as the previous version)."""
+    known, no chunk shorter than MIN_TASK_SECONDS) or "before" (:func:`chunk_size_before`,
+    put in place of the runner's own for the run)."""
     from sweepcli.run import chunking
 
-    chunking.FLOOR = mode != "before"
+    own = chunking.chunk_size
+    if mode == "before":
+        chunking.chunk_size = chunk_size_before
     try:
         return timed_run(job, workers)
     finally:
-        chunking.FLOOR = True
+        chunking.chunk_size = own
 
 
 def scaling(job, label: str, counts: list[int], repeat: int, compare: bool = False,

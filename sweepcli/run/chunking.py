@@ -33,9 +33,6 @@ import numpy as np
 
 MIN_TASK_SECONDS = 0.1  # long against a task's own overhead (a few ms: the job, 4 KB, and results)
 MAX_TASK_SECONDS = 10.0  # short enough for steady progress and little lost on an interruption
-# Whether a measured cost lifts ramp chunks to MIN_TASK_SECONDS (False: the ramp of earlier
-# versions, 1, 2, 4, ... points whatever they cost; benchmarks/bench_runner.py times both).
-FLOOR = True
 
 
 def fixed_size(n_points: int, workers: int) -> int:
@@ -97,7 +94,7 @@ def chunk_size(k: int, left: int, workers: int, per_point: float | None, fixed: 
         return max(1, min(ramp, fixed, left))
     target = min(max(left * per_point / (4 * workers), MIN_TASK_SECONDS), MAX_TASK_SECONDS)
     size = max(1, round(target / per_point))
-    least = min(math.ceil(MIN_TASK_SECONDS / per_point), size) if FLOOR else 1
+    least = min(math.ceil(MIN_TASK_SECONDS / per_point), size)
     return max(1, min(max(min(ramp, size), least), left))
 
 
