@@ -66,6 +66,10 @@ BASE_MEMORY = 200 * 2**20
 #: Open-sample probes stop once they have taken this long (seconds): ``check`` stays quick.
 #: A probe still running then is interrupted, and its time counts as a lower bound.
 SAMPLE_PROBE_SECONDS = 3.0
+#: Further k-mesh probes follow the first three while these took less than this (seconds), up
+#: to ``KMESH_PROBES`` points in all.
+KMESH_PROBE_SECONDS = 0.5
+KMESH_PROBES = 16
 
 
 class _ProbeStopped(Exception):
@@ -249,10 +253,13 @@ def _measurement_seconds(job: Job, index: int, point, name: str, opts: dict, mem
 def estimate(job: Job, probe_seconds: float = SAMPLE_PROBE_SECONDS) -> Cost:
     """Seconds per grid point and peak memory per worker, from probes of a few grid points.
 
-    At the grid points 1/6, 1/2 and 5/6 of the way through the grid, runs each measurement's
-    kernel on its meshes or on two small meshes, with one BLAS thread, scales to the configured
-    meshes as the module docstring describes, and averages. Open-sample measurements are run as
-    configured at five points spread over the grid, until the probes so far took
+    At the grid points 1/6, 1/2 and 5/6 of the way through the grid, runs each k-mesh
+    measurement's kernel on its meshes or on two small meshes, with one BLAS thread, scales to
+    the configured meshes as the module docstring describes; while those probes took less than
+    ``KMESH_PROBE_SECONDS`` in all, further points follow in van der Corput order (up to
+    ``KMESH_PROBES``), and the probes are averaged: a round grid often puts its 1/6, 1/2 and
+    5/6 points on transitions, where an invariant stops at once. Open-sample measurements are
+    run as configured at five points spread over the grid, until the probes so far took
     ``probe_seconds`` (their cost depends on how far a count doubles its sample); a probe still
     running then is stopped and counted as taking the budget, a lower bound (``Cost.stopped``).
     """
@@ -260,42 +267,50 @@ def estimate(job: Job, probe_seconds: float = SAMPLE_PROBE_SECONDS) -> Cost:
 
     from ..jobfile.checks import SAMPLE_SHAPES
     from ..physics import samples
+    from .chunking import spread_order
 
-    probes = sorted({job.size // 6, job.size // 2, 5 * job.size // 6})
-    sample_probes = sorted({(2 * i + 1) * job.size // 10 for i in range(5)})
-    per_point = 0.0
-    largest, sample_peak = 0, 0.0
+    on_mesh = [(n, dict(o)) for n, o in job.measurements if "kmesh" in o]
+    on_samples = [(n, dict(o)) for n, o in job.measurements if "kmesh" not in o]
+    first = [job.size // 6, job.size // 2, 5 * job.size // 6]
+    # Fractions of the grid in van der Corput order, 0, 1/2, 1/4, 3/4, 1/8, ... (64ths).
+    more = [int(i) * job.size // 64 for i in spread_order(np.arange(64))]
+    kmesh_probes = list(dict.fromkeys(first + more))
+    largest = max([math.ceil(1.5 * o["kmesh"]) ** job.dim for _, o in on_mesh if o.get("kmesh")],
+                  default=0)
+    sample_peak = 0.0
     sample_seconds: dict[str, list[float]] = {}
     stopped: list[str] = []
+    mesh_seconds: list[float] = []
     with threadpool_limits(limits=1, user_api="blas"):
-        for index in sorted(set(probes) | set(sample_probes)):
+        for index in kmesh_probes if on_mesh else ():
+            if len(mesh_seconds) >= len(set(first)) and (
+                    sum(mesh_seconds) > KMESH_PROBE_SECONDS or
+                    len(mesh_seconds) >= KMESH_PROBES):
+                break
+            point, memo, seconds = job.point(index), {}, 0.0
+            for name, opts in on_mesh:
+                try:
+                    seconds += _measurement_seconds(job, index, point, name, opts, memo)
+                except Exception:  # noqa: BLE001 - the run records such a point as failed
+                    pass
+            mesh_seconds.append(seconds)
+        sample_probes = sorted({(2 * i + 1) * job.size // 10 for i in range(5)})
+        for index in sample_probes if on_samples else ():
             point, memo = job.point(index), {}
-            for name, options in job.measurements:
-                opts = dict(options)
+            for name, opts in on_samples:
                 taken = sample_seconds.get(name)
-                if "kmesh" in opts and index not in probes:
-                    continue
-                if "kmesh" not in opts and (index not in sample_probes or (
-                        taken and sum(taken) > probe_seconds)):
+                if taken and sum(taken) > probe_seconds:
                     continue  # an expensive open sample: the probes so far stand for all
                 budget = max(probe_seconds - sum(taken or ()), 0.0)
                 try:
-                    if "kmesh" in opts:
+                    with _time_limit(budget):
                         seconds = _measurement_seconds(job, index, point, name, opts, memo)
-                    else:
-                        with _time_limit(budget):
-                            seconds = _measurement_seconds(job, index, point, name, opts, memo)
                 except _ProbeStopped:
                     seconds = budget
                     stopped.append(name)
                 except Exception:  # noqa: BLE001 - the run records such a point as failed
                     seconds = 0.0
-                if "kmesh" in opts:
-                    per_point += seconds / len(probes)
-                else:
-                    sample_seconds.setdefault(name, []).append(seconds)
-                if opts.get("kmesh"):
-                    largest = max(largest, math.ceil(1.5 * opts["kmesh"]) ** job.dim)
+                sample_seconds.setdefault(name, []).append(seconds)
                 if name in SAMPLE_SHAPES and index == sample_probes[0]:
                     size_key, max_key, dims = SAMPLE_SHAPES[name]
                     # Counts may double the sample up to max_key: the peak is that sample's.
@@ -306,6 +321,7 @@ def estimate(job: Job, probe_seconds: float = SAMPLE_PROBE_SECONDS) -> Cost:
                                                    driven=driven)
                     sample_peak = max(sample_peak, samples.memory_estimate(tb, shape, method,
                                                                            driven=driven))
+    per_point = sum(mesh_seconds) / len(mesh_seconds) if mesh_seconds else 0.0
     per_point += sum(sum(t) / len(t) for t in sample_seconds.values())
     # Eigenvectors, Floquet operators and their products on the largest mesh, complex128.
     peak = max(16 * largest * job.norb ** 2 * 8, sample_peak)
