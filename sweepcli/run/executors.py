@@ -6,6 +6,7 @@ adapters. Results are stored by grid index, so the order of completion does not 
 
 from __future__ import annotations
 
+import logging
 import threading
 import time
 from collections.abc import Callable, Iterable, Iterator
@@ -99,6 +100,16 @@ class WorkersLost(SweepError):
     """A dask cluster had no worker for longer than the executor's ``lost_timeout``."""
 
 
+class _QuietGatherExit(logging.Filter):
+    """Drops asyncio's "Task exception was never retrieved" for distributed's internal
+    ``AllExit``: a result being gathered when its worker dies leaves that task behind, and its
+    traceback on stderr says nothing the run does not report itself."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        exc = record.exc_info[1] if record.exc_info else None
+        return not (exc is not None and type(exc).__name__ == "AllExit")
+
+
 class DaskExecutor:
     """dask.distributed: tasks submitted to a client, at most two per worker thread in flight.
 
@@ -117,6 +128,9 @@ class DaskExecutor:
         self.workers = max(1, self.threads)
         self.in_flight = 0  # futures submitted and not yet returned (read by tests)
         self.stop = None  # a threading.Event the runner sets on Ctrl-C / SIGTERM
+        quiet = logging.getLogger("asyncio")
+        if not any(isinstance(f, _QuietGatherExit) for f in quiet.filters):
+            quiet.addFilter(_QuietGatherExit())
 
     def _threads(self) -> int:
         """Worker threads the scheduler has now (0 when it cannot be asked)."""

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import signal
+import sys
 import threading
 import time
 from collections.abc import Callable, Iterator
@@ -163,6 +164,14 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         stop.set()
         raise KeyboardInterrupt
 
+    def unraisable(hook_args) -> None:
+        # The dropped KeyboardInterrupt above is carried by ``stop``: Python's report of it
+        # ("Exception ignored in ... Traceback") would only alarm the user.
+        if not isinstance(hook_args.exc_value, KeyboardInterrupt):
+            report(hook_args)
+
+    report, sys.unraisablehook = sys.unraisablehook, unraisable
+
     for sig in (signal.SIGINT, signal.SIGTERM):
         try:
             previous[sig] = signal.signal(sig, on_signal)
@@ -203,6 +212,7 @@ def evaluate_groups(job: Job, results: Results, groups: list[tuple[np.ndarray, t
         bar.close()
         for sig, handler in previous.items():
             signal.signal(sig, handler)
+        sys.unraisablehook = report
         executor.stop = None
         if checkpoint is not None:
             checkpoint(results)

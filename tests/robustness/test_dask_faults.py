@@ -133,3 +133,24 @@ def test_signals_stop_a_dask_run(dask_scheduler, job, tmp_path, sig):
     partial = Results.read(out)
     assert 8 <= partial.n_done < partial.size
     assert not (tmp_path / "dask.h5.tmp").exists() and not (tmp_path / "dask.h5.lock").exists()
+
+
+def test_left_over_gather_tasks_are_not_reported_after_a_worker_loss():
+    # When a worker dies while a result is being gathered, distributed leaves a task behind
+    # whose AllExit asyncio logs as "Task exception was never retrieved" with a traceback:
+    # the executor's filter drops exactly those records from the asyncio logger.
+    import logging
+
+    from distributed.client import AllExit
+
+    from sweepcli.run.executors import _QuietGatherExit
+
+    def record(exc):
+        info = (type(exc), exc, None) if exc is not None else None
+        return logging.LogRecord("asyncio", logging.ERROR, __file__, 1,
+                                 "Task exception was never retrieved", None, info)
+
+    quiet = _QuietGatherExit()
+    assert not quiet.filter(record(AllExit()))
+    assert quiet.filter(record(RuntimeError("a real failure")))
+    assert quiet.filter(record(None))

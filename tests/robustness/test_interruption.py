@@ -125,3 +125,52 @@ def test_a_dying_worker_keeps_the_finished_points(reference, tmp_path):
     _, err = proc.communicate(timeout=300)
     assert proc.returncode == 0, err
     assert_same_content(out, ref)
+
+
+def test_a_signal_dropped_in_a_weakref_callback_stops_quietly(tmp_path, monkeypatch):
+    # Python drops an exception raised while a weakref callback runs and passes it to
+    # sys.unraisablehook, whose default prints "Exception ignored in ... Traceback". A Ctrl-C
+    # caught there must still stop the run (the stop flag), without that report; any other
+    # dropped exception still reaches the hook that was there before the run.
+    import weakref
+
+    from sweepcli.jobfile import load_job
+    from sweepcli.run.layout import results_for_job
+    from sweepcli.run.runner import run_sweep
+
+    class Probe:
+        pass
+
+    def drop(exc_type):
+        def callback(_):
+            raise exc_type("dropped in a callback")
+        obj = Probe()
+        ref = weakref.ref(obj, callback)
+        del obj  # CPython runs the callback here and reports the exception as unraisable
+        return ref
+
+    class SignalInCallback:
+        workers = 1
+        stop = None
+
+        def imap(self, func, tasks):
+            for n, args in enumerate(tasks):
+                yield func(*args)
+                if n == 1:
+                    drop(ValueError)
+                    self.stop.set()  # what the signal handler does before it raises
+                    drop(KeyboardInterrupt)
+
+    reported = []
+
+    def hook(args):
+        reported.append(type(args.exc_value))
+
+    monkeypatch.setattr(sys, "unraisablehook", hook)
+    path = tmp_path / "job.toml"
+    path.write_text(JOB.replace("OUT", str(tmp_path / "out.h5")))
+    job = load_job(path)
+    summary = run_sweep(job, results_for_job(job), executor=SignalInCallback(), progress=False,
+                        chunk_size=1)
+    assert summary.interrupted and 0 < summary.done < job.size
+    assert reported == [ValueError] and sys.unraisablehook is hook
