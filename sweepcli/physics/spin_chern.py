@@ -60,7 +60,7 @@ class SpinChernResult:
     z2 : ``spin_chern mod 2`` when ``spin_chern`` is an integer, else ``None``; meaningful as
         the Kane-Mele index only with time-reversal symmetry (``c_up + c_down = 0``).
     spin_gap : ``min_k min |eig(P S P)|`` over the occupied space on the finest mesh
-        (dimensionless, 0..1; nan if no mesh was built); for a conserved spin, the smallest
+        (dimensionless, 0..||S||; nan if no mesh was built); for a conserved spin, the smallest
         ``|eig(S)|``.
     kmesh, max_flux, reason : as in :class:`InvariantResult`.
     """
@@ -154,10 +154,15 @@ def _conserved_spin_chern(tb: TightBinding, nocc: int,
             return SpinChernResult(math.nan, None, None, None, spin_gap, n_used, flux,
                                    Reason.NOT_CONVERGED)
         values.append(r.value)
-    c_up, c_dn = values
-    cs = (c_up - c_dn) / 2
+    return _proven(*values, spin_gap, n_used, flux)
+
+
+def _proven(c_up: int, c_down: int, spin_gap: float, kmesh: int | None, flux: float
+            ) -> SpinChernResult:
+    """The result of two proven sector Chern numbers."""
+    cs = (c_up - c_down) / 2
     z2 = int(cs) % 2 if cs == int(cs) else None
-    return SpinChernResult(cs, c_up, c_dn, z2, spin_gap, n_used, flux, Reason.OK)
+    return SpinChernResult(cs, c_up, c_down, z2, spin_gap, kmesh, flux, Reason.OK)
 
 
 def _spin_mixing(vectors: np.ndarray, spin: np.ndarray) -> np.ndarray:
@@ -289,7 +294,4 @@ def spin_chern_number(tb: TightBinding, nocc: int, spin: np.ndarray, *, gap: flo
     except _SectorGapClosed:
         return SpinChernResult(math.nan, None, None, None, spin_gap[0], None, math.nan,
                                Reason.SECTOR_GAP_CLOSED)
-    c_up, c_dn = values
-    cs = (c_up - c_dn) / 2
-    z2 = int(cs) % 2 if cs == int(cs) else None
-    return SpinChernResult(cs, c_up, c_dn, z2, spin_gap[0], n_used, flux, Reason.OK)
+    return _proven(*values, spin_gap[0], n_used, flux)
